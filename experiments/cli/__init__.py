@@ -1,0 +1,78 @@
+"""The ``twofold`` command: the one place that reaches study, experiments and analysis.
+
+Each command group is one small module registered here; the real work lives in library functions.
+Heavy imports (PsychoPy, statsmodels, matplotlib) happen inside commands, never at start-up.
+"""
+
+from __future__ import annotations
+
+import importlib
+import sys
+
+import typer
+from twofold.study.exceptions import TwofoldError
+
+from ._console import error
+
+__all__ = ["app", "main"]
+
+app = typer.Typer(
+    name="twofold",
+    help="Define analogy and concept-formation items once; run them for people and machines; "
+    "compare both on one scale.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+)
+
+# command modules: each defines `register(app)`; a module not yet written is skipped
+_COMMANDS = ("items", "forms", "run", "simulate", "analyze", "report", "example", "new")
+
+for _name in _COMMANDS:
+    try:
+        _mod = importlib.import_module(f"{__name__}.{_name}")
+    except ModuleNotFoundError as _err:
+        if _err.name != f"{__name__}.{_name}":
+            raise
+        continue
+    _mod.register(app)
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point: run the command; expected errors print one line and exit 2.
+
+    ``--debug`` anywhere on the command line shows the full traceback instead.
+    """
+    args = list(sys.argv[1:] if argv is None else argv)
+    debug = "--debug" in args
+    if debug:
+        args.remove("--debug")
+    try:
+        app(args=args, prog_name="twofold", standalone_mode=False)
+    except TwofoldError as err:
+        if debug:
+            raise
+        error(str(err))
+        return 2
+    except KeyboardInterrupt:
+        error("interrupted; finished work is kept (run the same command again to resume).")
+        return 130
+    except Exception as err:  # click usage errors and the like
+        import click
+
+        if isinstance(err, click.exceptions.Exit):
+            return int(err.exit_code)
+        if isinstance(err, click.ClickException):
+            if debug:
+                raise
+            err.show()
+            return int(err.exit_code)
+        if isinstance(err, click.exceptions.Abort):
+            error("aborted.")
+            return 1
+        raise
+    return 0
+
+
+def _entry() -> None:  # pragma: no cover - console script
+    sys.exit(main())

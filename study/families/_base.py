@@ -1,0 +1,308 @@
+"""The family interface: what every item family provides, and the shared default behaviour.
+
+A family is one module that subclasses :class:`Family` and registers an instance with
+:func:`twofold.study.families.register`. Everything else (banks, audits, renderers, solvers,
+runners, analysis) reaches a family only through this interface, so adding a family is adding a
+module.
+"""
+
+from __future__ import annotations
+
+import abc
+import dataclasses
+from collections.abc import Mapping, Sequence
+from typing import TYPE_CHECKING, Any, ClassVar, Literal
+
+import numpy as np
+
+from .._check import fail
+from ..exceptions import ResponseError, SpecError
+from ..item import Item, canonical_json
+
+if TYPE_CHECKING:  # pragma: no cover
+    from matplotlib.figure import Figure
+
+__all__ = ["Family", "ParamSpec", "Rejected", "Score"]
+
+
+class Rejected(Exception):  # noqa: N818 - a control-flow signal, not an error for users
+    """Raised by a generator or variant operator when a candidate item is invalid.
+
+    The bank generator catches it, counts ``reason`` and tries again with a fresh seed.
+    """
+
+    def __init__(self, reason: str):
+        super().__init__(reason)
+        self.reason = reason
+
+
+@dataclasses.dataclass(frozen=True)
+class ParamSpec:
+    """One generator parameter, as a generation spec may set it.
+
+    Attributes
+    ----------
+    name : str
+        Parameter name as written in the spec.
+    kind : {"int", "float", "choice", "bool", "multi"}
+        ``int``/``float`` take numbers in ``[low, high]``; ``choice`` takes one of ``options``;
+        ``bool`` takes true/false; ``multi`` takes a non-empty list drawn from ``options`` (the list
+        is the value itself, not levels).
+    default : Any
+        Value used when the spec does not set the parameter.
+    doc : str
+        One line saying what the parameter controls.
+    """
+
+    name: str
+    kind: Literal["int", "float", "choice", "bool", "multi"]
+    default: Any
+    doc: str
+    low: float | None = None
+    high: float | None = None
+    options: tuple[Any, ...] = ()
+
+    def accepted(self) -> str:
+        if self.kind == "int":
+            return f"an integer from {self.low:g} to {self.high:g} (or a list of such levels)"
+        if self.kind == "float":
+            return f"a number from {self.low:g} to {self.high:g} (or a list of such levels)"
+        if self.kind == "bool":
+            return "true or false (or a list of both)"
+        opts = ", ".join(map(str, self.options))
+        if self.kind == "multi":
+            return f"a non-empty list of: {opts}"
+        return f"one of {opts} (or a list of such levels)"
+
+    def check_value(self, value: Any, *, where: str) -> Any:
+        """Check one value (not a list of levels) and return it."""
+        ok = False
+        if self.kind == "int":
+            ok = isinstance(value, int) and not isinstance(value, bool)
+            ok = ok and self.low <= value <= self.high  # type: ignore[operator]
+        elif self.kind == "float":
+            ok = isinstance(value, int | float) and not isinstance(value, bool)
+            ok = ok and self.low <= value <= self.high  # type: ignore[operator]
+        elif self.kind == "bool":
+            ok = isinstance(value, bool)
+        elif self.kind == "choice":
+            ok = value in self.options
+        elif self.kind == "multi":
+            ok = (
+                isinstance(value, list)
+                and len(value) > 0
+                and all(v in self.options for v in value)
+                and len(set(map(str, value))) == len(value)
+            )
+        if not ok:
+            raise fail(self.name, value, self.accepted(), where=where, error=SpecError)
+        return value
+
+    def levels(self, raw: Any, *, where: str) -> list[Any]:
+        """Interpret a spec entry as a list of levels and check each.
+
+        A scalar is one level; a list is the levels; a table ``{min=, max=}`` is every integer
+        in the range (``int`` parameters only). For ``multi`` parameters a list is one value.
+        """
+        if self.kind == "multi":
+            return [
+                self.check_value(list(raw) if isinstance(raw, list | tuple) else raw, where=where)
+            ]
+        if isinstance(raw, Mapping):
+            if self.kind != "int" or set(raw) != {"min", "max"}:
+                raise fail(
+                    self.name,
+                    dict(raw),
+                    "a range table {min=, max=} for integer parameters; " + self.accepted(),
+                    where=where,
+                    error=SpecError,
+                )
+            lo, hi = raw["min"], raw["max"]
+            self.check_value(lo, where=where)
+            self.check_value(hi, where=where)
+            if lo > hi:
+                raise fail(
+                    self.name, dict(raw), "a range with min <= max", where=where, error=SpecError
+                )
+            return list(range(lo, hi + 1))
+        if isinstance(raw, list | tuple):
+            if not raw:
+                raise fail(
+                    self.name, raw, "a non-empty list of levels", where=where, error=SpecError
+                )
+            return [self.check_value(v, where=where) for v in raw]
+        return [self.check_value(raw, where=where)]
+
+
+@dataclasses.dataclass(frozen=True)
+class Score:
+    """The verdict on one response.
+
+    Attributes
+    ----------
+    correct : bool
+        Whether the response is the answer or one of the accepted answers.
+    error_type : str or None
+        The family's error type for a wrong response; ``None`` when correct.
+    label : str or None
+        ``"intended"`` for the answer, the accepted answer's label, or ``None`` when wrong.
+    """
+
+    correct: bool
+    error_type: str | None
+    label: str | None
+
+
+class Family(abc.ABC):
+    """Base class of an item family.
+
+    Subclasses set the class attributes and implement the abstract methods. Generators receive a
+    numpy ``Generator`` seeded per item, so the same parameters and seed give the same item.
+    """
+
+    #: family name as used in specs and item records
+    name: ClassVar[str]
+    #: three lowercase letters heading every item id of the family
+    prefix: ClassVar[str]
+    #: generator version, stored on every item; bump when the same seed would give another item
+    version: ClassVar[str]
+    #: response modes the family supports
+    modes: ClassVar[tuple[str, ...]] = ("generate",)
+    #: generator parameters a spec may set
+    params: ClassVar[tuple[ParamSpec, ...]] = ()
+    #: names of the difficulty factors stored on every item
+    factors: ClassVar[tuple[str, ...]] = ()
+    #: distractor schemes for select mode: name -> one-line description
+    distractor_schemes: ClassVar[dict[str, str]] = {}
+    #: variant operators: name -> one-line description
+    variant_operators: ClassVar[dict[str, str]] = {}
+    #: error types: name -> one-line description; always includes "other"
+    error_types: ClassVar[dict[str, str]] = {"other": "any other wrong response"}
+    #: number of choices in select mode unless the spec says otherwise
+    default_choices: ClassVar[int] = 8
+    #: the form of a generate-mode answer, stated in prompts and export manifests
+    answer_format: ClassVar[str] = ""
+
+    # -- generation ---------------------------------------------------------------------------
+    @abc.abstractmethod
+    def generate(
+        self,
+        params: Mapping[str, Any],
+        rng: np.random.Generator,
+        *,
+        seed: int,
+        modes: Sequence[str],
+        distractor_scheme: str | None,
+        n_choices: int,
+    ) -> Item:
+        """Make one item from fully specified ``params``; raise :class:`Rejected` if invalid.
+
+        Validity checks (answer uniqueness under the family's rule space, ...) run here.
+        ``seed`` is stored on the item; ``rng`` is already seeded from it.
+        """
+
+    @abc.abstractmethod
+    def vary(self, item: Item, operator: str, rng: np.random.Generator) -> Item:
+        """Make an isomorph of ``item`` with ``operator``; raise :class:`Rejected` if it cannot.
+
+        The result has ``variant_of=item.id`` and ``variant_operator=operator`` and its answer,
+        accepted answers and choices recomputed.
+        """
+
+    def check(self, item: Item) -> list[str]:
+        """Re-run the validity checks on a stored item; return problems (empty when valid)."""
+        return []
+
+    def default_params(self) -> dict[str, Any]:
+        """Every parameter at its default."""
+        return {p.name: p.default for p in self.params}
+
+    # -- responses ----------------------------------------------------------------------------
+    def normalize(self, item: Item, response: Any, mode: str) -> Any:
+        """Bring a response into the canonical form compared with the answer.
+
+        The default accepts a 1-based choice number in select mode and the raw value otherwise.
+        Raise :class:`~twofold.study.exceptions.ResponseError` for a malformed response.
+        """
+        if mode == "select":
+            n = len(item.choices or ())
+            if isinstance(response, str) and response.strip().isdigit():
+                response = int(response.strip())
+            if (
+                isinstance(response, bool)
+                or not isinstance(response, int)
+                or not 1 <= response <= n
+            ):
+                raise ResponseError(
+                    f"item {item.id}: field 'response': got {response!r}; accepted: a choice "
+                    f"number from 1 to {n}.",
+                    field="response",
+                )
+            return response
+        return response
+
+    def score(self, item: Item, response: Any, mode: str) -> Score:
+        """Score a response: correct, or wrong with an error type."""
+        resp = self.normalize(item, response, mode)
+        if mode == "select":
+            if resp == item.answer_choice:
+                return Score(True, None, "intended")
+            return Score(False, self.classify_error(item, resp, mode), None)
+        key = canonical_json(resp)
+        if key == canonical_json(item.answer):
+            return Score(True, None, "intended")
+        for acc in item.accepted:
+            if key == canonical_json(acc["answer"]):
+                return Score(True, None, acc["label"])
+        return Score(False, self.classify_error(item, resp, mode), None)
+
+    @abc.abstractmethod
+    def classify_error(self, item: Item, response: Any, mode: str) -> str:
+        """Error type (a key of :attr:`error_types`) of a wrong, normalised response."""
+
+    def parse_text(self, item: Item, text: str, mode: str) -> Any:
+        """Extract a response from free text (a language model's reply).
+
+        The default handles select mode (the last choice number standing alone in the reply);
+        families override it for generate mode. Raise ResponseError when nothing usable is found.
+        """
+        import re
+
+        if mode == "select":
+            n = len(item.choices or ())
+            hits = [
+                int(m)
+                for m in re.findall(r"(?<![\d.])(\d{1,2})(?![\d.])", text)
+                if 1 <= int(m) <= n
+            ]
+            if hits:
+                return hits[-1]
+            raise ResponseError(
+                f"item {item.id}: no choice number from 1 to {n} found in reply.", field="response"
+            )
+        raise ResponseError(
+            f"item {item.id}: family {self.name} cannot read a {mode} answer from text.",
+            field="response",
+        )
+
+    # -- rendering ----------------------------------------------------------------------------
+    @abc.abstractmethod
+    def render_text(self, item: Item, mode: str) -> str:
+        """A prompt a language model could answer, stating the expected answer format.
+
+        Never reveals the answer.
+        """
+
+    @abc.abstractmethod
+    def render_structured(self, item: Item, mode: str) -> dict[str, Any]:
+        """A JSON-ready view for symbolic solvers and for the participant screens.
+
+        Never reveals the answer; includes the choices in select mode.
+        """
+
+    @abc.abstractmethod
+    def draw(self, item: Item, mode: str, fig: Figure) -> None:
+        """Draw the item on an empty matplotlib figure (square, legible at 600x600 px)."""
+
+    def __repr__(self) -> str:
+        return f"<family {self.name} v{self.version}>"

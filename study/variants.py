@@ -1,0 +1,62 @@
+"""Make isomorphs of a whole bank with one variant operator."""
+
+from __future__ import annotations
+
+import os
+from typing import Any
+
+from ._check import check_choice
+from .bank import Bank, load_bank
+from .exceptions import SpecError
+from .families import Rejected, get_family, known_families
+from .generate import item_rng
+
+__all__ = ["vary_bank"]
+
+
+def vary_bank(
+    bank: Bank | str | os.PathLike[str], operator: str, *, family: str | None = None, seed: int = 0
+) -> tuple[Bank, dict[str, Any]]:
+    """A new bank: every item of ``bank`` plus one isomorph made by ``operator`` per parent.
+
+    Only parents (items that are not themselves variants) of families that have ``operator``
+    are varied; ``family`` restricts to one family.
+
+    Returns
+    -------
+    (Bank, dict)
+        The new bank (not yet written) and counts ``made`` and ``skipped``.
+    """
+    src = bank if isinstance(bank, Bank) else load_bank(bank)
+    if family is not None:
+        check_choice("--family", family, known_families(), error=SpecError)
+    fams = [f for f in src.families() if family in (None, f)]
+    having = [f for f in fams if operator in get_family(f).variant_operators]
+    if not having:
+        ops = sorted({op for f in fams for op in get_family(f).variant_operators})
+        check_choice("--operator", operator, ops, error=SpecError)
+    items = list(src.items)
+    seen = {it.id for it in items}
+    made = skipped = 0
+    for it in src.items:
+        if it.family not in having or it.variant_of is not None:
+            continue
+        _, rng = item_rng(seed, it.id, operator)
+        try:
+            var = get_family(it.family).vary(it, operator, rng)
+        except Rejected:
+            skipped += 1
+            continue
+        if var.id in seen:
+            skipped += 1
+            continue
+        seen.add(var.id)
+        items.append(var)
+        made += 1
+    meta = dict(src.meta)
+    gen = dict(meta.get("generation") or {})
+    gen.setdefault("varied", []).append(
+        {"operator": operator, "family": family, "seed": seed, "from_bank": src.hash, "made": made}
+    )
+    new = Bank.from_items(items, spec=meta.get("spec"), seed=meta.get("seed"), generation=gen)
+    return new, {"made": made, "skipped": skipped}
