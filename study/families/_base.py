@@ -260,6 +260,13 @@ class Family(abc.ABC):
     def classify_error(self, item: Item, response: Any, mode: str) -> str:
         """Error type (a key of :attr:`error_types`) of a wrong, normalised response."""
 
+    @abc.abstractmethod
+    def sample_error(self, item: Item, mode: str, rng: np.random.Generator) -> tuple[Any, str]:
+        """A plausible wrong response and its error type, for simulated respondents.
+
+        The response is in the form :meth:`score` accepts; scoring it must give that error type.
+        """
+
     def parse_text(self, item: Item, text: str, mode: str) -> Any:
         """Extract a response from free text (a language model's reply).
 
