@@ -16,6 +16,7 @@ Every error subclasses the builtin it means, so ``except ValueError`` keeps work
 
     TwofoldWarning(UserWarning)                     base of every twofold warning
     ├── DegenerateWarning                           a statistic is undefined for this input
+    ├── LogWarning                                  trial logs hold duplicate or missing trials
     └── ConvergenceWarning                          an iterative fit stopped before converging
 """
 
@@ -29,6 +30,7 @@ __all__ = [
     "InputError",
     "ItemError",
     "LogError",
+    "LogWarning",
     "ResponseError",
     "RunnerError",
     "SolverError",
@@ -99,6 +101,10 @@ class TwofoldWarning(UserWarning):
 
 class DegenerateWarning(TwofoldWarning):
     """A statistic is undefined for the given input (reported as NaN)."""
+
+
+class LogWarning(TwofoldWarning):
+    """Trial logs hold duplicate, missing or unexpected trials (counted in the data report)."""
 
 
 class ConvergenceWarning(TwofoldWarning):
