@@ -6,7 +6,6 @@ import json
 
 import pandas as pd
 import pytest
-
 from twofold.study.exceptions import LogError
 from twofold.study.logs import TRIAL_COLUMNS, TrialLogWriter, read_trials, table_schema
 
