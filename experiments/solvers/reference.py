@@ -1,0 +1,67 @@
+"""``reference``: one machine respondent for every family, dispatching to ``<family>-ref``.
+
+A study that mixes families needs one solver that answers all of them. This one keeps a reference
+solver per family (built lazily) and passes each item's structured view to the solver of the
+item's family, so a study can name "reference" once and set per-family budgets.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from twofold.study._check import fail
+from twofold.study.exceptions import InputError
+
+from ._base import Answer, Solver, make_builtin, register_solver
+
+__all__ = ["ReferenceSolver"]
+
+
+class ReferenceSolver:
+    """Dispatch each item to its family's reference solver.
+
+    Parameters
+    ----------
+    seed : int, default 0
+        Passed to every family solver.
+    budgets : mapping of family name to int, optional
+        Budget per family; a family not named uses its solver's default budget.
+    budget : int, optional
+        One budget for every family (``budgets`` entries win).
+    """
+
+    medium = "structured"
+
+    def __init__(
+        self, *, seed: int = 0, budgets: Mapping[str, int] | None = None, budget: int | None = None
+    ):
+        self.seed = seed
+        self.budgets = dict(budgets or {})
+        self.budget = budget
+        self._solvers: dict[str, Solver] = {}
+
+    def _solver(self, family: str) -> Solver:
+        if family not in self._solvers:
+            opts: dict[str, Any] = {"seed": self.seed}
+            b = self.budgets.get(family, self.budget)
+            if b is not None:
+                opts["budget"] = b
+            self._solvers[family] = make_builtin(f"{family}-ref", **opts)
+        return self._solvers[family]
+
+    def solve(self, view: Any, mode: str) -> Answer:
+        family = view.get("family") if isinstance(view, dict) else None
+        if not isinstance(family, str):
+            raise fail(
+                "view.family", family, "a structured view naming its family", error=InputError
+            )
+        return self._solver(family).solve(view, mode)
+
+
+@register_solver(
+    "reference",
+    "every family: dispatches to <family>-ref (options: seed, budget, budgets={family=N})",
+)
+def _make(**options: Any) -> ReferenceSolver:
+    return ReferenceSolver(**options)
