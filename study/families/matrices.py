@@ -143,7 +143,7 @@ def rule_fits(rule: str, cells: Sequence[int], n_levels: int, *, numeric: bool) 
 
 
 def fitting_rules(attribute: str, cells: Sequence[int]) -> dict[str, int]:
-    """Every rule of :data:`HYPOTHESES` that fits ``cells`` of ``attribute``, with its prediction."""
+    """Every rule of :data:`HYPOTHESES` fitting ``cells`` of ``attribute``, with its prediction."""
     n = len(LEVELS[attribute])
     num = attribute in _NUMERIC
     out = {}
@@ -394,14 +394,11 @@ class MatricesFamily(Family):
     ) -> list[tuple[int, ...]]:
         bound = self._bound(rules)
         if scheme == "one-off":
-            mods = [
-                (j, v)
-                for j in bound
-                for v in range(ranges[ATTRIBUTES[j]])
-                if v != answer[j]
-            ]
+            mods = [(j, v) for j in bound for v in range(ranges[ATTRIBUTES[j]]) if v != answer[j]]
             if len(mods) < n - 1:
-                raise Rejected(f"one-off: only {len(mods)} single-attribute changes for {n} choices")
+                raise Rejected(
+                    f"one-off: only {len(mods)} single-attribute changes for {n} choices"
+                )
             pick = rng.choice(len(mods), size=n - 1, replace=False)
             out = [answer]
             for m in pick:
@@ -593,9 +590,9 @@ class MatricesFamily(Family):
         if operator == "swap-rows":
             grid = grid[3:6] + grid[0:3] + grid[6:9]
         elif operator in ("permute-values", "swap-shapes"):
-            targets = ["shape"] if operator == "swap-shapes" else [
-                a for a in ATTRIBUTES if a != "shape"
-            ]
+            targets = (
+                ["shape"] if operator == "swap-shapes" else [a for a in ATTRIBUTES if a != "shape"]
+            )
             maps: dict[int, list[int]] = {}
             for attr in targets:
                 L, rule = ranges[attr], rules[attr]
@@ -628,7 +625,10 @@ class MatricesFamily(Family):
                     if arith and not {a, b} <= _NUMERIC:
                         continue
                     pool = grid + (choices or [])
-                    if max(p[ja] for p in pool) >= ranges[b] or max(p[jb] for p in pool) >= ranges[a]:
+                    if (
+                        max(p[ja] for p in pool) >= ranges[b]
+                        or max(p[jb] for p in pool) >= ranges[a]
+                    ):
                         continue
                     pairs.append((ja, jb))
             if not pairs:
@@ -846,18 +846,34 @@ class MatricesFamily(Family):
                 rr, cc = divmod(k, 4)
                 x, y = 0.1 + cc * (cs + 0.005), 0.2 - rr * (cs - 0.01)
                 self._draw_panel(ax, ch, x, y, cs * 0.88, maxc)
-                ax.text(x + 0.01, y + cs * 0.88 - 0.01, str(k + 1), ha="left", va="top",
-                        fontsize=10, color="black", fontweight="bold")
+                ax.text(
+                    x + 0.01,
+                    y + cs * 0.88 - 0.01,
+                    str(k + 1),
+                    ha="left",
+                    va="top",
+                    fontsize=10,
+                    color="black",
+                    fontweight="bold",
+                )
 
     @staticmethod
-    def _draw_panel(ax: Any, p: Mapping[str, Any] | None, x: float, y: float, side: float,
-                    maxc: int) -> None:
+    def _draw_panel(
+        ax: Any, p: Mapping[str, Any] | None, x: float, y: float, side: float, maxc: int
+    ) -> None:
         from matplotlib.patches import Circle, Rectangle, RegularPolygon
 
         ax.add_patch(Rectangle((x, y), side, side, facecolor="white", edgecolor="black", lw=1.2))
         if p is None:
-            ax.text(x + side / 2, y + side / 2, "?", ha="center", va="center",
-                    fontsize=int(side * 150), color="black")
+            ax.text(
+                x + side / 2,
+                y + side / 2,
+                "?",
+                ha="center",
+                va="center",
+                fontsize=int(side * 150),
+                color="black",
+            )
             return
         n = int(p["count"])
         slot = side * 0.9 / max(maxc, 1)
@@ -877,8 +893,7 @@ class MatricesFamily(Family):
             else:
                 nv = {"triangle": 3, "square": 4, "pentagon": 5, "hexagon": 6}[shape]
                 orient = math.pi / 4 if nv == 4 else 0.0
-                patch = RegularPolygon((cx, cy), numVertices=nv, radius=r, orientation=orient,
-                                       **kw)
+                patch = RegularPolygon((cx, cy), numVertices=nv, radius=r, orientation=orient, **kw)
             ax.add_patch(patch)
 
 
