@@ -651,6 +651,8 @@ class MatricesFamily(Family):
             for c in choices:
                 if c != grid[8] and not self._broken(grid, rules, c):
                     raise Rejected(f"{operator}: a distractor became correct")
+        if grid == self._grid(item):
+            raise Rejected(f"{operator}: the panels did not change")
         return self._build(
             grid,
             rules,
