@@ -1,0 +1,432 @@
+"""The matrices family: generation, validity, choices, variants, scoring, parsing, rendering."""
+
+from __future__ import annotations
+
+import itertools
+from collections import Counter
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from twofold.study import generate_bank, load_bank, parse_spec, write_bank
+from twofold.study.exceptions import GenerationError, ResponseError
+from twofold.study.families import Rejected, get_family
+from twofold.study.families.matrices import ATTRIBUTES, LEVELS
+from twofold.study.generate import item_rng
+from twofold.study.item import canonical_json, validate_record
+from twofold.study.render import render, render_picture
+
+FAM = get_family("matrices")
+SETTINGS = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+params_st = st.fixed_dictionaries(
+    {
+        "n_rules": st.integers(1, 4),
+        "rule_set": st.sampled_from(["basic", "all", "hard"]),
+        "n_irrelevant": st.integers(0, 1),
+        "max_count": st.integers(3, 6),
+    }
+)
+
+
+def make(params=None, *, seed=0, modes=("generate", "select"), scheme="one-off", n_choices=8):
+    """First valid item for the key (seed, attempt), as the bank generator would make it."""
+    for attempt in range(200):
+        s, rng = item_rng(seed, "test-matrices", attempt)
+        try:
+            return FAM.generate(
+                params or {},
+                rng,
+                seed=s,
+                modes=list(modes),
+                distractor_scheme=scheme if "select" in modes else None,
+                n_choices=n_choices,
+            )
+        except Rejected:
+            continue
+    raise AssertionError("no valid item")
+
+
+# -- an independent statement of the rule space, written from its definition ----------------
+def value(attr, v):
+    """Numeric value (1-based level number) of an attribute value."""
+    return LEVELS[attr].index(v) + 1
+
+
+def column(item, attr, gap):
+    rows = item.stimulus["panels"]
+    vals = [rows[r][c][attr] if (r, c) != (2, 2) else gap for r in range(3) for c in range(3)]
+    return [vals[0:3], vals[3:6], vals[6:9]]
+
+
+def holds(rule, attr, rows):
+    n = [[value(attr, v) for v in row] for row in rows]
+    if rule == "fixed":
+        return len({v for row in rows for v in row}) == 1
+    if rule == "constant":
+        return all(len(set(row)) == 1 for row in rows)
+    if rule.startswith("progression"):
+        k = int(rule[len("progression") :])
+        return all(r[1] - r[0] == k and r[2] - r[1] == k for r in n)
+    if rule == "distribution":
+        return all(len(set(r)) == 3 and set(r) == set(rows[0]) for r in rows)
+    if attr not in ("size", "count"):
+        return False
+    if rule == "sum":
+        return all(r[0] + r[1] == r[2] for r in n)
+    if rule == "difference":
+        return all(r[0] - r[1] == r[2] for r in n)
+    raise AssertionError(rule)
+
+
+RULE_SPACE = [
+    "constant",
+    "progression+1",
+    "progression-1",
+    "progression+2",
+    "progression-2",
+    "distribution",
+    "sum",
+    "difference",
+]
+
+
+def completions(item, attr):
+    """Every value of ``attr`` in the gap under which some rule of the space holds."""
+    return {
+        v for v in LEVELS[attr] for rule in RULE_SPACE if holds(rule, attr, column(item, attr, v))
+    }
+
+
+# -- generation --------------------------------------------------------------------------------
+@SETTINGS
+@given(params=params_st, seed=st.integers(0, 2**31))
+def test_generation_is_deterministic_and_schema_valid(params, seed):
+    a = make(params, seed=seed)
+    b = make(params, seed=seed)
+    assert a.to_json() == b.to_json()
+    validate_record(a.to_record())
+    assert a.id.startswith("mat-")
+    assert set(FAM.factors) <= set(a.factors) and len(FAM.factors) >= 4
+    assert a.factors["n_rules"] == params["n_rules"]
+    assert a.factors["n_irrelevant"] == params["n_irrelevant"]
+    assert len(a.choices) == 8 and a.distractor_scheme == "one-off"
+
+
+@SETTINGS
+@given(params=params_st, seed=st.integers(0, 2**31))
+def test_answer_follows_the_generating_rules_and_is_unique(params, seed):
+    item = make(params, seed=seed)
+    rules = item.stimulus["rules"]
+    for attr in ATTRIBUTES:
+        rule = rules[attr]
+        if rule == "irrelevant":
+            # no rule of the space completes it: any value is as good as another
+            assert completions(item, attr) == set()
+            continue
+        assert holds(rule, attr, column(item, attr, item.answer[attr])), (attr, rule)
+        # no other rule consistent with the visible panels predicts another value
+        assert completions(item, attr) == {item.answer[attr]}, (attr, rule)
+    assert FAM.check(item) == []
+    assert FAM.score(item, item.answer, "generate").correct
+    for acc in item.accepted:
+        assert FAM.score(item, acc["answer"], "generate").correct
+
+
+@SETTINGS
+@given(params=params_st, seed=st.integers(0, 2**31))
+def test_no_distractor_satisfies_every_row_rule(params, seed):
+    item = make(params, seed=seed)
+    assert sum(canonical_json(c) == canonical_json(item.answer) for c in item.choices) == 1
+    for choice in item.choices:
+        if choice == item.answer:
+            continue
+        assert any(
+            choice[a] not in completions(item, a)
+            for a in ATTRIBUTES
+            if item.stimulus["rules"][a] != "irrelevant"
+        )
+
+
+def test_rejections_are_counted_and_impossible_levels_fail_clearly():
+    spec = parse_spec(
+        {
+            "seed": 1,
+            "families": {"matrices": {"n": 80, "params": {"n_rules": 3}}},
+        }
+    )
+    bank = generate_bank(spec)
+    rej = bank.meta["generation"]["matrices"]["rejections"]
+    assert sum(rej.values()) > 0
+    assert any("predict different values" in r for r in rej)
+    bad = parse_spec(
+        {"seed": 1, "families": {"matrices": {"n": 1, "params": {"n_rules": 5, "n_irrelevant": 2}}}}
+    )
+    with pytest.raises(GenerationError, match="exceeds the 5 attributes"):
+        generate_bank(bad)
+
+
+# -- distractor schemes -------------------------------------------------------------------------
+@SETTINGS
+@given(seed=st.integers(0, 2**31))
+def test_one_off_distractors_change_one_attribute(seed):
+    item = make(seed=seed, scheme="one-off")
+    for choice in item.choices:
+        diff = [a for a in ATTRIBUTES if choice[a] != item.answer[a]]
+        assert len(diff) in (0, 1)
+
+
+@SETTINGS
+@given(seed=st.integers(0, 2**31), n_choices=st.sampled_from([4, 6, 8, 9, 12]))
+def test_balanced_choices_leave_no_attribute_with_the_answer_as_unique_mode(seed, n_choices):
+    item = make(seed=seed, scheme="balanced", n_choices=n_choices)
+    assert item.distractor_scheme == "balanced"
+    assert len(item.choices) == n_choices
+    assert len({canonical_json(c) for c in item.choices}) == n_choices
+    for attr in ATTRIBUTES:
+        counts = Counter(c[attr] for c in item.choices)
+        top = max(counts.values())
+        # every value of every attribute appears equally often among the choices
+        assert len(set(counts.values())) == 1
+        assert not (
+            counts[item.answer[attr]] == top
+            and list(counts.values()).count(top) == 1
+            and len(counts) > 1
+        )
+    assert FAM.check(item) == []
+
+
+# -- variants ------------------------------------------------------------------------------------
+@SETTINGS
+@given(
+    seed=st.integers(0, 2**31),
+    op=st.sampled_from(sorted(FAM.variant_operators)),
+    scheme=st.sampled_from(["one-off", "balanced"]),
+)
+def test_variants_keep_the_structure(seed, op, scheme):
+    item = make({"n_rules": 3}, seed=seed, scheme=scheme)
+    _, rng = item_rng(seed, "vary")
+    try:
+        var = FAM.vary(item, op, rng)
+    except Rejected:
+        return
+    assert var.variant_of == item.id and var.variant_operator == op and var.id != item.id
+    validate_record(var.to_record())
+    assert FAM.check(var) == []
+    assert var.distractor_scheme == scheme and len(var.choices) == len(item.choices)
+    assert var.stimulus["panels"] != item.stimulus["panels"]
+    kinds = Counter(r.rstrip("+-12") for r in item.stimulus["rules"].values())
+    assert Counter(r.rstrip("+-12") for r in var.stimulus["rules"].values()) == kinds
+    if op == "swap-rows":
+        assert var.stimulus["panels"][0] == item.stimulus["panels"][1]
+        assert var.answer == item.answer
+    if op == "swap-shapes":
+        for a in ATTRIBUTES:
+            if a != "shape":
+                assert var.answer[a] == item.answer[a]
+    for attr in ATTRIBUTES:
+        rule = var.stimulus["rules"][attr]
+        if rule != "irrelevant":
+            assert holds(rule, attr, column(var, attr, var.answer[attr]))
+            assert completions(var, attr) == {var.answer[attr]}
+    assert FAM.score(var, var.answer_choice, "select").correct
+
+
+def test_every_operator_applies_to_some_items():
+    made = Counter()
+    for seed in range(40):
+        item = make({"n_rules": 3}, seed=seed)
+        for op in FAM.variant_operators:
+            try:
+                FAM.vary(item, op, np.random.default_rng(seed))
+                made[op] += 1
+            except Rejected:
+                pass
+    assert all(made[op] >= 10 for op in FAM.variant_operators), made
+
+
+# -- scoring and errors ---------------------------------------------------------------------------
+@SETTINGS
+@given(params=params_st, seed=st.integers(0, 2**31), mode=st.sampled_from(["generate", "select"]))
+def test_classifier_never_calls_a_correct_answer_an_error(params, seed, mode):
+    item = make(params, seed=seed)
+    right = item.answer if mode == "generate" else item.answer_choice
+    sc = FAM.score(item, right, mode)
+    assert sc.correct and sc.error_type is None and sc.label == "intended"
+    for k in range(1, 9):
+        sc = FAM.score(item, k, "select")
+        assert sc.correct == (k == item.answer_choice)
+        if not sc.correct:
+            assert sc.error_type in FAM.error_types
+
+
+@SETTINGS
+@given(params=params_st, seed=st.integers(0, 2**31), mode=st.sampled_from(["generate", "select"]))
+def test_sample_error_is_wrong_with_its_type(params, seed, mode):
+    item = make(params, seed=seed)
+    wrong, etype = FAM.sample_error(item, mode, np.random.default_rng(seed))
+    sc = FAM.score(item, wrong, mode)
+    assert not sc.correct and sc.error_type == etype and etype in FAM.error_types
+
+
+def test_error_types_name_the_broken_attribute():
+    item = make({"n_rules": 3}, seed=5)
+    rules = item.stimulus["rules"]
+    bound = [a for a in ATTRIBUTES if rules[a] != "irrelevant"]
+    left, above = item.stimulus["panels"][2][1], item.stimulus["panels"][1][2]
+    for attr in bound:
+        resp = dict(item.answer)
+        resp[attr] = next(v for v in LEVELS[attr] if v != item.answer[attr])
+        if resp in (left, above):
+            continue
+        assert FAM.score(item, resp, "generate").error_type == f"wrong-{attr}"
+        assert [b["attribute"] for b in FAM.broken_rules(item, resp)] == [attr]
+    two = dict(item.answer)
+    for attr in bound[:2]:
+        two[attr] = next(v for v in LEVELS[attr] if v != item.answer[attr])
+    if two not in (left, above):
+        assert FAM.score(item, two, "generate").error_type == "multiple-wrong"
+    three = dict(item.answer)
+    for attr in bound[:3]:
+        three[attr] = next(v for v in LEVELS[attr] if v != item.answer[attr])
+    if three not in (left, above):
+        assert FAM.score(item, three, "generate").error_type == "other"
+    if left != item.answer:
+        assert FAM.score(item, dict(left), "generate").error_type == "copied-adjacent"
+
+
+def test_one_off_distractors_are_single_attribute_errors():
+    seen = Counter()
+    for seed in range(20):
+        item = make(seed=seed)
+        for k, ch in enumerate(item.choices, start=1):
+            if k == item.answer_choice:
+                continue
+            (attr,) = [a for a in ATTRIBUTES if ch[a] != item.answer[a]]
+            et = FAM.score(item, k, "select").error_type
+            assert et in (f"wrong-{attr}", "copied-adjacent")
+            seen[et] += 1
+    assert len(seen) >= 4
+
+
+def test_generate_responses_are_normalised_and_checked():
+    item = make(seed=2)
+    loose = {
+        k.upper(): (str(v) if isinstance(v, int) else v.upper()) for k, v in item.answer.items()
+    }
+    assert FAM.score(item, loose, "generate").correct
+    with pytest.raises(ResponseError, match="response.shade"):
+        FAM.score(item, {**item.answer, "shade": "purple"}, "generate")
+    with pytest.raises(ResponseError, match="response.count"):
+        FAM.score(item, {k: v for k, v in item.answer.items() if k != "count"}, "generate")
+
+
+# -- parsing free text ----------------------------------------------------------------------------
+def _line(p):
+    return " ".join(f"{a}={p[a]}" for a in ATTRIBUTES)
+
+
+@SETTINGS
+@given(seed=st.integers(0, 2**31), style=st.integers(0, 5))
+def test_parse_text_reads_messy_replies(seed, style):
+    item = make(seed=seed)
+    p = item.answer
+    replies = [
+        _line(p),
+        f"Let me think. Row 3 continues the pattern.\n\nAnswer: {_line(p)}",
+        "```json\n" + canonical_json(p) + "\n```",
+        "The missing panel: **Shape:** "
+        + str(p["shape"]).title()
+        + ", **Size:** "
+        + str(p["size"])
+        + ", **Shade:** "
+        + p["shade"]
+        + ", **Count:** "
+        + str(p["count"])
+        + ", **Position:** "
+        + p["position"]
+        + ".",
+        f"I first guessed shape=circle size=1 but on reflection the answer is\n'{_line(p)}'",
+        '{"shape": "'
+        + p["shape"]
+        + '", "size": "'
+        + str(p["size"])
+        + '", "shade": "'
+        + p["shade"]
+        + '", "count": '
+        + str(p["count"])
+        + ', "position": "'
+        + p["position"]
+        + '"}',
+    ]
+    got = FAM.parse_text(item, replies[style], "generate")
+    assert got == item.answer
+    assert FAM.score(item, got, "generate").correct
+
+
+def test_parse_text_refuses_replies_without_a_panel():
+    item = make(seed=1)
+    for text in ("I am not sure.", "shape=triangle size=2", ""):
+        with pytest.raises(ResponseError, match="no value for"):
+            FAM.parse_text(item, text, "generate")
+    assert FAM.parse_text(item, "The answer is choice 3.", "select") == 3
+    with pytest.raises(ResponseError):
+        FAM.parse_text(item, "none of them", "select")
+
+
+# -- rendering ------------------------------------------------------------------------------------
+@SETTINGS
+@given(params=params_st, seed=st.integers(0, 2**31), mode=st.sampled_from(["generate", "select"]))
+def test_views_are_deterministic_and_answer_free(params, seed, mode):
+    item = make(params, seed=seed)
+    text = render(item, "text", mode)
+    assert text == render(item, "text", mode)
+    view = render(item, "structured", mode)
+    assert canonical_json(view) == canonical_json(render(item, "structured", mode))
+    flat = canonical_json(view)
+    assert "rules" not in view and '"answer"' not in flat and "accepted" not in flat
+    for rule in set(item.stimulus["rules"].values()) - {"fixed", "constant"}:
+        assert rule not in text and rule not in flat
+    assert view["panels"][2][2] is None
+    assert "row 3, column 3: ?" in text
+    if mode == "select":
+        assert view["choices"] == list(item.choices)
+        assert "1-8" in text
+    else:
+        assert "choices" not in view and "shape=<shape>" in text
+
+
+def test_picture_is_deterministic_png():
+    item = make({"n_rules": 3, "max_count": 6}, seed=4)
+    for mode in ("generate", "select"):
+        png = render_picture(item, mode)
+        assert png.startswith(b"\x89PNG") and png == render_picture(item, mode)
+    assert render_picture(item, "select", fmt="svg").lstrip().startswith(b"<?xml")
+
+
+def test_bank_roundtrip(tmp_path):
+    spec = parse_spec(
+        {
+            "seed": 5,
+            "families": {
+                "matrices": {
+                    "n": 12,
+                    "modes": ["generate", "select"],
+                    "distractor_scheme": "balanced",
+                    "params": {"n_rules": [1, 2, 3], "n_irrelevant": [0, 1]},
+                    "design": "crossed",
+                    "variants": {"operators": sorted(FAM.variant_operators), "per_item": 1},
+                }
+            },
+        }
+    )
+    bank = write_bank(generate_bank(spec), tmp_path / "b")
+    again = load_bank(tmp_path / "b")
+    assert again.hash == bank.hash and len(again) == len(bank) > 12
+    assert generate_bank(spec).hash == bank.hash
+    levels = Counter(
+        (it.factors["n_rules"], it.factors["n_irrelevant"]) for it in again if it.variant_of is None
+    )
+    assert set(levels) == set(itertools.product([1, 2, 3], [0, 1]))
+    assert all(FAM.check(it) == [] for it in again)
