@@ -15,6 +15,9 @@ items_app = typer.Typer(help="Generate, inspect, vary and audit item banks.", no
 
 def register(app: typer.Typer) -> None:
     app.add_typer(items_app, name="items")
+    from .items_export import register_items
+
+    register_items(items_app)
 
 
 @items_app.command("generate")

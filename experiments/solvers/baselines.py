@@ -1,0 +1,141 @@
+"""Context-free baselines: ``random`` and ``choices-only``.
+
+Both read the structured view and use nothing but its ``choices`` (select mode), so they give the
+floor a real solver must beat and show how much the choices alone give away.
+
+Generate mode
+-------------
+Neither baseline answers in generate mode: a family-valid random guess would need the item itself
+(the family's ``sample_error`` takes the item, answer included), and a baseline that sees the
+answer is no baseline. Both therefore *abstain*: they return ``Answer(answer=None)`` with an
+explanation, which the machine runner logs as status ``invalid`` with ``correct = false``. Their
+generate-mode accuracy is zero by construction, which is the chance level of an open answer.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+from twofold.study.exceptions import SolverError
+from twofold.study.item import canonical_json
+
+from ._base import Answer, register_solver
+
+__all__ = ["ChoicesOnlySolver", "RandomSolver", "flatten_payload"]
+
+_ABSTAIN = "baseline abstains in generate mode (no answer without the item)"
+
+
+def _choices(view: Any) -> list[Any]:
+    if not isinstance(view, Mapping) or not isinstance(view.get("choices"), list | tuple):
+        got = sorted(view) if isinstance(view, Mapping) else type(view).__name__
+        raise SolverError(
+            f"baseline: field 'choices': got a view without choices ({got}); accepted: a "
+            "structured select-mode view holding a 'choices' list."
+        )
+    return list(view["choices"])
+
+
+class RandomSolver:
+    """Pick a choice uniformly at random (select); abstain (generate).
+
+    Parameters
+    ----------
+    seed : int, default 0
+        Seed of the solver's random stream (one stream per solver, advancing trial by trial).
+    """
+
+    medium = "structured"
+
+    def __init__(self, *, seed: int = 0, **_ignored: Any):
+        self.seed = seed
+        self._rng = np.random.default_rng(seed)
+
+    def solve(self, view: Any, mode: str) -> Answer:
+        if mode != "select":
+            return Answer(None, effort=0.0, effort_unit="choices", explanation=_ABSTAIN)
+        n = len(_choices(view))
+        k = int(self._rng.integers(1, n + 1))
+        return Answer(k, effort=1.0, effort_unit="choices", explanation=f"random pick of {n}")
+
+
+def flatten_payload(value: Any, prefix: str = "") -> dict[str, str]:
+    """Flatten a JSON payload into ``{path: canonical JSON of the leaf}``.
+
+    Objects descend by key, arrays by index; a scalar payload is the single path ``""``.
+
+    Examples
+    --------
+    >>> flatten_payload({"shape": "ring", "size": [1, 2]})
+    {'shape': '"ring"', 'size.0': '1', 'size.1': '2'}
+    """
+    if isinstance(value, Mapping):
+        out: dict[str, str] = {}
+        for k in sorted(value):
+            out.update(flatten_payload(value[k], f"{prefix}.{k}" if prefix else str(k)))
+        return out
+    if isinstance(value, list | tuple):
+        out = {}
+        for i, v in enumerate(value):
+            out.update(flatten_payload(v, f"{prefix}.{i}" if prefix else str(i)))
+        return out
+    return {prefix: canonical_json(value)}
+
+
+class ChoicesOnlySolver:
+    """Pick the choice that agrees most with the attribute-wise majority of all choices.
+
+    Context-blind: the stimulus is never looked at. Each choice's JSON payload is flattened into
+    attribute paths (:func:`flatten_payload`); for each path the most common value among the
+    choices is the majority value; a choice scores one point per path where it holds the majority
+    value, and the best-scoring choice is picked (ties broken at random with ``seed``). Distractor
+    schemes that build each distractor by changing one attribute of the answer leave the answer as
+    the attribute-wise mode, which is what this baseline detects.
+
+    Parameters
+    ----------
+    seed : int, default 0
+        Seed for breaking ties.
+    """
+
+    medium = "structured"
+
+    def __init__(self, *, seed: int = 0, **_ignored: Any):
+        self.seed = seed
+        self._rng = np.random.default_rng(seed)
+
+    def solve(self, view: Any, mode: str) -> Answer:
+        if mode != "select":
+            return Answer(None, effort=0.0, effort_unit="attributes", explanation=_ABSTAIN)
+        flat = [flatten_payload(c) for c in _choices(view)]
+        paths = sorted(set().union(*flat))
+        majority = {}
+        for p in paths:
+            counts = Counter(f[p] for f in flat if p in f)
+            majority[p] = counts.most_common(1)[0][0]
+        scores = [sum(f.get(p) == majority[p] for p in paths) for f in flat]
+        best = max(scores)
+        tied = [k for k, s in enumerate(scores, start=1) if s == best]
+        k = tied[0] if len(tied) == 1 else int(self._rng.choice(tied))
+        return Answer(
+            k,
+            effort=float(len(paths) * len(flat)),
+            effort_unit="attributes",
+            explanation=f"choice {k} holds the majority value on {best} of {len(paths)} attributes",
+        )
+
+
+@register_solver("random", "baseline: a random choice in select mode; abstains in generate mode")
+def _random(**options: Any) -> RandomSolver:
+    return RandomSolver(**options)
+
+
+@register_solver(
+    "choices-only",
+    "baseline: the choice nearest the attribute-wise majority of all choices (context-blind)",
+)
+def _choices_only(**options: Any) -> ChoicesOnlySolver:
+    return ChoicesOnlySolver(**options)
