@@ -89,8 +89,20 @@ Op = tuple  # (name, *args)
 
 
 # -- operations ---------------------------------------------------------------------------------
+_CROSS = ndimage.generate_binary_structure(2, 1)
+_LABELS: dict[bytes, tuple[np.ndarray, int]] = {}
+
+
 def _label(g: Grid) -> tuple[np.ndarray, int]:
-    return ndimage.label(g != 0)
+    """4-connected objects of non-background cells (cached: the search labels grids often)."""
+    key = bytes(g.shape) + g.tobytes()
+    hit = _LABELS.get(key)
+    if hit is None:
+        if len(_LABELS) > 20_000:
+            _LABELS.clear()
+        hit = ndimage.label(g != 0, structure=_CROSS)
+        _LABELS[key] = hit
+    return hit
 
 
 def _translate(g: Grid, d: str) -> Grid:
@@ -115,7 +127,7 @@ def _swap(g: Grid, a: int, b: int) -> Grid:
 
 
 def _fill(g: Grid, c: int) -> Grid:
-    lab, n = ndimage.label(g == 0)
+    lab, n = ndimage.label(g == 0, structure=_CROSS)
     if n == 0:
         return g
     border = np.unique(np.concatenate([lab[0], lab[-1], lab[:, 0], lab[:, -1]]))
@@ -133,44 +145,46 @@ def _keep(g: Grid, largest: bool) -> Grid | None:
     return np.where(np.isin(lab, keep), g, np.int8(0))
 
 
-def _gravity_down(g: Grid) -> Grid:
+def _gravity(g: Grid, d: str) -> Grid:
     lab, n = _label(g)
     if n == 0:
         return g
-    h = g.shape[0]
-    out = g.copy()
-    occ = g != 0
-    objs = ndimage.find_objects(lab)
-    # the objects lowest down move first, so the ones above land on them
-    order = sorted(range(n), key=lambda i: -objs[i][0].stop)
-    for i in order:
-        sl = objs[i]
-        rows, cols = np.nonzero(lab[sl] == i + 1)
-        rows = rows + sl[0].start
-        cols = cols + sl[1].start
-        occ[rows, cols] = False
-        dist = h
-        for c in np.unique(cols):
-            r = rows[cols == c].max()
-            below = occ[r + 1 :, c]
-            hit = np.flatnonzero(below)
-            dist = min(dist, int(hit[0]) if hit.size else below.size)
-        vals = out[rows, cols].copy()
-        if dist:
-            out[rows, cols] = 0
-            out[rows + dist, cols] = vals
-            lab_rows = rows + dist
-        else:
-            lab_rows = rows
-        occ[lab_rows, cols] = True
+    h, w = g.shape
+    dy, dx = _STEP[d]
+    rr, cc = np.nonzero(lab)
+    rows, cols = rr.tolist(), cc.tolist()
+    cells: list[list[tuple[int, int]]] = [[] for _ in range(n)]
+    for r, c, lbl in zip(rows, cols, lab[rr, cc].tolist(), strict=True):
+        cells[lbl - 1].append((r, c))
+    occ = set(zip(rows, cols, strict=True))
+    # the objects furthest along the direction move first, so the others land on them
+    order = sorted(range(n), key=lambda i: -max(r * dy + c * dx for r, c in cells[i]))
+    start = [list(cs) for cs in cells]
+    moving = True
+    while moving:  # another pass when an object moved out of the way of one already tried
+        moving = False
+        for i in order:
+            cs = cells[i]
+            occ.difference_update(cs)
+            k = 0
+            while all(
+                0 <= r + (k + 1) * dy < h
+                and 0 <= c + (k + 1) * dx < w
+                and (r + (k + 1) * dy, c + (k + 1) * dx) not in occ
+                for r, c in cs
+            ):
+                k += 1
+            if k:
+                moving = True
+                cs = cells[i] = [(r + k * dy, c + k * dx) for r, c in cs]
+            occ.update(cs)
+    old_r = [r for cs in start for r, _ in cs]
+    old_c = [c for cs in start for _, c in cs]
+    new_r = [r for cs in cells for r, _ in cs]
+    new_c = [c for cs in cells for _, c in cs]
+    out = np.zeros_like(g)
+    out[new_r, new_c] = g[old_r, old_c]
     return out
-
-
-def _gravity(g: Grid, d: str) -> Grid:
-    k = _TURNS[d]
-    if k == 0:
-        return _gravity_down(g)
-    return np.rot90(_gravity_down(np.rot90(g, k)), -k)
 
 
 def _count_row(g: Grid) -> Grid | None:
@@ -317,14 +331,20 @@ def _expansions(grids: Sequence[Grid], targets: list[int]) -> list[Op]:
 def _final_ops(g: Grid, y: Grid, targets: list[int]) -> list[Op]:
     """Last operations that could turn ``g`` into ``y`` (a cheap filter on shapes and colours)."""
     gs, ys = g.shape, y.shape
+    hg = np.bincount(g.ravel(), minlength=10)
+    hy = np.bincount(y.ravel(), minlength=10)
+    same_hist = bool((hg == hy).all())
     ops: list[Op] = []
     if ys == gs:
-        ops += [("flip_lr",), ("flip_ud",), ("rot180",)]
-        if gs[0] == gs[1]:
-            ops += [("rot90",), ("rot270",), ("transpose",)]
-        ops += [("translate", d) for d in _DIRS]
-        ops += [("keep_largest",), ("keep_smallest",)]
-        ops += [("gravity", d) for d in _DIRS]
+        if same_hist:
+            ops += [("flip_lr",), ("flip_ud",), ("rot180",)]
+            if gs[0] == gs[1]:
+                ops += [("rot90",), ("rot270",), ("transpose",)]
+            ops += [("gravity", d) for d in _DIRS]
+        if (hy[1:] <= hg[1:]).all():
+            ops += [("translate", d) for d in _DIRS]
+            if hy[0] > hg[0]:
+                ops += [("keep_largest",), ("keep_smallest",)]
         # colour operations: the cell-wise colour change must be a function
         pairs = np.unique(g.astype(np.int16) * 10 + y)
         src, dst = pairs // 10, pairs % 10
@@ -345,15 +365,15 @@ def _final_ops(g: Grid, y: Grid, targets: list[int]) -> list[Op]:
             if rest_same and s0.sum() == 2 and 0 in dst[s0]:
                 c = int(dst[s0][dst[s0] != 0][0])
                 ops.append(("fill", c))
-    elif ys == gs[::-1]:
+    elif ys == gs[::-1] and same_hist:
         ops += [("rot90",), ("rot270",), ("transpose",)]
-    if ys[0] <= gs[0] and ys[1] <= gs[1] and ys != gs:
+    if ys[0] <= gs[0] and ys[1] <= gs[1] and ys != gs and (hy[1:] == hg[1:]).all():
         ops.append(("crop",))
     for k in (2, 3):
-        if ys == (gs[0] * k, gs[1] * k):
+        if ys == (gs[0] * k, gs[1] * k) and (hy == hg * k * k).all():
             ops.append(("scale", k))
     for r, c in _TILES:
-        if ys == (gs[0] * r, gs[1] * c):
+        if ys == (gs[0] * r, gs[1] * c) and (hy == hg * r * c).all():
             ops.append(("tile", r, c))
     if ys[0] == 1:
         ops.append(("count_row",))
@@ -523,7 +543,11 @@ def _is_grid(val: Any) -> bool:
         0 < w <= MAX_SIDE
         and len(val) <= MAX_SIDE
         and all(len(r) == w for r in val)
-        and all(isinstance(v, int) and not isinstance(v, bool) and 0 <= v <= 9 for r in val for v in r)
+        and all(
+            isinstance(v, int) and not isinstance(v, bool) and 0 <= v <= 9
+            for r in val
+            for v in r
+        )
     )
 
 
@@ -981,24 +1005,29 @@ def _palette(rng: np.random.Generator, need: list[int]) -> list[int]:
 
 
 def _shape_mask(rng: np.random.Generator, ring: bool, cap: int) -> np.ndarray:
+    u = iter(rng.random(64).tolist())
     if ring:
-        h = int(rng.integers(3, min(5, cap) + 1))
-        w = int(rng.integers(3, min(5, cap) + 1))
+        h = 3 + int(next(u) * (min(5, cap) - 2))
+        w = 3 + int(next(u) * (min(5, cap) - 2))
         m = np.ones((h, w), bool)
         m[1:-1, 1:-1] = False
         return m
-    h = int(rng.integers(1, min(3, cap) + 1))
-    w = int(rng.integers(1, min(3, cap) + 1))
+    h = 1 + int(next(u) * min(3, cap))
+    w = 1 + int(next(u) * min(3, cap))
+    target = 1 + int(next(u) * h * w)
+    cells = [(int(next(u) * h), int(next(u) * w))]
+    have = set(cells)
+    for x in u:  # a random walk that grows the shape cell by cell
+        if len(cells) >= target:
+            break
+        r, c = cells[int(x * len(cells))]
+        dr, dc = _STEP[_DIRS[int(next(u, 0.0) * 4)]]
+        if 0 <= r + dr < h and 0 <= c + dc < w and (r + dr, c + dc) not in have:
+            have.add((r + dr, c + dc))
+            cells.append((r + dr, c + dc))
     m = np.zeros((h, w), bool)
-    m[int(rng.integers(h)), int(rng.integers(w))] = True
-    target = int(rng.integers(1, h * w + 1))
-    while m.sum() < target:
-        r, c = np.nonzero(m)
-        i = int(rng.integers(r.size))
-        dr, dc = _STEP[_DIRS[int(rng.integers(4))]]
-        rr, cc = r[i] + dr, c[i] + dc
-        if 0 <= rr < h and 0 <= cc < w:
-            m[rr, cc] = True
+    rows, cols = zip(*cells, strict=True)
+    m[list(rows), list(cols)] = True
     return m[np.ix_(m.any(axis=1), m.any(axis=0))]
 
 
@@ -1016,8 +1045,8 @@ def _sample_input(
     n = int(rng.integers(max(1, n_objects - 1), n_objects + 2))
     g = np.zeros((h, w), np.int8)
     blocked = np.zeros((h, w), bool)
-    colours = list(need) + [palette[int(rng.integers(len(palette)))] for _ in range(n)]
-    colours = colours[: max(n, len(need))]
+    picks = rng.integers(len(palette), size=n).tolist()
+    colours = [*need, *(palette[k] for k in picks)][: max(n, len(need))]
     placed = 0
     for j, col in enumerate(colours):
         ring = rings and j == 0 and min(h, w) >= 3
@@ -1028,17 +1057,11 @@ def _sample_input(
                 continue
             r = int(rng.integers(h - mh + 1))
             c = int(rng.integers(w - mw + 1))
-            if (blocked[r : r + mh, c : c + mw] & m).any():
+            if blocked[r : r + mh, c : c + mw].any():
                 continue
             g[r : r + mh, c : c + mw][m] = col
-            # keep a one-cell gap around every object so objects stay separate
-            grown = ndimage.binary_dilation(
-                np.pad(m, 1), structure=np.ones((3, 3), bool)
-            )
-            r0, c0 = r - 1, c - 1
-            rs = slice(max(r0, 0), min(r0 + mh + 2, h))
-            cs = slice(max(c0, 0), min(c0 + mw + 2, w))
-            blocked[rs, cs] |= grown[rs.start - r0 : rs.stop - r0, cs.start - c0 : cs.stop - c0]
+            # a one-cell margin around every object's box keeps objects apart
+            blocked[max(r - 1, 0) : r + mh + 1, max(c - 1, 0) : c + mw + 1] = True
             placed += 1
             break
     if placed == 0:
@@ -1248,12 +1271,13 @@ def _classify(item: Item, r: Grid) -> str:
 
 
 # -- drawing ------------------------------------------------------------------------------------
-def _draw_grid(ax: Any, grid: Sequence[Sequence[int]], labels: bool, title: str) -> None:
+def _draw_grid(
+    ax: Any, grid: Sequence[Sequence[int]], labels: bool, title: str, side: int
+) -> None:
     from matplotlib.patches import Rectangle
 
     g = np.asarray(grid)
     h, w = g.shape
-    side = max(h, w)
     ax.set_xlim(0, side)
     ax.set_ylim(side, 0)
     ax.set_aspect("equal")
@@ -1297,25 +1321,30 @@ def _draw(item: Item, mode: str, fig: Figure, *, labels: bool) -> None:
     ]
     rows.append(((st["test"], "test in"), None))
     choices = list(item.choices or ()) if mode == "select" else []
+    # one cell size for the whole picture, so sizes can be compared across grids
+    side = max(
+        max(len(g), len(g[0]))
+        for g in [st["test"], *choices, *(p[k] for p in st["train"] for k in ("input", "output"))]
+    )
     n_rows = len(rows) + (1 if choices else 0)
     cell_h = 0.96 / n_rows
     for i, (left, right) in enumerate(rows):
         y = 1 - (i + 1) * cell_h
         ax = fig.add_axes((0.08, y + 0.01, 0.38, cell_h - 0.03))
-        _draw_grid(ax, left[0], labels, left[1])
+        _draw_grid(ax, left[0], labels, left[1], side)
         ax2 = fig.add_axes((0.54, y + 0.01, 0.38, cell_h - 0.03))
         if right is None:
             ax2.axis("off")
             ax2.text(0.5, 0.5, "?", ha="center", va="center", fontsize=28)
         else:
-            _draw_grid(ax2, right[0], labels, right[1])
+            _draw_grid(ax2, right[0], labels, right[1], side)
         fig.text(0.5, y + cell_h / 2, "\u2192", ha="center", va="center", fontsize=16)
     if choices:
         y = 1 - n_rows * cell_h
         wdt = 0.96 / len(choices)
         for k, ch in enumerate(choices):
             ax = fig.add_axes((0.02 + k * wdt, y + 0.01, wdt - 0.02, cell_h - 0.03))
-            _draw_grid(ax, ch, labels, f"choice {k + 1}")
+            _draw_grid(ax, ch, labels, f"choice {k + 1}", side)
 
 
 register(GridsFamily())
