@@ -1,0 +1,273 @@
+"""Everything a participant session needs before a window opens, checked without PsychoPy.
+
+``[runner]`` table of ``study.toml``::
+
+    [runner]
+    fullscreen = false
+    size = [1280, 1024]                 # window size in pixels (windowed mode)
+    respondent_pattern = '^P\\d{3}$'    # respondent ids: codes, never names
+    consent = "consent.txt"             # the lab's consent text (from the template, replaced)
+    background = "#20242b"              # screen colour
+    end_text = "Thank you. The session is over."
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+from twofold.study import load_study
+from twofold.study._check import check_int, fail
+from twofold.study.exceptions import RunnerError, SpecError
+from twofold.study.forms import Form, form_for, parse_blocks, parse_forms
+from twofold.study.logs import read_sidecar, read_trials
+
+__all__ = [
+    "BANNER",
+    "TEMPLATE_MARK",
+    "RunnerOptions",
+    "SessionPlan",
+    "check_respondent",
+    "parse_runner",
+    "prepare_session",
+    "write_templates",
+]
+
+#: first line of the shipped consent template; the runner refuses to start while it is present
+TEMPLATE_MARK = "TEMPLATE - REPLACE THIS TEXT"
+
+BANNER = (
+    "twofold participant session. Run sessions only with the approval of your institution's "
+    "ethics board and under your local data-protection law. Respondent ids are codes: never "
+    "enter names or contact details."
+)
+
+_RUNNER_KEYS = (
+    "fullscreen",
+    "size",
+    "respondent_pattern",
+    "consent",
+    "background",
+    "end_text",
+    "allow_template_consent",
+)
+
+
+@dataclasses.dataclass(frozen=True)
+class RunnerOptions:
+    """The ``[runner]`` table, checked, with defaults."""
+
+    fullscreen: bool = False
+    size: tuple[int, int] = (1280, 1024)
+    respondent_pattern: str = r"^P\d{3}$"
+    consent: str = "consent.txt"
+    background: str = "#20242b"
+    end_text: str = "Thank you. The session is over.\n\nPlease tell the experimenter."
+    allow_template_consent: bool = False
+
+
+def parse_runner(study: Any) -> RunnerOptions:
+    """Check the study's ``[runner]`` table."""
+    where = study.file.name
+    raw = study.table("runner")
+    if not isinstance(raw, dict):
+        raise fail("runner", raw, "a [runner] table", where=where, error=SpecError)
+    for k in raw:
+        if k not in _RUNNER_KEYS:
+            raise fail(
+                f"runner.{k}",
+                raw[k],
+                "the keys " + ", ".join(_RUNNER_KEYS),
+                where=where,
+                error=SpecError,
+            )
+    d = RunnerOptions()
+    for key in ("fullscreen", "allow_template_consent"):
+        if not isinstance(raw.get(key, False), bool):
+            raise fail(f"runner.{key}", raw[key], "true or false", where=where, error=SpecError)
+    size = raw.get("size", list(d.size))
+    if not isinstance(size, list) or len(size) != 2:
+        raise fail("runner.size", size, "[width, height] in pixels", where=where, error=SpecError)
+    w = check_int("runner.size", size[0], low=640, high=8192, where=where, error=SpecError)
+    h = check_int("runner.size", size[1], low=480, high=8192, where=where, error=SpecError)
+    pattern = raw.get("respondent_pattern", d.respondent_pattern)
+    try:
+        re.compile(pattern)
+    except (re.error, TypeError):
+        raise fail(
+            "runner.respondent_pattern",
+            pattern,
+            "a regular expression",
+            where=where,
+            error=SpecError,
+        ) from None
+    for key in ("consent", "background", "end_text"):
+        if not isinstance(raw.get(key, ""), str):
+            raise fail(f"runner.{key}", raw[key], "a string", where=where, error=SpecError)
+    bg = raw.get("background", d.background)
+    if not re.fullmatch(r"#[0-9a-fA-F]{6}", bg):
+        raise fail("runner.background", bg, "a colour like '#20242b'", where=where, error=SpecError)
+    return RunnerOptions(
+        fullscreen=raw.get("fullscreen", d.fullscreen),
+        size=(w, h),
+        respondent_pattern=pattern,
+        consent=raw.get("consent", d.consent),
+        background=bg,
+        end_text=raw.get("end_text", d.end_text),
+        allow_template_consent=raw.get("allow_template_consent", False),
+    )
+
+
+def check_respondent(respondent: Any, pattern: str) -> str:
+    """Check a respondent id against the study's pattern and return it."""
+    if not isinstance(respondent, str) or not re.fullmatch(pattern, respondent):
+        raise fail(
+            "--respondent",
+            respondent,
+            f"an id matching {pattern} (a code, never a name)",
+            error=SpecError,
+        )
+    return respondent
+
+
+@dataclasses.dataclass
+class SessionPlan:
+    """A checked session, ready to run: study, form, items, texts and the log files."""
+
+    study: Any
+    options: RunnerOptions
+    bank: Any
+    form: Form
+    respondent: str
+    csv_path: Path
+    sidecar_path: Path
+    resume: bool
+    done: set[int]
+    consent_text: str
+    instructions: dict[str, str]
+    previous: dict[str, Any]
+
+    @property
+    def trials(self) -> list[tuple[int, str, str]]:
+        """``(trial index, block name, item id)`` for every test trial of the form."""
+        out, k = [], 0
+        for b in self.form.blocks:
+            for iid in b.items:
+                out.append((k, b.name, iid))
+                k += 1
+        return out
+
+
+def _read(path: Path, field: str, where: str) -> str:
+    try:
+        return path.read_text("utf-8")
+    except (FileNotFoundError, IsADirectoryError):
+        raise fail(
+            field,
+            str(path.name),
+            f"an existing text file (not found: {path}; "
+            "'twofold forms templates' writes one to edit)",
+            where=where,
+            error=SpecError,
+        ) from None
+
+
+def prepare_session(
+    study_file: str | Path, respondent: str, *, resume: bool = False
+) -> SessionPlan:
+    """Check everything a session needs, before any window opens.
+
+    Raises
+    ------
+    SpecError
+        Broken study file, unknown family in a block, missing instructions or consent file,
+        a respondent id not matching the pattern.
+    RunnerError
+        An existing respondent id without ``resume``, or ``resume`` with nothing to resume.
+    """
+    study = load_study(study_file)
+    opts = parse_runner(study)
+    check_respondent(respondent, opts.respondent_pattern)
+    blocks = parse_blocks(study)
+    parse_forms(study)
+    where = study.file.name
+    consent = _read(study.root / opts.consent, "runner.consent", where)
+    if TEMPLATE_MARK in consent and not opts.allow_template_consent:
+        raise SpecError(
+            f"{study.root / opts.consent}: still the shipped consent template; replace it with "
+            "the text your ethics board approved (and delete the TEMPLATE line).",
+            where=str(study.root / opts.consent),
+            field="runner.consent",
+        )
+    instructions = {
+        b.name: _read(study.root / b.instructions, "instructions", where) for b in blocks
+    }
+    folder = study.logs_dir / "human"
+    csv_path, side = folder / f"{respondent}.csv", folder / f"{respondent}.json"
+    previous: dict[str, Any] = {}
+    done: set[int] = set()
+    if side.exists() or csv_path.exists():
+        previous = read_sidecar(side) if side.exists() else {"status": "failed"}
+        status = previous.get("status")
+        if not resume:
+            raise RunnerError(
+                f"respondent {respondent} already has a session ({status}); it is never "
+                "overwritten: continue it with --resume or choose another id."
+            )
+        if status in ("complete", "declined"):
+            raise RunnerError(
+                f"respondent {respondent}: the session is {status}; nothing to resume."
+            )
+        if csv_path.exists():
+            df = read_trials(csv_path)
+            done = {int(t) for t in df["trial"].dropna()}
+    elif resume:
+        raise RunnerError(
+            f"respondent {respondent}: no session to resume; start it without --resume."
+        )
+    bank = study.bank()
+    form = form_for(study, respondent)
+    if form.bank_hash != bank.hash:
+        raise RunnerError(
+            f"form {form.form_id} was built on bank {form.bank_hash[:12]}, the study's bank is "
+            f"{bank.hash[:12]}; rebuild the forms in a new study folder."
+        )
+    return SessionPlan(
+        study=study,
+        options=opts,
+        bank=bank,
+        form=form,
+        respondent=respondent,
+        csv_path=csv_path,
+        sidecar_path=side,
+        resume=resume,
+        done=done,
+        consent_text=consent,
+        instructions=instructions,
+        previous=previous,
+    )
+
+
+def write_templates(study: Any, *, overwrite: bool = False) -> list[Path]:
+    """Copy the consent and instructions templates into the study folder (to be edited).
+
+    Writes the consent file named in ``[runner] consent`` and every block's instructions file
+    that does not exist yet.
+    """
+    opts = parse_runner(study)
+    src = resources.files("twofold.experiments").joinpath("templates")
+    targets = {study.root / opts.consent: "consent.txt"}
+    for b in study.table("blocks") or []:
+        if isinstance(b, dict) and isinstance(b.get("instructions"), str):
+            targets.setdefault(study.root / b["instructions"], "instructions.txt")
+    written = []
+    for path, name in targets.items():
+        if path.exists() and not overwrite:
+            continue
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(src.joinpath(name).read_text("utf-8"), encoding="utf-8")
+        written.append(path)
+    return written

@@ -1,0 +1,436 @@
+"""The participant session loop: consent, instructions, practice, items, breaks, end screen.
+
+PsychoPy is imported inside :func:`run_session` only. Timing: an item's onset is the return
+value of the ``win.flip()`` that first showed it (PsychoPy's core clock); a key response's time
+is the psychtoolbox keyboard queue's own ``tDown`` on the same clock; a mouse press's time is
+PsychoPy's press-event time. Response time = event time - onset. Every frame's flip time is kept
+to count frame intervals and dropped frames per trial and per session.
+
+Every trial row is written and fsynced (TrialLogWriter) before the next item appears; the
+sidecar is rewritten atomically after each trial, so a crash loses at most the trial on screen.
+
+Test hook: when the environment variable ``TWOFOLD_RUNNER_PROBE`` names a file, the runner
+rewrites it (atomically) after every onset flip with the screen name, the trial index, the onset
+on psychtoolbox's GetSecs clock and the click targets in X root-window pixels. The test driver
+and the benchmark use it to know what is on screen; sessions never depend on it.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import os
+import platform
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+from twofold.study import get_family, render
+from twofold.study.exceptions import ResponseError, RunnerError
+
+from .prepare import SessionPlan
+
+__all__ = ["SessionResult", "run_session"]
+
+
+class Aborted(Exception):  # noqa: N818 - control flow
+    """The respondent or experimenter ended the session with ESC (confirmed)."""
+
+
+class _Restart(Exception):  # noqa: N818 - control flow
+    """ESC was pressed but not confirmed: show the item again with a fresh onset."""
+
+
+def _now() -> str:
+    return _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
+
+
+def _version(name: str) -> str | None:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version(name)
+    except PackageNotFoundError:
+        return None
+
+
+class SessionResult:
+    """What a session ended with: status, trials written in this run, where the log is."""
+
+    def __init__(self, status: str, n_written: int, csv_path: Path, sidecar: dict[str, Any]):
+        self.status, self.n_written, self.csv_path, self.sidecar = (
+            status, n_written, csv_path, sidecar)
+
+    def __repr__(self) -> str:
+        return f"SessionResult(status={self.status!r}, n_written={self.n_written})"
+
+
+class _Frames:
+    """Flip times of a stretch of frames; dropped = intervals over 1.5 nominal frames."""
+
+    def __init__(self, period: float | None):
+        self.period = period
+        self.n = 0
+        self.dropped = 0
+        self.max_ms = 0.0
+        self.sum_ms = 0.0
+
+    def add(self, interval: float) -> None:
+        self.n += 1
+        ms = interval * 1000
+        self.sum_ms += ms
+        self.max_ms = max(self.max_ms, ms)
+        if self.period is not None and interval > 1.5 * self.period:
+            self.dropped += 1
+
+    def merge(self, other: _Frames) -> None:
+        self.n += other.n
+        self.dropped += other.dropped
+        self.sum_ms += other.sum_ms
+        self.max_ms = max(self.max_ms, other.max_ms)
+
+    def stats(self) -> dict[str, Any]:
+        return {
+            "n_intervals": self.n,
+            "mean_interval_ms": round(self.sum_ms / self.n, 3) if self.n else None,
+            "max_interval_ms": round(self.max_ms, 3),
+            "dropped": self.dropped,
+        }
+
+
+class _Session:
+    def __init__(self, plan: SessionPlan):
+        self.plan = plan
+        self.probe_path = os.environ.get("TWOFOLD_RUNNER_PROBE")
+        self.probe_seq = 0
+
+    # -- set-up ----------------------------------------------------------------------------
+    def open(self) -> None:
+        os.environ.setdefault("PSYCHOPYNOPACKAGES", "1")
+        try:
+            from psychopy import core, event, logging, visual
+            from psychopy import clock as pclock
+            from psychopy.hardware import keyboard
+        except Exception as err:  # no display, missing library...
+            raise RunnerError(f"PsychoPy could not start: {err}") from err
+        logging.console.setLevel(logging.ERROR)
+        self.core, self.event, self.visual = core, event, visual
+        opts = self.plan.options
+        try:
+            self.win = visual.Window(
+                size=list(opts.size), fullscr=opts.fullscreen, units="pix",
+                color=opts.background, checkTiming=False, allowGUI=not opts.fullscreen,
+                winType="pyglet",
+            )
+        except Exception as err:
+            raise RunnerError(f"could not open the session window: {err}") from err
+        self.win.mouseVisible = True
+        self.kb = keyboard.Keyboard()
+        if self.kb.getBackend() != "ptb":
+            self.win.close()
+            raise RunnerError(
+                f"keyboard backend is {self.kb.getBackend()!r}, not 'ptb'; install the "
+                "psychtoolbox prerequisites (apt-get install libjack-jackd2-0)."
+            )
+        self.mouse = event.Mouse(win=self.win, visible=True)
+        self.origin_abs = pclock.monotonicClock.getLastResetTime()
+        self.size = tuple(int(v) for v in self.win.size)
+        from .screens import Ctx
+
+        self.ctx = Ctx(win=self.win, visual=visual, size=self.size,
+                       background=opts.background)
+        rate = self.win.getActualFrameRate(nIdentical=10, nMaxFrames=120, nWarmUpFrames=10,
+                                           threshold=1)
+        self.refresh_hz = float(rate) if rate else None
+        self.period = 1.0 / self.refresh_hz if self.refresh_hz else None
+        self.start = self.core.getTime()
+        self.frames = _Frames(self.period)
+
+    # -- input -------------------------------------------------------------------------------
+    def keys(self, since: float) -> list[Any]:
+        """New key presses since ``since``: released ones and ones still held, by press time."""
+        got = list(self.kb.getKeys(waitRelease=True)) + list(self.kb.getKeys(waitRelease=False))
+        got.sort(key=lambda k: k.tDown)
+        return [k for k in got if k.tDown >= since]
+
+    def probe(self, screen: str, onset: float, **extra: Any) -> None:
+        if not self.probe_path:
+            return
+        import psychtoolbox as ptb
+
+        loc = (0, 0) if self.plan.options.fullscreen else self.win.winHandle.get_location()
+        w, h = self.size
+        targets = {k: [loc[0] + w / 2 + x, loc[1] + h / 2 - y]
+                   for k, (x, y) in (extra.pop("targets", None) or {}).items()}
+        self.probe_seq += 1
+        data = {"seq": self.probe_seq, "screen": screen, "onset": self.origin_abs + onset,
+                "getsecs": ptb.GetSecs(), "time": time.time(), "targets": targets,
+                "pid": os.getpid(), **extra}
+        tmp = f"{self.probe_path}.tmp"
+        with open(tmp, "w", encoding="utf-8") as fh:
+            json.dump(data, fh)
+        os.replace(tmp, self.probe_path)
+
+    # -- generic screens -----------------------------------------------------------------------
+    def text_screen(self, text: str, keys: tuple[str, ...], name: str, *,
+                    max_s: float | None = None, escape: bool = True) -> str | None:
+        stim = self.visual.TextStim(self.win, text=text, height=24, color="#e8e4da",
+                                    wrapWidth=self.size[0] * 0.8, font="DejaVu Sans",
+                                    units="pix")
+        while True:
+            stim.draw()
+            onset = self.win.flip()
+            self.probe(name, onset)
+            while True:
+                for k in self.keys(onset):
+                    if k.name == "escape" and escape:
+                        self.confirm_abort()
+                        break
+                    if k.name in keys:
+                        return str(k.name)
+                else:
+                    if max_s is not None and self.core.getTime() - onset > max_s:
+                        return None
+                    stim.draw()
+                    self.win.flip()
+                    continue
+                break  # ESC not confirmed: show the screen again
+
+    def confirm_abort(self) -> None:
+        """Ask whether to end the session; raise :class:`Aborted` on yes."""
+        key = self.text_screen(
+            "End the session now?\n\nY = end the session      N = go on", ("y", "n"),
+            "confirm", escape=False,
+        )
+        if key == "y":
+            raise Aborted()
+
+    # -- one item ----------------------------------------------------------------------------
+    def present(self, item: Any, mode: str, *, time_limit: float | None, trial: int | None,
+                block: str) -> tuple[Any, float, float | None, str, str | None, _Frames]:
+        """Show ``item`` until a response or the time limit.
+
+        Returns (response, onset, response time, status, detail, frames) on the core clock.
+        """
+        from .screens import make_screen
+
+        view = render(item, "structured", mode)
+        screen = make_screen(self.ctx, item, view, mode)
+        while True:
+            try:
+                return self._present(screen, time_limit=time_limit, trial=trial, block=block)
+            except _Restart:
+                continue
+
+    def _present(self, screen: Any, *, time_limit: float | None, trial: int | None,
+                 block: str) -> tuple[Any, float, float | None, str, str | None, _Frames]:
+        frames = _Frames(self.period)
+        screen.draw()
+        onset = self.win.flip()
+        self.mouse.clickReset()
+        reset_core = self.event.mouseClick[0].getLastResetTime() - self.origin_abs
+        self.probe("trial", onset, trial=trial, block=block, item=screen.item.id,
+                   targets=screen.targets)
+        last, was_down, answer = onset, False, None
+        while answer is None:
+            for k in self.keys(onset):
+                if k.name == "escape":
+                    self.confirm_abort()
+                    raise _Restart()
+                answer = screen.key(k.name, float(k.tDown))
+                if answer is not None:
+                    break
+            if answer is None:
+                buttons, times = self.mouse.getPressed(getTime=True)
+                if buttons[0] and not was_down:
+                    answer = screen.press(self.mouse.getPos(), reset_core + times[0])
+                    if answer is None:  # the screen may have changed (e.g. a resized grid)
+                        self.probe("trial", onset, trial=trial, block=block,
+                                   item=screen.item.id, targets=screen.targets)
+                elif buttons[0]:
+                    screen.drag(self.mouse.getPos())
+                was_down = bool(buttons[0])
+            if answer is not None:
+                break
+            now = self.core.getTime()
+            if time_limit and now - onset >= time_limit:
+                return None, onset, None, "timeout", None, frames
+            screen.draw()
+            t = self.win.flip()
+            frames.add(t - last)
+            last = t
+        return answer.value, onset, answer.t, "ok", answer.detail, frames
+
+    # -- the session ---------------------------------------------------------------------------
+    def run(self) -> SessionResult:
+        from twofold.study.logs import TrialLogWriter
+
+        plan = self.plan
+        study, form = plan.study, plan.form
+        writer = TrialLogWriter(plan.csv_path, sidecar=plan.sidecar_path)
+        prev = dict(plan.previous)
+        interruptions = list(prev.get("interruptions", []))
+        first_open = min((k for k, _, _ in plan.trials if k not in plan.done), default=None)
+        if plan.resume:
+            interruptions.append({"previous_status": prev.get("status"),
+                                  "resumed": _now(), "next_trial": first_open,
+                                  "trials_on_disk": len(plan.done)})
+        meta = writer.update_sidecar(
+            study=study.name, bank_hash=plan.bank.hash, session=plan.respondent,
+            respondent=plan.respondent, kind="human", synthetic=False, form=form.form_id,
+            form_list=form.list, form_order=form.order, status="running",
+            started=prev.get("started", _now()), ended=None,
+            twofold_version=_version("twofold"), psychopy_version=_version("psychopy-lib"),
+            python_version=sys.version.split()[0], platform=platform.platform(),
+            n_trials=len(plan.done), n_form_trials=len(plan.trials),
+            interruptions=interruptions,
+            screen={"size": list(self.size), "fullscreen": plan.options.fullscreen},
+            refresh_hz=self.refresh_hz, keyboard_backend=self.kb.getBackend(),
+            clock={"name": "psychtoolbox GetSecs", "session_origin": self.origin_abs + self.start},
+            consent=prev.get("consent", False), practice_done=prev.get("practice_done", []),
+        )
+        n_done = len(plan.done)
+        session_frames = _Frames(self.period)
+        prior = prev.get("frames") or {}
+        try:
+            if not meta.get("consent"):
+                key = self.text_screen(plan.consent_text, ("y", "n"), "consent")
+                if key != "y":
+                    writer.close()
+                    plan.csv_path.unlink(missing_ok=True)
+                    meta = writer.update_sidecar(status="declined", ended=_now(), n_trials=0,
+                                                 consent=False)
+                    return SessionResult("declined", 0, plan.csv_path, meta)
+                meta = writer.update_sidecar(consent=True)
+            practice_done = list(meta.get("practice_done", []))
+            trial = 0
+            for bi, block in enumerate(form.blocks):
+                idx = list(range(trial, trial + len(block.items)))
+                trial += len(block.items)
+                todo = [k for k in idx if k not in plan.done]
+                if not todo:
+                    continue
+                if bi > 0 and form.break_between_blocks and len(todo) == len(idx):
+                    self.text_screen("Take a short break.\n\nPress SPACE when you are ready "
+                                     "to go on.", ("space",), "break")
+                self.text_screen(plan.instructions[block.name], ("space",), "instructions")
+                if block.practice and block.name not in practice_done:
+                    self.practice(block)
+                    practice_done.append(block.name)
+                    writer.update_sidecar(practice_done=practice_done)
+                for pos, k in enumerate(idx):
+                    if k in plan.done:
+                        continue
+                    if (form.break_every and pos > 0 and pos % form.break_every == 0
+                            and k != todo[0]):
+                        self.text_screen("Take a short break.\n\nPress SPACE when you are "
+                                         "ready to go on.", ("space",), "break")
+                    row, frames = self.trial(block, k, block.items[pos])
+                    writer.append(row)
+                    n_done += 1
+                    session_frames.merge(frames)
+                    writer.update_sidecar(n_trials=n_done,
+                                          frames=_combine(prior, session_frames.stats()),
+                                          dropped_frames=_combine(prior, session_frames.stats())
+                                          ["dropped"])
+            self.text_screen(plan.options.end_text, ("space",), "end", max_s=30)
+            meta = writer.update_sidecar(status="complete", ended=_now(), n_trials=n_done)
+            return SessionResult("complete", writer.n_written, plan.csv_path, meta)
+        except Aborted:
+            meta = writer.update_sidecar(status="aborted", ended=_now(), n_trials=n_done)
+            return SessionResult("aborted", writer.n_written, plan.csv_path, meta)
+        except BaseException as err:
+            writer.update_sidecar(status="failed", ended=_now(), n_trials=n_done,
+                                  failure=f"{type(err).__name__}: {err}")
+            raise
+        finally:
+            writer.close()
+
+    def trial(self, block: Any, k: int, item_id: str) -> tuple[dict[str, Any], _Frames]:
+        plan = self.plan
+        item = plan.bank[item_id]
+        resp, onset, t_resp, status, detail, frames = self.present(
+            item, block.mode, time_limit=block.time_limit_s, trial=k, block=block.name)
+        correct = error_type = None
+        if status == "ok":
+            try:
+                sc = get_family(item.family).score(item, resp, block.mode)
+                correct, error_type = sc.correct, sc.error_type
+            except ResponseError as err:
+                status, detail = "invalid", str(err)
+        st = frames.stats()
+        frame_note = (f"frames {st['n_intervals']}, max {st['max_interval_ms']} ms, "
+                      f"dropped {st['dropped']}")
+        row = {
+            "study": plan.study.name, "bank_hash": plan.bank.hash,
+            "respondent": plan.respondent, "kind": "human", "synthetic": False,
+            "session": plan.respondent, "form": plan.form.form_id, "block": block.name,
+            "trial": k, "item": item.id, "family": item.family, "mode": block.mode,
+            "response": resp, "correct": correct, "error_type": error_type, "status": status,
+            "rt_ms": None if t_resp is None else (t_resp - onset) * 1000.0,
+            "onset_s": onset - self.start,
+            "response_s": None if t_resp is None else t_resp - self.start,
+            "detail": "; ".join(x for x in (detail, frame_note) if x),
+        }
+        return row, frames
+
+    def practice(self, block: Any) -> None:
+        for pid in block.practice:
+            item = self.plan.bank[pid]
+            resp, _, _, status, _, _ = self.present(item, block.mode,
+                                                    time_limit=block.time_limit_s, trial=None,
+                                                    block=block.name)
+            if not block.feedback:
+                continue
+            if status == "timeout":
+                msg = "Time is up for this one."
+            else:
+                try:
+                    ok = get_family(item.family).score(item, resp, block.mode).correct
+                except ResponseError:
+                    ok = False
+                msg = "Correct." if ok else "Not correct."
+            self.text_screen(msg + "\n\nPress SPACE to go on.", ("space",), "feedback")
+
+    def close(self) -> None:
+        try:
+            self.win.close()
+        except Exception:  # noqa: BLE001 - closing must not hide the real outcome
+            pass
+
+
+def _combine(prior: dict[str, Any], now: dict[str, Any]) -> dict[str, Any]:
+    """Frame statistics over this run and the runs before it (resumed sessions)."""
+    if not prior or not prior.get("n_intervals"):
+        return now
+    n = prior["n_intervals"] + now["n_intervals"]
+    mean = None
+    if n:
+        mean = round(((prior["mean_interval_ms"] or 0) * prior["n_intervals"]
+                      + (now["mean_interval_ms"] or 0) * now["n_intervals"]) / n, 3)
+    return {"n_intervals": n, "mean_interval_ms": mean,
+            "max_interval_ms": max(prior["max_interval_ms"], now["max_interval_ms"]),
+            "dropped": prior["dropped"] + now["dropped"]}
+
+
+def run_session(plan: SessionPlan) -> SessionResult:
+    """Open the window and run a prepared session (see :func:`prepare_session`).
+
+    Returns
+    -------
+    SessionResult
+        ``status`` is ``complete``, ``aborted`` (ESC, confirmed) or ``declined`` (no consent).
+
+    Raises
+    ------
+    RunnerError
+        PsychoPy cannot start or the keyboard has no psychtoolbox backend; the sidecar is
+        marked ``failed`` for errors during the session.
+    """
+    s = _Session(plan)
+    s.open()
+    try:
+        return s.run()
+    finally:
+        s.close()

@@ -1,0 +1,211 @@
+"""An X display for runner tests, and a driver that injects keys and mouse input through XTEST.
+
+``x_display`` (a session-scoped pytest fixture) uses ``$DISPLAY`` when set; otherwise it starts
+``Xvfb :N -screen 0 1280x1024x24`` that dies with the test process (parent-death signal), never
+killed from a pytest hook. Without Xvfb the runner tests skip, except under CI (env ``CI`` set),
+where they fail.
+
+Sessions run in a subprocess (``python -m twofold.experiments.human``) with HOME, MPLCONFIGDIR and
+PSYCHOPYNOPACKAGES set; :class:`Driver` watches the runner's probe file (what is on screen, when
+it appeared, where its click targets are) and injects input with python-xlib XTEST.
+"""
+
+from __future__ import annotations
+
+import ctypes
+import json
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+import pytest
+
+REPO = Path(__file__).resolve().parents[1]
+HINT = "apt-get install xvfb xdotool libjack-jackd2-0"
+_STATE: dict[str, Any] = {}
+
+
+def _pdeathsig() -> None:  # runs in the child between fork and exec
+    libc = ctypes.CDLL("libc.so.6", use_errno=True)
+    libc.prctl(1, signal.SIGTERM)  # PR_SET_PDEATHSIG
+
+
+def start_display() -> str:
+    """The X display to use: ``$DISPLAY``, or a private Xvfb started once per process."""
+    if os.environ.get("DISPLAY"):
+        return os.environ["DISPLAY"]
+    if "display" in _STATE:
+        return _STATE["display"]
+    if shutil.which("Xvfb") is None:
+        msg = f"the runner tests need Xvfb: {HINT}"
+        if os.environ.get("CI"):
+            pytest.fail(msg)
+        pytest.skip(msg)
+    for n in range(90 + os.getpid() % 50, 400):
+        if Path(f"/tmp/.X{n}-lock").exists() or Path(f"/tmp/.X11-unix/X{n}").exists():
+            continue
+        proc = subprocess.Popen(
+            ["Xvfb", f":{n}", "-screen", "0", "1280x1024x24", "-nolisten", "tcp"],
+            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, preexec_fn=_pdeathsig,
+        )
+        for _ in range(100):
+            if Path(f"/tmp/.X11-unix/X{n}").exists():
+                break
+            if proc.poll() is not None:
+                break
+            time.sleep(0.05)
+        if proc.poll() is None:
+            _STATE["display"], _STATE["proc"] = f":{n}", proc
+            return f":{n}"
+    pytest.fail("could not start Xvfb on any display number")
+
+
+@pytest.fixture(scope="session")
+def x_display() -> str:
+    """The DISPLAY string of a usable X server (see module docstring)."""
+    try:
+        import Xlib  # noqa: F401
+    except ImportError:
+        msg = "the runner tests need python-xlib (pip install python-xlib)"
+        if os.environ.get("CI"):
+            pytest.fail(msg)
+        pytest.skip(msg)
+    return start_display()
+
+
+def session_env(display: str, home: Path, probe: Path) -> dict[str, str]:
+    """Environment of a session subprocess: private HOME, no PsychoPy packages, the probe."""
+    env = dict(os.environ)
+    home.mkdir(parents=True, exist_ok=True)
+    env.update({
+        "DISPLAY": display, "HOME": str(home), "MPLCONFIGDIR": str(home / "mpl"),
+        "PSYCHOPYNOPACKAGES": "1", "TWOFOLD_RUNNER_PROBE": str(probe),
+        "PYTHONPATH": os.pathsep.join(filter(None, [str(REPO / "tests"),
+                                                    env.get("PYTHONPATH", "")])),
+    })
+    return env
+
+
+class Driver:
+    """Start a session process and play the respondent: keys and clicks via XTEST."""
+
+    def __init__(self, display: str, study: Path, respondent: str, tmp: Path, *,
+                 resume: bool = False, imports: tuple[str, ...] = ()):
+        from Xlib import display as xdisplay
+
+        self.probe_path = tmp / f"probe-{respondent}-{time.monotonic_ns()}.json"
+        env = session_env(display, tmp / "home", self.probe_path)
+        cmd = [sys.executable, "-m", "twofold.experiments.human", str(study),
+               "--respondent", respondent]
+        if resume:
+            cmd.append("--resume")
+        for m in imports:
+            cmd += ["--import", m]
+        self.proc = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE,
+                                     stderr=subprocess.PIPE, text=True)
+        self.x = xdisplay.Display(display)
+        self.seq = 0
+        self.state: dict[str, Any] = {}
+
+    # -- what is on screen -------------------------------------------------------------------
+    def wait(self, screen: str | None = None, timeout: float = 30.0) -> dict[str, Any]:
+        """Wait for the next screen onset (optionally of a given kind) and return its probe."""
+        t0 = time.monotonic()
+        while time.monotonic() - t0 < timeout:
+            if self.proc.poll() is not None:
+                raise AssertionError(f"session ended (rc {self.proc.returncode}) while waiting "
+                                     f"for {screen}: {self.proc.stderr.read()}")
+            try:
+                data = json.loads(self.probe_path.read_text("utf-8"))
+            except (FileNotFoundError, json.JSONDecodeError):
+                data = None
+            if data and data["seq"] > self.seq:
+                self.seq = data["seq"]
+                self.state = data
+                if screen is None or data["screen"] == screen:
+                    return data
+            time.sleep(0.002)
+        raise AssertionError(f"no {screen or 'new'} screen within {timeout} s "
+                             f"(last: {self.state.get('screen')})")
+
+    def refresh(self) -> dict[str, Any]:
+        """Re-read the probe of the current screen (targets may move, e.g. a resized grid)."""
+        data = json.loads(self.probe_path.read_text("utf-8"))
+        self.seq, self.state = data["seq"], data
+        return data
+
+    # -- input ---------------------------------------------------------------------------------
+    def key(self, name: str, hold: float = 0.02) -> float:
+        """Press and release a key (X keysym name); return the press time (time.time())."""
+        from Xlib import XK, X
+        from Xlib.ext import xtest
+
+        code = self.x.keysym_to_keycode(XK.string_to_keysym(name))
+        assert code, f"no keycode for {name!r}"
+        t = time.time()
+        xtest.fake_input(self.x, X.KeyPress, code)
+        self.x.sync()
+        time.sleep(hold)
+        xtest.fake_input(self.x, X.KeyRelease, code)
+        self.x.sync()
+        time.sleep(0.005)
+        return t
+
+    def type(self, text: str) -> None:
+        for ch in text:
+            self.key(ch if ch.isalnum() else {" ": "space", "-": "minus"}[ch])
+
+    def move(self, xy: tuple[float, float]) -> None:
+        from Xlib import X
+        from Xlib.ext import xtest
+
+        xtest.fake_input(self.x, X.MotionNotify, x=int(round(xy[0])), y=int(round(xy[1])))
+        self.x.sync()
+        time.sleep(0.02)
+
+    def click(self, target: str | tuple[float, float], hold: float = 0.05) -> float:
+        """Move to a named target of the current screen (or root x, y) and click."""
+        from Xlib import X
+        from Xlib.ext import xtest
+
+        xy = self.state["targets"][target] if isinstance(target, str) else target
+        self.move(xy)
+        t = time.time()
+        xtest.fake_input(self.x, X.ButtonPress, 1)
+        self.x.sync()
+        time.sleep(hold)
+        xtest.fake_input(self.x, X.ButtonRelease, 1)
+        self.x.sync()
+        time.sleep(0.03)
+        return t
+
+    def drag(self, points: list[tuple[float, float]]) -> None:
+        from Xlib import X
+        from Xlib.ext import xtest
+
+        self.move(points[0])
+        xtest.fake_input(self.x, X.ButtonPress, 1)
+        self.x.sync()
+        time.sleep(0.04)
+        for p in points[1:]:
+            self.move(p)
+        xtest.fake_input(self.x, X.ButtonRelease, 1)
+        self.x.sync()
+        time.sleep(0.03)
+
+    def finish(self, timeout: float = 30.0) -> tuple[int, str]:
+        try:
+            _, err = self.proc.communicate(timeout=timeout)
+        finally:
+            self.x.close()
+        return self.proc.returncode, err
+
+    def kill(self) -> None:
+        self.proc.send_signal(signal.SIGKILL)
+        self.proc.wait()
+        self.x.close()
