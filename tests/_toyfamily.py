@@ -168,3 +168,70 @@ class ToySolver:
 def null_solve(view: Any, mode: str) -> int:
     """A solver doing nothing (for overhead measurements): always answers 1."""
     return 1
+
+
+def make_study(root: Any, solvers: str = "", *, n: int = 12, name: str = "toystudy") -> Any:
+    """Write a toy study.toml (with ``solvers``, TOML text) under ``root``; return the Study."""
+    from pathlib import Path
+
+    from twofold.study import load_study
+
+    root = Path(root)
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "study.toml").write_text(
+        f"""[study]
+name = "{name}"
+seed = 1
+[bank]
+path = "bank"
+[bank.spec]
+seed = 3
+[bank.spec.families.toy]
+n = {n}
+modes = ["generate", "select"]
+"""
+        + solvers,
+        encoding="utf-8",
+    )
+    return load_study(root)
+
+
+class StopAfter:
+    """Solves toy items; raises KeyboardInterrupt (a simulated Ctrl-C) on the ``stop``-th call
+    counted over all instances since ``StopAfter.calls`` was last reset to 0."""
+
+    medium = "structured"
+    calls = 0
+
+    def __init__(self, *, seed: int = 0, stop: int = 5, sleep: float = 0.0):
+        self.stop, self.sleep = stop, sleep
+
+    def solve(self, view: Any, mode: str) -> Answer:
+        import time
+
+        StopAfter.calls += 1
+        if StopAfter.calls == self.stop:
+            raise KeyboardInterrupt
+        time.sleep(self.sleep)
+        return solve_structured(view, mode)
+
+
+class Faulty:
+    """Raises on every third call, answers garbage on every fifth, sleeps when asked."""
+
+    medium = "structured"
+
+    def __init__(self, *, seed: int = 0, sleep_every: int = 0, sleep: float = 0.0):
+        self.calls, self.sleep_every, self.sleep = 0, sleep_every, sleep
+
+    def solve(self, view: Any, mode: str) -> Any:
+        import time
+
+        self.calls += 1
+        if self.calls % 3 == 0:
+            raise RuntimeError("boom")
+        if self.calls % 5 == 0:
+            return {"answer": "not a number"}
+        if self.sleep_every and self.calls % self.sleep_every == 0:
+            time.sleep(self.sleep)
+        return solve_structured(view, mode)
