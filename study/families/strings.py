@@ -1351,14 +1351,21 @@ def _parse_reply(text: str, symbols: str, stimulus: Mapping[str, Any]) -> str | 
             got = _clean(line, symbols)
             if got is not None:
                 return got
-    # 3. the last symbol run that is not one of the strings shown, sharing a symbol with the target
+    # 3. the last run of symbols in prose that could be an answer to this item: two or more
+    # symbols, each within two places of a symbol of the target or the changed string (so
+    # ordinary words are not taken for answers), preferring runs other than the strings shown
     shown = {stimulus["source"], stimulus["changed"], stimulus["target"]}
-    target_syms = set(stimulus["target"])
+    n = len(symbols)
+    near = {
+        symbols[(symbols.index(c) + k) % n]
+        for c in stimulus["target"] + stimulus["changed"]
+        for k in (-2, -1, 0, 1, 2)
+    }
     cands = []
     for line in text.splitlines():
         for tok in re.split(r"\s+|->|→|=>", line):
             c = _clean(tok, symbols)
-            if c is not None and set(c) & target_syms:
+            if c is not None and len(c) >= 2 and set(c) <= near:
                 cands.append(c)
     fresh = [c for c in cands if c not in shown]
     if fresh:

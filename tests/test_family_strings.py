@@ -1,0 +1,497 @@
+"""Tests of the ``strings`` family: grammar, generation, validity, variants, scoring, rendering."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from twofold.study import generate_bank, load_bank, parse_spec, write_bank
+from twofold.study.exceptions import ResponseError
+from twofold.study.families import Rejected, get_family
+from twofold.study.families.strings import (
+    ALPHABETS,
+    RULES,
+    _Analysis,
+    apply_program,
+    consistent_programs,
+    description_length,
+    literal_edit,
+)
+from twofold.study.generate import item_rng
+from twofold.study.item import validate_record
+from twofold.study.render import render, render_picture
+
+FAM = get_family("strings")
+LETTERS = ALPHABETS["letters"]
+
+PARAMS = st.fixed_dictionaries(
+    {
+        "rule": st.sampled_from(["any", *RULES]),
+        "length": st.integers(3, 7),
+        "grouping": st.sampled_from(["none", "pairs", "mixed"]),
+        "direction": st.sampled_from(["up", "down"]),
+        "wrap": st.booleans(),
+        "alphabet": st.sampled_from(list(ALPHABETS)),
+    }
+)
+MODES = st.sampled_from([("generate",), ("select",), ("generate", "select")])
+FAST = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+
+def enc(text: str, symbols: str = LETTERS) -> tuple[int, ...]:
+    return tuple(symbols.index(c) for c in text)
+
+
+def dec(seq, symbols: str = LETTERS) -> str:
+    return "".join(symbols[v] for v in seq)
+
+
+def make(params, seed, modes=("generate",), scheme="near-miss", n_choices=4):
+    """The first valid item for ``params`` from ``seed`` (retrying like the bank does)."""
+    for attempt in range(50):
+        s, rng = item_rng(seed, "test", attempt)
+        try:
+            return FAM.generate(
+                params,
+                rng,
+                seed=s,
+                modes=list(modes),
+                distractor_scheme=scheme if "select" in modes else None,
+                n_choices=n_choices,
+            )
+        except Rejected:
+            continue
+    pytest.skip(f"no item for {params}")
+
+
+# -- the grammar ------------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("rule", "target", "expected"),
+    [
+        ("succ-last", "ijk", "ijl"),
+        ("succ-last", "iijjkk", "iijjll"),
+        ("pred-first", "abc", "zbc"),  # circular order
+        ("shift-all", "xyz", "yza"),
+        ("double-last", "ijk", "ijkk"),
+        ("extend", "kji", "kjih"),
+        ("extend", "xyz", "xyza"),
+        ("drop-first", "aabbcc", "bbcc"),
+        ("swap-ends", "ijkl", "ljki"),
+        ("reverse", "abbc", "cbba"),
+    ],
+)
+def test_rules_apply_as_documented(rule, target, expected):
+    assert dec(apply_program(RULES[rule], enc(target), 26)) == expected
+
+
+def test_symbol_level_differs_from_group_level_on_groups():
+    prog = RULES["succ-last"]
+    sym = ("map", "symbol", ("last",), ("shift", 1))
+    assert dec(apply_program(prog, enc("aabb"), 26)) == "aacc"
+    assert dec(apply_program(sym, enc("aabb"), 26)) == "aabc"
+
+
+def test_consistent_programs_include_the_rule_and_the_literal_readings():
+    progs = consistent_programs(enc("abc"), enc("abd"), 26)
+    assert RULES["succ-last"] in progs
+    assert ("map", "group", ("last",), ("set", 3)) in progs  # "the last becomes d"
+    assert ("map", "group", ("value", 2), ("shift", 1)) in progs  # "every c moves on"
+    assert ("map", "group", ("first",), ("shift", 1)) not in progs
+    # every listed description really turns the source into the change
+    for prog in progs:
+        assert apply_program(prog, enc("abc"), 26) == enc("abd")
+
+
+def test_shortest_description_is_the_intended_one():
+    progs = consistent_programs(enc("abc"), enc("abd"), 26)
+    best = min(progs, key=lambda p: description_length(p, 26))
+    assert best == RULES["succ-last"]
+    # a literal symbol costs 1 + log2(alphabet size) bits
+    lit = ("map", "group", ("last",), ("set", 3))
+    assert description_length(lit, 26) == pytest.approx(1 + 0 + 1 + 1 + np.log2(26))
+
+
+def test_analysis_rejects_a_reading_that_is_not_the_simplest():
+    # intended "the third group moves on" on a longer target; "the last moves on" is shorter
+    intended = ("map", "group", ("pos", 3), ("shift", 1))
+    an = _Analysis(intended, enc("abc"), enc("abd"), enc("ijkl"), 26, LETTERS)
+    assert dec(an.answer) == "ijll"
+    assert {dec(r[2]) for r in an.simpler} == {"ijkm"}
+    an2 = _Analysis(RULES["succ-last"], enc("abc"), enc("abd"), enc("ijkl"), 26, LETTERS)
+    assert an2.simpler == []
+
+
+def test_analysis_records_the_symbol_level_alternative_with_a_label():
+    an = _Analysis(RULES["succ-last"], enc("abbc"), enc("abbd"), enc("iijkk"), 26, LETTERS)
+    assert dec(an.answer) == "iijll"
+    labels = {dec(k): v for k, v in an.accepted.items()}
+    assert set(labels) == {"iijkl"}
+    assert labels["iijkl"].startswith("symbol-level")
+
+
+@pytest.mark.parametrize(
+    ("src", "chg", "tgt", "expected"),
+    [
+        ("abc", "abd", "ijk", "ijd"),
+        ("abc", "zbc", "ijk", "zjk"),
+        ("abc", "abcd", "ijk", "ijkd"),
+        ("abc", "cba", "ijk", "cba"),
+    ],
+)
+def test_literal_edit_copies_symbols_at_the_same_place(src, chg, tgt, expected):
+    assert dec(literal_edit(enc(src), enc(chg), enc(tgt))) == expected
+
+
+# -- generation -------------------------------------------------------------------------------
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 2**32), modes=MODES)
+def test_generation_is_deterministic_and_schema_valid(params, seed, modes):
+    a = make(params, seed, modes)
+    b = make(params, seed, modes)
+    assert a.to_json() == b.to_json()
+    validate_record(json.loads(a.to_json()))
+    assert a.id.startswith("str-")
+    assert set(FAM.factors) <= set(a.factors)
+    assert len(FAM.factors) >= 4
+
+
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 2**32))
+def test_answer_follows_the_generating_rule(params, seed):
+    item = make(params, seed)
+    st_ = item.stimulus
+    symbols = st_["symbols"]
+    n = len(symbols)
+    prog = RULES[item.factors["rule"]]
+    assert apply_program(prog, enc(st_["source"], symbols), n) == enc(st_["changed"], symbols)
+    assert dec(apply_program(prog, enc(st_["target"], symbols), n), symbols) == item.answer
+    assert item.answer != st_["target"]
+    assert FAM.check(item) == []
+    if params["rule"] != "any":
+        assert item.factors["rule"] == params["rule"]
+
+
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 2**32))
+def test_accepted_answers_are_other_short_readings_and_score_correct(params, seed):
+    item = make(params, seed)
+    answers = [a["answer"] for a in item.accepted]
+    assert item.answer not in answers
+    assert len(set(answers)) == len(answers)
+    assert item.factors["n_readings"] == 1 + len(answers)
+    for acc in item.accepted:
+        assert acc["label"].split(":")[0] in {
+            "symbol-level",
+            "group-level",
+            "counted-from-start",
+            "counted-from-end",
+            "other-rule",
+        }
+        score = FAM.score(item, acc["answer"], "generate")
+        assert score.correct and score.error_type is None and score.label == acc["label"]
+    assert FAM.score(item, item.answer, "generate").label == "intended"
+
+
+def test_check_finds_a_tampered_answer():
+    item = make({}, 3)
+    bad = item.replace(prefix="str", answer=item.stimulus["target"])
+    assert "answer is not the rule applied to the target" in FAM.check(bad)
+
+
+def test_wrap_factor_places_the_target_at_the_end_of_the_order():
+    for seed in range(10):
+        item = make({"rule": "succ-last", "wrap": True}, seed)
+        assert item.stimulus["target"][-1] == "z"
+        assert item.answer[-1] == "a"
+        plain = make({"rule": "succ-last", "wrap": False}, seed)
+        assert plain.stimulus["target"][-1] != "z"
+
+
+def test_generator_rejects_impossible_levels_with_a_reason():
+    # ten groups of digits cannot give a target distinct from the source without wrapping
+    reasons = set()
+    for i in range(10):
+        _, rng = item_rng(1, "imp", i)
+        with pytest.raises(Rejected) as err:
+            FAM.generate(
+                {"length": 10, "alphabet": "digits"},
+                rng,
+                seed=i,
+                modes=["generate"],
+                distractor_scheme=None,
+                n_choices=4,
+            )
+        reasons.add(err.value.reason)
+    assert reasons <= {
+        "source does not fit the symbol order",
+        "no target position with the requested wrap",
+    }
+
+
+# -- select mode ------------------------------------------------------------------------------
+@FAST
+@given(
+    params=PARAMS,
+    seed=st.integers(0, 2**32),
+    scheme=st.sampled_from(list(FAM.distractor_schemes)),
+    k=st.integers(2, 8),
+)
+def test_choices_hold_the_answer_once_and_no_accepted_answer(params, seed, scheme, k):
+    item = make(params, seed, ("select",), scheme, k)
+    assert len(item.choices) == k
+    assert item.choices.count(item.answer) == 1
+    assert len(set(item.choices)) == k
+    assert not {a["answer"] for a in item.accepted} & set(item.choices)
+    assert item.distractor_scheme == scheme
+    assert FAM.score(item, item.answer_choice, "select").correct
+
+
+def test_near_miss_distractors_come_from_named_error_types():
+    types = []
+    for seed in range(30):
+        item = make({}, seed, ("select",), "near-miss", 4)
+        for k in range(1, 5):
+            if k != item.answer_choice:
+                types.append(FAM.score(item, k, "select").error_type)
+    assert set(types) >= {"literal", "no-change", "wrong-position"}
+    assert types.count("other") < len(types) / 4
+
+
+def test_default_choices_is_four():
+    assert FAM.default_choices == 4
+    spec = parse_spec({"seed": 1, "families": {"strings": {"n": 2, "modes": ["select"]}}})
+    assert spec.families[0].n_choices == 4
+
+
+# -- variants ---------------------------------------------------------------------------------
+@FAST
+@given(
+    params=PARAMS,
+    seed=st.integers(0, 2**32),
+    op=st.sampled_from(list(FAM.variant_operators)),
+)
+def test_variants_keep_the_rule_and_recompute_the_answer(params, seed, op):
+    item = make(params, seed, ("generate", "select"))
+    _, rng = item_rng(seed, "vary", op)
+    try:
+        var = FAM.vary(item, op, rng)
+    except Rejected:
+        return
+    assert var.variant_of == item.id and var.variant_operator == op
+    assert var.id != item.id
+    assert var.factors["rule"] == item.factors["rule"]
+    assert var.factors["grouping"] == item.factors["grouping"]
+    assert var.factors["wrap"] == item.factors["wrap"]
+    assert FAM.check(var) == []
+    validate_record(json.loads(var.to_json()))
+    if op == "other-alphabet":
+        assert var.factors["alphabet"] != item.factors["alphabet"]
+    elif op == "reverse-direction":
+        assert var.factors["direction"] != item.factors["direction"]
+    elif op == "longer":
+        assert var.factors["length"] > item.factors["length"]
+    else:
+        assert var.stimulus["symbols"] == item.stimulus["symbols"]
+
+
+def test_variant_operators_usually_succeed():
+    made = 0
+    for seed in range(10):
+        item = make({}, seed)
+        for op in FAM.variant_operators:
+            _, rng = item_rng(seed, op)
+            try:
+                FAM.vary(item, op, rng)
+                made += 1
+            except Rejected:
+                pass
+    assert made >= 36
+
+
+# -- scoring and errors -----------------------------------------------------------------------
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 2**32), modes=MODES)
+def test_classifier_never_calls_a_correct_answer_an_error(params, seed, modes):
+    item = make(params, seed, modes)
+    for mode in item.modes:
+        right = item.answer_choice if mode == "select" else item.answer
+        sc = FAM.score(item, right, mode)
+        assert sc.correct and sc.error_type is None
+
+
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 2**32), modes=MODES, rseed=st.integers(0, 1000))
+def test_sample_error_is_wrong_with_the_stated_type(params, seed, modes, rseed):
+    item = make(params, seed, modes)
+    for mode in item.modes:
+        wrong, etype = FAM.sample_error(item, mode, np.random.default_rng(rseed))
+        sc = FAM.score(item, wrong, mode)
+        assert not sc.correct
+        assert sc.error_type == etype
+        assert etype in FAM.error_types
+
+
+def test_error_types_on_a_known_item():
+    item = make({"rule": "succ-last"}, 0)
+    t = item.stimulus["target"]
+    nxt = LETTERS[(LETTERS.index(t[-1]) + 1) % 26]
+    prv = LETTERS[(LETTERS.index(t[-1]) - 1) % 26]
+    assert item.answer == t[:-1] + nxt
+    changed_last = item.stimulus["changed"][-1]
+
+    def etype(resp):
+        return FAM.score(item, resp, "generate").error_type
+
+    assert etype(t) == "no-change"
+    assert etype(t[:-1] + changed_last) == "literal"
+    first = LETTERS[(LETTERS.index(t[0]) + 1) % 26]
+    assert etype(first + t[1:]) == "wrong-position"
+    assert etype(t[:-1] + prv) == "wrong-direction"
+    assert etype("q" * 7) == "other"
+
+
+def test_error_types_for_groups():
+    item = make({"rule": "shift-all", "grouping": "pairs"}, 1)
+    t, a = item.stimulus["target"], item.answer
+
+    def etype(resp):
+        return FAM.score(item, resp, "generate").error_type
+
+    assert etype(a[:2] + t[2:]) == "partial"  # only the first pair moved on
+    item2 = make({"rule": "succ-last", "grouping": "pairs"}, 1)
+    t2 = item2.stimulus["target"]
+    nxt = LETTERS[(LETTERS.index(t2[-1]) + 1) % 26]
+    assert FAM.score(item2, t2[:-1] + nxt, "generate").error_type == "wrong-grouping"
+
+
+def test_error_types_are_documented():
+    assert len(FAM.error_types) >= 5 and "other" in FAM.error_types
+    assert all(v.strip() for v in FAM.error_types.values())
+
+
+# -- responses --------------------------------------------------------------------------------
+def _abc_item():
+    for seed in range(100):
+        item = make({"rule": "succ-last"}, seed)
+        if not item.accepted:
+            return item
+    raise AssertionError("no item")
+
+
+@pytest.mark.parametrize(
+    "template",
+    [
+        "{a}",
+        "Answer: {a}",
+        "answer: {A}",
+        "The answer is {a}.",
+        "I think {t} becomes {a}, because the last letter moves on.\nAnswer: {a}",
+        "```\n{a}\n```",
+        "Let me think. The source changes its last symbol. So **{a}**.",
+        'The changed string is "{a}".',
+        "{t} -> {a}",
+        "Answer: {spaced}",
+        "Final answer: `{a}`",
+    ],
+)
+def test_parse_text_reads_messy_replies(template):
+    item = _abc_item()
+    a, t = item.answer, item.stimulus["target"]
+    text = template.format(a=a, A=a.upper(), t=t, spaced=" ".join(a))
+    assert FAM.parse_text(item, text, "generate") == a
+
+
+def test_parse_text_reads_glyph_replies():
+    item = make({"alphabet": "glyphs", "rule": "succ-last"}, 2)
+    a = item.answer
+    assert FAM.parse_text(item, "Answer: " + " ".join(a), "generate") == a
+    assert FAM.parse_text(item, f"It becomes {a} I believe", "generate") == a
+
+
+def test_parse_text_select_and_failures():
+    item = make({}, 4, ("select",))
+    assert FAM.parse_text(item, "I pick option 3.\nAnswer: 2", "select") == 2
+    gen = _abc_item()
+    with pytest.raises(ResponseError, match="no string of symbols"):
+        FAM.parse_text(gen, "I cannot tell 123!", "generate")
+
+
+def test_normalize_accepts_spacing_and_case_and_rejects_foreign_symbols():
+    item = _abc_item()
+    a = item.answer
+    assert FAM.score(item, " ".join(a.upper()), "generate").correct
+    assert FAM.score(item, list(a), "generate").correct
+    with pytest.raises(ResponseError, match="field 'response'"):
+        FAM.score(item, a + "7", "generate")
+    with pytest.raises(ResponseError, match="field 'response'"):
+        FAM.score(item, 12, "generate")
+
+
+# -- rendering --------------------------------------------------------------------------------
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 2**32), modes=MODES)
+def test_views_are_deterministic_and_answer_free(params, seed, modes):
+    item = make(params, seed, modes)
+    other = item.replace(prefix="str", answer="zz" if item.answer != "zz" else "yy", accepted=[])
+    for mode in item.modes:
+        text = render(item, "text", mode)
+        view = render(item, "structured", mode)
+        assert text == render(item, "text", mode)
+        assert json.dumps(view) == json.dumps(render(item, "structured", mode))
+        # neither view depends on the answer or the accepted answers
+        assert text == render(other, "text", mode)
+        view2 = render(other, "structured", mode)
+        view2.pop("item"), view.pop("item")
+        assert view == view2
+        assert "answer" not in view and "accepted" not in view and "rule" not in json.dumps(view)
+        assert " ".join(item.stimulus["symbols"]) in text  # the order is shown
+        assert view["symbol_order"] == list(item.stimulus["symbols"])
+        if mode == "select":
+            assert view["choices"] == list(item.choices)
+            assert re.search(r"Answer: <number>", text)
+        else:
+            assert re.search(r"Answer: <string>", text)
+
+
+def test_pictures_are_deterministic_pngs():
+    for modes in (("generate",), ("select",)):
+        item = make({"alphabet": "glyphs", "grouping": "mixed", "length": 6}, 1, modes)
+        png = render_picture(item)
+        assert png[:8] == b"\x89PNG\r\n\x1a\n"
+        assert png == render_picture(item)
+        svg = render_picture(item, fmt="svg")
+        assert svg == render_picture(item, fmt="svg")
+
+
+# -- banks ------------------------------------------------------------------------------------
+def test_bank_generates_writes_and_loads(tmp_path):
+    spec = parse_spec(
+        {
+            "seed": 11,
+            "families": {
+                "strings": {
+                    "n": 24,
+                    "modes": ["generate", "select"],
+                    "design": "crossed",
+                    "params": {"grouping": ["none", "mixed"], "wrap": [False, True]},
+                    "variants": {"operators": list(FAM.variant_operators), "per_item": 1},
+                }
+            },
+        }
+    )
+    bank = generate_bank(spec)
+    again_bank = generate_bank(spec)
+    assert bank.hash == again_bank.hash
+    written = write_bank(bank, tmp_path / "bank")
+    loaded = load_bank(tmp_path / "bank")
+    assert loaded.hash == written.hash
+    parents = [it for it in loaded if it.variant_of is None]
+    assert len(parents) == 24
+    assert sum(it.variant_of is not None for it in loaded) >= 20
+    assert {it.factors["grouping"] for it in parents} == {"none", "mixed"}
+    for it in loaded:
+        assert FAM.check(it) == []
