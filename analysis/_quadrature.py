@@ -23,6 +23,7 @@ from scipy.special import expit
 __all__ = [
     "EMOutcome",
     "Design",
+    "chunks",
     "louis_information",
     "mle_theta",
     "normal_quadrature",
@@ -67,6 +68,9 @@ def posterior(
         L += logw
     mx = L.max(axis=1, keepdims=True)
     L -= mx
+    # floor far below machine precision: exp() of the floor is a normal number, not a subnormal
+    # (subnormal weights make the next matrix products many times slower)
+    np.maximum(L, -700.0, out=L)
     np.exp(L, out=L)
     s = L.sum(axis=1, keepdims=True)
     L /= s
@@ -262,6 +266,12 @@ def score_vector(
     return np.concatenate([res @ nodes, res.sum(axis=1)])
 
 
+def chunks(n_rows: int, n_cols: int, budget: int = 2_000_000) -> list[slice]:
+    """Row slices whose blocks hold at most about ``budget`` cells (bounds peak memory)."""
+    step = max(1, budget // max(n_cols, 1))
+    return [slice(i, min(i + step, n_rows)) for i in range(0, n_rows, step)]
+
+
 def louis_information(
     X: np.ndarray, M: np.ndarray | None, W: np.ndarray, a: np.ndarray, d: np.ndarray,
     nodes: np.ndarray,
@@ -271,38 +281,44 @@ def louis_information(
     Louis (1982): ``I = E[-d2 l] - E[s s^T] + sum_i g_i g_i^T`` with expectations over each
     person's posterior on the quadrature grid. The person-by-node outer products are contracted
     through matrix products, so the cost is a few (items x persons x items) products, plus one per
-    node when some responses are missing.
+    node when some responses are missing. Persons are processed in blocks to bound memory.
     """
     J = a.size
     P = expit(np.outer(a, nodes) + d[:, None])  # J x Q
-    Mx = np.ones_like(X) if M is None else M
     _, n = _expected_counts(X, M, W)
     pq = n * P * (1.0 - P)
     powers = [np.ones_like(nodes), nodes, nodes * nodes]
-    D = [pq @ tp for tp in powers]  # expected second derivatives, per item
-    c = [W @ tp for tp in powers]  # posterior moments per person
-    B = [W @ (tp[:, None] * P.T) for tp in powers]  # persons x items
-    C = []
-    for e in range(3):
-        MB = Mx * B[e]
-        XtMB = X.T @ MB
-        term = (X * c[e][:, None]).T @ X - XtMB - XtMB.T
-        if M is None:
-            Nk = W.sum(axis=0)
-            term += (P * (Nk * powers[e])) @ P.T
-        else:
-            for k in range(nodes.size):
-                Pk = P[:, k]
-                term += (powers[e][k] * np.outer(Pk, Pk)) * ((Mx * W[:, k : k + 1]).T @ Mx)
-        C.append(term)
-    Ga = X * c[1][:, None] - Mx * B[1]
-    Gd = X - Mx * B[0]
-    info = np.empty((2 * J, 2 * J))
-    info[:J, :J] = np.diag(D[2]) - C[2] + Ga.T @ Ga
-    ad = np.diag(D[1]) - C[1] + Ga.T @ Gd
-    info[:J, J:] = ad
-    info[J:, :J] = ad.T
-    info[J:, J:] = np.diag(D[0]) - C[0] + Gd.T @ Gd
+    info = np.zeros((2 * J, 2 * J))
+    info[:J, :J] = np.diag(pq @ powers[2])
+    info[:J, J:] = info[J:, :J] = np.diag(pq @ powers[1])
+    info[J:, J:] += np.diag(pq @ powers[0])
+    blocks = [(slice(None, J), slice(None, J), 2), (slice(None, J), slice(J, None), 1),
+              (slice(J, None), slice(J, None), 0)]
+    for rows in chunks(X.shape[0], J):
+        Xc, Wc = X[rows], W[rows]
+        Mc = np.ones_like(Xc) if M is None else M[rows]
+        c = [Wc @ tp for tp in powers]  # posterior moments per person
+        C = []
+        for e in range(3):
+            MB = Mc * (Wc @ (powers[e][:, None] * P.T))
+            XtMB = Xc.T @ MB
+            term = (Xc * c[e][:, None]).T @ Xc - XtMB - XtMB.T
+            if M is None:
+                term += (P * (Wc.sum(axis=0) * powers[e])) @ P.T
+            else:
+                for k in range(nodes.size):
+                    Pk = P[:, k]
+                    term += (powers[e][k] * np.outer(Pk, Pk)) * ((Mc * Wc[:, k : k + 1]).T @ Mc)
+            C.append(term)
+            if e == 0:
+                Gd = Xc - MB
+            elif e == 1:
+                Ga = Xc * c[1][:, None] - MB
+            del MB
+        G = {2: (Ga, Ga), 1: (Ga, Gd), 0: (Gd, Gd)}
+        for r_sl, c_sl, e in blocks:
+            info[r_sl, c_sl] += G[e][0].T @ G[e][1] - C[e]
+    info[J:, :J] = info[:J, J:].T
     return info
 
 
