@@ -95,7 +95,7 @@ class ToyFamily(Family):
     def parse_text(self, item: Item, text: str, mode: str) -> Any:
         if mode == "select":
             return super().parse_text(item, text, mode)
-        hits = re.findall(r"(?<![\d.])-?\d+(?![\d.])", text)
+        hits = re.findall(r"(?<!\d)-?\d+(?!\d)", text)
         if not hits:
             raise ResponseError(f"item {item.id}: no integer found in reply.", field="response")
         return int(hits[-1])

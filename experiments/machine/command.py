@@ -111,7 +111,9 @@ class _Child:
             return ""
         return " | ".join(lines[-n:])
 
-    def kill(self) -> None:
+    def kill(self, *, now: bool = False) -> None:
+        if now:
+            self.proc.kill()
         with contextlib.suppress(OSError):
             if self.proc.stdin:
                 self.proc.stdin.close()
@@ -150,6 +152,8 @@ class CommandSolver:
 
     #: one request at a time per child
     max_in_flight = 1
+    #: the runner passes item= and family= to solve (sent in the request)
+    takes_item_id = True
 
     def __init__(
         self,
@@ -218,9 +222,9 @@ class CommandSolver:
             )
         self.medium = medium
 
-    def _drop(self) -> None:
+    def _drop(self, *, now: bool = False) -> None:
         if self._child is not None:
-            self._child.kill()
+            self._child.kill(now=now)
             self._child = None
 
     def _read_reply(
@@ -237,7 +241,7 @@ class CommandSolver:
                     else child.lines.get_nowait()
                 )
             except queue.Empty:
-                self._drop()
+                self._drop(now=True)
                 extra = f"; it printed: {stray[-1]!r}" if stray else ""
                 raise TrialFailure(
                     "timeout", f"no {what} within {timeout:g} s (child restarted){extra}"
