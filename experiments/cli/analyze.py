@@ -1,0 +1,40 @@
+"""``twofold analyze``: run a study's analysis and write every table to its results folder."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from ._console import console, progress, stdout
+
+
+def register(app: typer.Typer) -> None:
+    app.command("analyze")(analyze)
+
+
+def analyze(
+    study: Annotated[Path, typer.Argument(help="The study file (study.toml) or its folder.")],
+    out: Annotated[
+        Path | None, typer.Option("-o", "--out", help="Output folder (default: results/).")
+    ] = None,
+    only: Annotated[
+        str | None,
+        typer.Option(help="Comma-separated parts, e.g. irt,agreement (default: all)."),
+    ] = None,
+) -> None:
+    """Analyse a study's logs: IRT, mixed models, agreement, errors, robustness; CSV + JSON."""
+    from twofold.analysis.run import analyze_study, parse_parts
+    from twofold.study import load_study
+
+    parts = parse_parts(only)
+    st = load_study(study)
+    with progress("analysing", len(parts)) as bar:
+        run = analyze_study(st, out_dir=out, parts=parts, progress=lambda part: bar.advance(1))
+    for part, entry in run.summary["parts"].items():
+        if entry["status"] != "ok":
+            console.print(f"{part}: skipped ({entry['reason']})", markup=False)
+        for w in entry["warnings"]:
+            console.print(f"{part}: warning: {w}", markup=False)
+    stdout.print(f"wrote {len(run.tables)} tables and summary.json to {run.out_dir}", markup=False)
