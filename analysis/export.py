@@ -20,7 +20,6 @@ and ending in ``_data.csv``); values keep only letters and digits (``strings-ref
 
 from __future__ import annotations
 
-import json
 import re
 import shutil
 import tempfile
