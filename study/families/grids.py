@@ -597,7 +597,8 @@ class GridsFamily(Family):
         "permute_colours": "relabel the colours 1-9 by one permutation across the whole item",
         "rotate_flip": "rotate or mirror every grid of the item the same way "
         "(the program is conjugated)",
-        "translate_content": "move the content of every input grid by the same offset",
+        "translate_content": "move the content of every input grid to another place on its "
+        "canvas (each grid by its own offset; outputs recomputed)",
         "resize_canvas": "add background rows and columns to every input grid",
     }
     error_types = {
@@ -771,9 +772,17 @@ class GridsFamily(Family):
             grids = [perm[g] for g in grids]
             program = [_permute_op(op, perm) for op in program]
         elif operator == "rotate_flip":
-            name = _DIHEDRAL[int(rng.integers(len(_DIHEDRAL)))]
-            grids = [apply_op(g, (name,)) for g in grids]  # type: ignore[misc]
-            program = [_conjugate_op(op, name) for op in program]
+            # the mirror images of transpose along the other diagonal are not in the grammar,
+            # so take the first map (in random order) under which every step has a counterpart
+            for k in rng.permutation(len(_DIHEDRAL)):
+                name = _DIHEDRAL[int(k)]
+                try:
+                    conj = [_conjugate_op(op, name) for op in program]
+                except Rejected:
+                    continue
+                grids = [apply_op(g, (name,)) for g in grids]  # type: ignore[misc]
+                program = conj
+                break
         elif operator == "translate_content":
             grids = _translate_all(grids, rng)
         else:
@@ -1139,24 +1148,38 @@ def _conjugate_op(op: list[Any], t: str) -> list[Any]:
             got = apply_op(src, cand)  # type: ignore[arg-type]
             if got is not None and got.shape == want.shape and np.array_equal(got, want):
                 return cand
-        raise Rejected("no conjugate operation")  # pragma: no cover
+        raise Rejected("no conjugate operation")
     return list(op)
 
 
 def _translate_all(grids: list[Grid], rng: np.random.Generator) -> list[Grid]:
-    dirs = list(_DIRS)
-    rng.shuffle(dirs)
-    for d in dirs:
-        dy, dx = _STEP[d]
-        ok = True
-        for g in grids:
-            edge = {"down": g[-1], "up": g[0], "left": g[:, 0], "right": g[:, -1]}[d]
-            if edge.any():
-                ok = False
-                break
-        if ok:
-            return [_translate(g, d) for g in grids]
-    raise Rejected("content touches every edge")
+    out = []
+    for g in grids:
+        rows = np.flatnonzero(g.any(axis=1))
+        cols = np.flatnonzero(g.any(axis=0))
+        if rows.size == 0:
+            out.append(g)
+            continue
+        h, w = g.shape
+        # every offset that keeps the content on the canvas, except staying put
+        offsets = [
+            (dy, dx)
+            for dy in range(-int(rows[0]), h - int(rows[-1]))
+            for dx in range(-int(cols[0]), w - int(cols[-1]))
+            if (dy, dx) != (0, 0)
+        ]
+        if not offsets:
+            out.append(g)
+            continue
+        dy, dx = offsets[int(rng.integers(len(offsets)))]
+        moved = np.zeros_like(g)
+        moved[rows[0] + dy : rows[-1] + 1 + dy, cols[0] + dx : cols[-1] + 1 + dx] = g[
+            rows[0] : rows[-1] + 1, cols[0] : cols[-1] + 1
+        ]
+        out.append(moved)
+    if all(a is b for a, b in zip(out, grids, strict=True)):
+        raise Rejected("content fills every canvas")
+    return out
 
 
 def _pad_all(grids: list[Grid], rng: np.random.Generator, growth: int) -> list[Grid]:
