@@ -47,6 +47,7 @@ as ``invalid`` with the verbatim text kept for hand coding, rather than counting
 
 from __future__ import annotations
 
+import random
 import re
 from collections.abc import Mapping, Sequence
 from functools import lru_cache
@@ -417,13 +418,38 @@ def describe_rule(rule: Rule | str) -> str:
 # ------------------------------------------------------------------------------------------------
 
 
-def _obj_record(o: Sequence[int]) -> dict[str, Any]:
-    rec: dict[str, Any] = {a: VALUES[a][o[i]] for i, a in enumerate(ATTRIBUTES)}
-    rec["inside"] = None if o[INSIDE] < 0 else int(o[INSIDE])
+_VALUE_POS = [{v: k for k, v in enumerate(VALUES[a])} for a in ATTRIBUTES]
+
+
+def _obj_code(o: Sequence[int]) -> str:
+    """Compact record form of an object: its values in attribute order, then ``in<k>``."""
+    code = " ".join([VALUES[a][o[i]] for i, a in enumerate(ATTRIBUTES)])
+    return code if o[INSIDE] < 0 else f"{code} in{o[INSIDE]}"
+
+
+def _obj_dict(code: str | Mapping[str, Any]) -> dict[str, Any]:
+    """An object as a dict (attribute -> value, ``inside`` -> container index or None)."""
+    if isinstance(code, Mapping):
+        return dict(code)
+    toks = code.split()
+    rec: dict[str, Any] = dict(zip(ATTRIBUTES, toks[:7], strict=False))
+    rec["inside"] = int(toks[7][2:]) if len(toks) > 7 else None
     return rec
 
 
-def _obj_from_record(rec: Mapping[str, Any]) -> list[int]:
+def _obj_from_record(rec: str | Mapping[str, Any]) -> list[int]:
+    if isinstance(rec, str):
+        toks = rec.split()
+        try:
+            o = [_VALUE_POS[i][t] for i, t in enumerate(toks[:7])]
+            if len(o) == 7 and len(toks) <= 8:
+                o.append(int(toks[7][2:]) if len(toks) == 8 else -1)
+                return o
+        except (KeyError, ValueError):
+            pass
+        raise ResponseError(
+            f"field 'object': got {rec!r}; accepted: values in the order "
+            + ", ".join(ATTRIBUTES) + ", then optionally in<k>.", field="object")
     try:
         o = [VALUES[a].index(rec[a]) for a in ATTRIBUTES]
     except (KeyError, ValueError, TypeError):
@@ -493,7 +519,15 @@ def _ev(rule: Rule, objs: Sequence[Sequence[int]]) -> bool:
     if kind == "#":
         return sum(_has(o, (rule[1],)) for o in objs) == rule[2]
     if kind == "r":
-        return bool(_pairs(rule, objs))
+        _, rel, a, b = rule
+        for i, oi in enumerate(objs):
+            if a is not None and oi[ATOMS[a][0]] != ATOMS[a][1]:
+                continue
+            for j, oj in enumerate(objs):
+                if i != j and (b is None or oj[ATOMS[b][0]] == ATOMS[b][1]) and _rel(
+                        rel, objs, i, j):
+                    return True
+        return False
     if kind == "not":
         return not _ev(rule[1], objs)
     return all(_ev(x, objs) for x in rule[1])
@@ -581,14 +615,15 @@ def _panel_array(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
     return arr
 
 
+_WEIGHTS = 2.0 ** np.arange(53)
+
+
 def _pack(truth: np.ndarray) -> np.ndarray:
     """Pack a (P, K) boolean array into K uint64 bit masks (bit p = panel p)."""
     p = truth.shape[0]
-    if p > 64:
-        raise ValueError("at most 64 panels per item")
-    pad = np.zeros((64, truth.shape[1]), dtype=bool)
-    pad[:p] = truth
-    return np.packbits(pad, axis=0, bitorder="little").T.copy().view(np.uint64).ravel()
+    if p > 53:  # exact in float64, which lets one BLAS product do the packing
+        raise ValueError("at most 53 panels per item")
+    return (_WEIGHTS[:p] @ truth).astype(np.uint64)
 
 
 def leaf_vectors(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
@@ -600,16 +635,20 @@ def leaf_vectors(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
     m = (x[:, :, ATOM_ATTR] == ATOM_VAL) & exist[:, :, None]  # (P, O, atoms)
     mf = m.astype(np.float32)
     c1 = m.sum(1)  # (P, atoms)
-    c2 = np.einsum("poa,pob->pab", mf, mf)  # co-occurrence counts
+    mt = mf.transpose(0, 2, 1)
+    c2 = mt @ mf  # co-occurrence counts
     cp = c2[:, g.pair_a, g.pair_b]
     nn = n[:, None]
-    parts = [
+    w = _WEIGHTS[: len(panels)]
+    if len(panels) > len(_WEIGHTS):
+        raise ValueError("at most 53 panels per item")
+    parts = [w @ x for x in (
         n[:, None] == np.arange(1, MAX_OBJECTS + 1)[None, :],
         n[:, None] >= np.arange(2, MAX_OBJECTS + 1)[None, :],
         c1 == nn, c1 > 0, c1 == 0,
         c1 == 1, c1 == 2, c1 == 3,
         cp == nn, cp > 0, cp == 0,
-    ]
+    )]
     row, col, size, ins = x[:, :, ROW], x[:, :, COL], x[:, :, SIZE], x[:, :, INSIDE]
     both = exist[:, :, None] & exist[:, None, :]
     rel = np.stack([
@@ -619,10 +658,9 @@ def leaf_vectors(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
         ins[:, :, None] == np.arange(MAX_OBJECTS)[None, None, :],
     ], axis=1) & both[:, None]  # (P, 4, O, O)
     maug = np.concatenate([mf, exist[:, :, None].astype(np.float32)], axis=2)  # (P, O, A+1)
-    res = np.einsum("poa,proq,pqb->prab", maug, rel.astype(np.float32), maug) > 0
-    parts.append(res.reshape(len(panels), -1))
-    truth = np.concatenate(parts, axis=1)
-    return _pack(truth)
+    res = (maug.transpose(0, 2, 1)[:, None] @ (rel.astype(np.float32) @ maug[:, None])) > 0
+    parts.append(w @ res.reshape(len(panels), -1))
+    return np.concatenate(parts).astype(np.uint64)
 
 
 def rule_vector(rule: Rule, panels: Sequence[Sequence[Sequence[int]]]) -> int:
@@ -723,6 +761,7 @@ def _all_sep(sep: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
 # Rule templates and panel construction
 # ------------------------------------------------------------------------------------------------
 
+_REPAIRS = 4
 _FEATURAL_LENGTHS = (2, 3, 4, 5, 6)
 _COUNT_LENGTHS = (1, 2, 3, 4, 5, 6)
 _RELATIONAL_LENGTHS = (2, 3, 4, 5, 6)
@@ -732,18 +771,52 @@ class _Fail(Exception):
     pass
 
 
+class _FastRng:
+    """The few draws panel building needs, from Python's generator seeded by the item's rng.
+
+    numpy's per-call overhead dominates for single draws; this keeps items deterministic.
+    """
+
+    def __init__(self, rng: np.random.Generator):
+        self.r = random.Random(int(rng.integers(2**63)))
+
+    def integers(self, lo: int, hi: int | None = None) -> int:
+        if hi is None:
+            lo, hi = 0, lo
+        return self.r.randrange(lo, hi)
+
+    def random(self) -> float:
+        return self.r.random()
+
+    def permutation(self, n: int) -> list[int]:
+        return self.r.sample(range(n), n)
+
+    def choice(self, n: int, k: int, replace: bool = False) -> list[int]:
+        return self.r.sample(range(n), k)
+
+
 class _Ctx:
     """Per-item generation context: the random generator and the allowed values."""
 
     def __init__(self, rng: np.random.Generator, allowed: list[list[int]], lo: int, hi: int,
                  nest: bool):
-        self.rng = rng
+        self.rng = _FastRng(rng)
+        self.rnd = self.rng.r.random
+        self._np = rng
+        self._pool: list[list[int]] = []
         self.allowed = allowed
         self.lo, self.hi = lo, hi
         self.nest = nest
 
+    def new_values(self) -> list[int]:
+        """Random values of the five object attributes (drawn in blocks for speed)."""
+        if not self._pool:
+            cols = [np.asarray(al)[self._np.integers(0, len(al), 256)] for al in self.allowed[:5]]
+            self._pool = np.stack(cols, axis=1).tolist()
+        return self._pool.pop()
+
     def pick(self, seq: Sequence[Any]) -> Any:
-        return seq[int(self.rng.integers(len(seq)))]
+        return seq[int(self.rnd() * len(seq))]
 
 
 def _attr_atoms(attr: str) -> list[int]:
@@ -824,8 +897,10 @@ def _template_ok(kind: str, attr: str, length: int) -> bool:
         return attr != "count" and length in _RELATIONAL_LENGTHS
     if attr == "count":
         return length in _COUNT_LENGTHS
-    if length == 3 and _binary(attr):
-        return False  # ~every[v] of a two-valued attribute is some[other value], length 2
+    if length == 3 and (_binary(attr) or attr == "position"):
+        # ~every[v] of a two-valued attribute is some[other value] (length 2); ~every[top]
+        # cannot be false with more objects than a row holds
+        return False
     return length in _FEATURAL_LENGTHS
 
 
@@ -895,7 +970,7 @@ def _make_rule(kind: str, attr: str, length: int, ctx: _Ctx) -> Rule:
             return ("not", count_of(y))
         if length == 4:
             return ("and", (quant(y), exactly()))
-        z = atom(other({_rule_attr(y)}, many=length == 6))
+        z = atom(other({_rule_attr(y)}, many=length == 6, no_position=length == 6))
         if length == 5:
             return ("and", (count_of(y), quant(z)))
         return ("and", (count_of(y), ("not", ("q", "every", (z,)))))
@@ -909,7 +984,7 @@ def _make_rule(kind: str, attr: str, length: int, ctx: _Ctx) -> Rule:
         return q2(x, y) if ctx.rng.random() < 0.5 else ("and", (quant(x), at_least()))
     if length == 5:
         return ("and", (quant(x), quant(y)))
-    if ctx.rng.random() < 0.5 and not _binary(attr):
+    if ctx.rng.random() < 0.5 and not _binary(attr) and attr != "position":
         return ("and", (("not", ("q", "every", (x,))), quant(y)))
     return ("and", (q2(x, y), at_least()))
 
@@ -988,8 +1063,9 @@ def _break_atom(objs: list[list[int]], k: int, atom: int, ctx: _Ctx) -> None:
 
 
 def _new_object(ctx: _Ctx) -> list[int]:
-    vals = [ctx.pick(ctx.allowed[a]) for a in range(5)]
-    return [*vals, 0, 0, -1]
+    o = ctx.new_values()
+    o += (0, 0, -1)
+    return o
 
 
 def _add(objs: list[list[int]], ctx: _Ctx) -> None:
@@ -1018,10 +1094,13 @@ def _set_count(objs: list[list[int]], n: int, ctx: _Ctx) -> None:
         _remove(objs, ctx)
 
 
+_NINE = tuple(range(9))
+
+
 def _random_panel(ctx: _Ctx) -> list[list[int]]:
     rng = ctx.rng
     n = int(rng.integers(ctx.lo, ctx.hi + 1))
-    cells = rng.permutation(9)[:n]
+    cells = rng.r.sample(_NINE, n)
     objs = []
     for c in cells:
         o = _new_object(ctx)
@@ -1043,15 +1122,18 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
             if not pairs:
                 return
             for i, j in pairs:
-                if rel == "inside":
+                opts = (["move"] if rel == "inside" else []) + (["a"] if a is not None else []) \
+                    + (["b"] if b is not None else [])
+                if not opts:
+                    raise _Fail("cannot break a relation between any objects")
+                how = ctx.pick(opts)
+                if how == "move":
                     if objs[i][INSIDE] == j:
                         _place(objs, i, ctx)
-                elif a is not None:
-                    _break_atom(objs, i, a, ctx)
-                elif b is not None:
-                    _break_atom(objs, j, b, ctx)
+                elif how == "a":
+                    _break_atom(objs, i, a, ctx)  # type: ignore[arg-type]
                 else:
-                    raise _Fail("cannot break a relation between any objects")
+                    _break_atom(objs, j, b, ctx)  # type: ignore[arg-type]
         return
     if _pairs(rule, objs):
         return
@@ -1214,8 +1296,13 @@ def _labels(vec: int, n_a: int, n_b: int, n_test: int) -> str:
 
 def _validity(
     panels: list[list[list[int]]], rule: Rule, n_a: int, n_b: int, *, minimal: bool
-) -> tuple[str | None, np.ndarray, dict[str, np.ndarray]]:
-    """Reason to reject (or None), the leaf vectors and the separating rules."""
+) -> tuple[str | None, Rule | None, dict[str, np.ndarray]]:
+    """Reason to reject (or None), one offending rule and the separating rules.
+
+    Valid means: the hidden rule separates the training sets, and no enumerated rule of equal or
+    shorter description length separates them but classifies a test panel differently (with
+    ``minimal``, no strictly shorter rule separates them at all).
+    """
     n_test = len(panels) - n_a - n_b
     am, bm, tm = _masks(n_a, n_b, n_test)
     length = rule_length(rule)
@@ -1223,14 +1310,43 @@ def _validity(
     sep = separating(vec, a_mask=am, b_mask=bm, max_length=length)
     h = rule_vector(rule, panels)
     if (h & (am | bm)) != am:
-        return "hidden rule does not separate the sets", vec, sep
+        return "hidden rule does not separate the sets", None, sep
     vv, ll = _all_sep(sep)
-    if np.any((vv & np.uint64(tm)) != np.uint64(h & tm)):
-        return "another rule as short separates the sets but classifies a test panel otherwise", \
-            vec, sep
-    if minimal and np.any(ll < length):
-        return "a shorter rule separates the sets", vec, sep
-    return None, vec, sep
+    bad = (vv & np.uint64(tm)) != np.uint64(h & tm)
+    if np.any(bad):
+        return ("another rule as short separates the sets but classifies a test panel "
+                "otherwise"), _first_rule(sep, bad), sep
+    if minimal:
+        bad = ll < length
+        if np.any(bad):
+            return "a shorter rule separates the sets", _first_rule(sep, bad), sep
+    return None, None, sep
+
+
+def _first_rule(sep: Mapping[str, np.ndarray], bad: np.ndarray) -> Rule:
+    k = int(np.flatnonzero(bad)[0])
+    n1, n2 = len(sep["single"]), len(sep["pair_i"])
+    if k < n1:
+        return _lit_rule(sep["single"][k])
+    if k < n1 + n2:
+        return ("and", (_lit_rule(sep["pair_i"][k - n1]), _lit_rule(sep["pair_j"][k - n1])))
+    k -= n1 + n2
+    return ("not", ("and", (_lit_rule(sep["neg_i"][k]), _lit_rule(sep["neg_j"][k]))))
+
+
+def _discriminating(rule: Rule, other: Rule, ctx: _Ctx) -> tuple[bool, list[list[int]]] | None:
+    """A panel on which ``rule`` and ``other`` disagree, and the truth of ``rule`` on it."""
+    for want in ((True, False) if ctx.rnd() < 0.5 else (False, True)):
+        for _ in range(3):
+            objs = _random_panel(ctx)
+            try:
+                _force(other, objs, not want, ctx)
+                _force(rule, objs, want, ctx)
+            except _Fail:
+                continue
+            if objs and _ev(rule, objs) == want and _ev(other, objs) != want:
+                return want, objs
+    return None
 
 
 # ------------------------------------------------------------------------------------------------
@@ -1351,20 +1467,46 @@ class ContrastFamily(Family):
                   for k in range(n_test - n_a_test)]
         order = ctx.rng.permutation(n_test)
         tests = [tests[int(i)] for i in order]
+        # repair: where another rule also separates the sets, swap in a training panel on which
+        # the two disagree, then check again (items still failing are rejected)
+        checked = None
+        kept: set[tuple[bool, int]] = set()  # panels swapped in by earlier repairs stay
+        for _ in range(_REPAIRS + 2 * rule_length(rule) + 1):
+            reason, other, sep = _validity([*set_a, *set_b, *tests], rule, per, per,
+                                           minimal=minimal)
+            if reason is None:
+                checked = sep
+                break
+            if other is None:
+                raise Rejected(reason)
+            found = _discriminating(rule, other, ctx)
+            if found is None:
+                break
+            want, panel = found
+            target = set_a if want else set_b
+            free = [k for k in range(per) if (want, k) not in kept] or list(range(per))
+            k = ctx.pick(free)
+            kept.add((want, k))
+            target[k] = panel
+        if checked is None:
+            raise Rejected(reason)
         factors = {"rule_length": rule_length(rule), "attribute": k_attr,
                    "relational": relational, "distractors": distractors,
                    "objects": int(p["objects"])}
         return self._finish(rule, set_a, set_b, tests, params=p, factors=factors, seed=seed,
-                            modes=modes, minimal=minimal)
+                            modes=modes, minimal=minimal, checked=checked)
 
     def _finish(self, rule: Rule, set_a: list, set_b: list, tests: list, *,
                 params: Mapping[str, Any], factors: Mapping[str, Any], seed: int,
                 modes: Sequence[str], minimal: bool, variant_of: str | None = None,
-                variant_operator: str | None = None) -> Item:
+                variant_operator: str | None = None,
+                checked: dict[str, np.ndarray] | None = None) -> Item:
         panels = [*set_a, *set_b, *tests]
-        reason, _, sep = _validity(panels, rule, len(set_a), len(set_b), minimal=minimal)
-        if reason:
-            raise Rejected(reason)
+        sep = checked
+        if sep is None:
+            reason, _, sep = _validity(panels, rule, len(set_a), len(set_b), minimal=minimal)
+            if reason:
+                raise Rejected(reason)
         text = format_rule(rule)
         h = rule_vector(rule, panels)
         accepted = []
@@ -1380,9 +1522,9 @@ class ContrastFamily(Family):
                 break
         labels = _labels(h, len(set_a), len(set_b), len(tests))
         stimulus = {
-            "sets": {"A": [[_obj_record(o) for o in pnl] for pnl in set_a],
-                     "B": [[_obj_record(o) for o in pnl] for pnl in set_b]},
-            "test": [[_obj_record(o) for o in pnl] for pnl in tests],
+            "sets": {"A": [[_obj_code(o) for o in pnl] for pnl in set_a],
+                     "B": [[_obj_code(o) for o in pnl] for pnl in set_b]},
+            "test": [[_obj_code(o) for o in pnl] for pnl in tests],
         }
         select = "select" in modes
         return Item.create(
@@ -1654,8 +1796,8 @@ class ContrastFamily(Family):
         st = item.stimulus
         view: dict[str, Any] = {
             "item": item.id, "family": self.name, "mode": mode,
-            "sets": {"A": st["sets"]["A"], "B": st["sets"]["B"]},
-            "test": st["test"],
+            "sets": {s: [[_obj_dict(o) for o in pnl] for pnl in st["sets"][s]] for s in "AB"},
+            "test": [[_obj_dict(o) for o in pnl] for pnl in st["test"]],
             "grid": {"rows": list(VALUES["row"]), "cols": list(VALUES["col"])},
             "attributes": {a: list(VALUES[a]) for a in ATTRIBUTES},
             "labels": ["A", "B"],
@@ -1666,9 +1808,9 @@ class ContrastFamily(Family):
             view["choices"] = ["A", "B"]
         return view
 
-    def _panel_words(self, objs: Sequence[Mapping[str, Any]]) -> str:
+    def _panel_words(self, objs: Sequence[Any]) -> str:
         parts = []
-        for k, o in enumerate(objs, start=1):
+        for k, o in enumerate((_obj_dict(x) for x in objs), start=1):
             where = (f"inside object {o['inside'] + 1}" if o["inside"] is not None
                      else f"cell {o['row']}-{o['col']}")
             parts.append(f"({k}) {o['size']} {o['shade']} {o['shape']}, {o['edge']} edge, "
@@ -1761,7 +1903,7 @@ class ContrastFamily(Family):
                 color=colour)
         c = w / 3
         scale = {"small": 0.16, "medium": 0.26, "large": 0.38}
-        for o in objs:
+        for o in map(_obj_dict, objs):
             ci, ri = VALUES["col"].index(o["col"]), VALUES["row"].index(o["row"])
             cx = x + pad + (ci + 0.5) * c
             cy = y + pad + (2 - ri + 0.5) * c
