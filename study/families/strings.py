@@ -357,6 +357,9 @@ def consistent_programs(src: Sequence[int], chg: Sequence[int], n: int) -> list[
                 out.append(prog)
         elif lc > ls:
             for sel in _selectors(nu, vals, with_values=True):
+                idx = _select(sel, units)
+                if not idx or sum(units[i][1] for i in idx) != lc - ls:
+                    continue  # the repeated units would not add the right number of symbols
                 prog = ("double", level, sel)
                 if apply_program(prog, src, n) == chg:
                     out.append(prog)
@@ -374,6 +377,9 @@ def consistent_programs(src: Sequence[int], chg: Sequence[int], n: int) -> list[
                     out.append(("append", level, ("value", v)))
         else:
             for sel in _selectors(nu, vals, with_values=True):
+                idx = _select(sel, units)
+                if not idx or sum(units[i][1] for i in idx) != ls - lc:
+                    continue
                 prog = ("delete", level, sel)
                 if apply_program(prog, src, n) == chg:
                     out.append(prog)
@@ -732,7 +738,9 @@ class StringsFamily(Family):
         scheme = None
         if "select" in modes:
             scheme = distractor_scheme or next(iter(self.distractor_schemes))
-            choices = self._choices(stimulus, answer, accepted, rule, scheme, n_choices, rng)
+            choices = self._choices(
+                stimulus, answer, accepted, rule, scheme, n_choices, rng, an.outputs
+            )
         return Item.create(
             prefix=self.prefix,
             family=self.name,
@@ -862,7 +870,12 @@ class StringsFamily(Family):
         )
 
     # -- related rules and distractors --------------------------------------------------------
-    def _related(self, stimulus: Mapping[str, Any], rule: str) -> dict[str, list[str]]:
+    def _related(
+        self,
+        stimulus: Mapping[str, Any],
+        rule: str,
+        readings: Sequence[tuple[float, Program, Any]] | None = None,
+    ) -> dict[str, list[str]]:
         """Outputs of rules related to the intended one, per error type (in classifier order)."""
         symbols = stimulus["symbols"]
         n = len(symbols)
@@ -874,11 +887,13 @@ class StringsFamily(Family):
         rel: dict[str, list[tuple[int, ...]]] = {k: [] for k in _ERROR_TYPES if k != "other"}
         rel["no-change"].append(tgt)
         rel["literal"].append(literal_edit(src, chg, tgt))
-        for p in consistent_programs(src, chg, n):
-            if is_literal(p):
-                out = apply_program(p, tgt, n)
-                if out is not None:
-                    rel["literal"].append(out)
+        if readings is None:
+            readings = [
+                (0.0, p, apply_program(p, tgt, n)) for p in consistent_programs(src, chg, n)
+            ]
+        for _, p, out in readings:
+            if is_literal(p) and out is not None:
+                rel["literal"].append(out)
         if prog[0] != "reverse":
             other = "symbol" if prog[1] == "group" else "group"
             swapped = (prog[0], other, *prog[2:])
@@ -926,12 +941,13 @@ class StringsFamily(Family):
         scheme: str,
         n_choices: int,
         rng: np.random.Generator,
+        readings: Sequence[tuple[float, Program, Any]] | None = None,
     ) -> list[str]:
         symbols = stimulus["symbols"]
         taken = {answer} | {a["answer"] for a in accepted}
         picked: list[str] = []
         if scheme == "near-miss":
-            related = self._related(stimulus, rule)
+            related = self._related(stimulus, rule, readings)
             pool: list[str] = []
             for key in (
                 "wrong-position",
