@@ -1265,6 +1265,7 @@ def _build_panel(rule: Rule, want: bool, ctx: _Ctx, *, base: list[list[int]] | N
         objs = [list(o) for o in base] if base is not None else _random_panel(ctx)
         try:
             _force(rule, objs, want, ctx)
+            _sync(objs, ctx)
         except _Fail:
             continue
         if objs and _ev(rule, objs) == want:
@@ -1342,6 +1343,10 @@ def _discriminating(rule: Rule, other: Rule, ctx: _Ctx) -> tuple[bool, list[list
             try:
                 _force(other, objs, not want, ctx)
                 _force(rule, objs, want, ctx)
+            except _Fail:
+                continue
+            try:
+                _sync(objs, ctx)
             except _Fail:
                 continue
             if objs and _ev(rule, objs) == want and _ev(other, objs) != want:
@@ -1615,6 +1620,17 @@ class ContrastFamily(Family):
         reason, _, _ = _validity(panels, rule, n_a, n_b, minimal=False)
         if reason:
             problems.append(reason)
+        for k, pnl in enumerate(panels):
+            if not 1 <= len(pnl) <= MAX_OBJECTS:
+                problems.append(f"panel {k}: {len(pnl)} objects")
+            cells = [o[ROW] * 3 + o[COL] for o in pnl if o[INSIDE] < 0]
+            if len(set(cells)) != len(cells):
+                problems.append(f"panel {k}: two objects share a cell")
+            for o in pnl:
+                c = o[INSIDE]
+                if c >= 0 and (c >= len(pnl) or pnl[c][INSIDE] >= 0 or pnl[c][SIZE] <= o[SIZE]
+                               or pnl[c][ROW] != o[ROW] or pnl[c][COL] != o[COL]):
+                    problems.append(f"panel {k}: an object is nested in an invalid container")
         return problems
 
     # -- responses -------------------------------------------------------------------------------
@@ -1681,8 +1697,9 @@ class ContrastFamily(Family):
         # over-general: shorter literals admitting every panel the rule admits, and some B panel
         gen = ((lits & hu) == hu) & (lens < length) & ((lits & np.uint64(bm)) != 0)
         # over-specific: the rule narrowed by a literal true of all A panels
-        spec_vecs = lits[(lits & np.uint64(am)) == np.uint64(am)] & hu
-        spec_vecs = spec_vecs[(spec_vecs & np.uint64(tm)) != (hu & np.uint64(tm))]
+        spec_ok = ((lits & np.uint64(am)) == np.uint64(am)) & (
+            (lits & hu & np.uint64(tm)) != (hu & np.uint64(tm)))
+        spec_vecs = lits[spec_ok] & hu
         # irrelevant: short literals about attributes the rule does not use, best fit to training
         used = relevant_attributes(rule)
         irr_idx = [k for k in range(len(lits)) if lens[k] <= 3
@@ -1698,11 +1715,16 @@ class ContrastFamily(Family):
         if irr_idx:
             iv = lits[np.array(irr_idx)]
             fit = _popcount((iv ^ np.uint64(am)) & np.uint64(am | bm))
-            best = iv[fit == fit.min()] if fit.min() <= (n_a + n_b) // 3 else iv[:0]
+            keep = fit == fit.min() if fit.min() <= (n_a + n_b) // 3 else np.zeros_like(fit, bool)
+            best = iv[keep]
+            irr_best = np.array(irr_idx)[keep]
             labels["irrelevant-attribute"] = lab(best)
         else:
             labels["irrelevant-attribute"] = set()
+            irr_best = np.zeros(0, dtype=np.int64)
         return {"labels": labels, "h": h, "panels": panels, "used": used, "length": length,
+                "general": np.flatnonzero(gen), "specific": np.flatnonzero(spec_ok),
+                "irrelevant": irr_best, "rule": rule,
                 "masks": (am, bm, tm), "sizes": (n_a, n_b, n_test), "full": full}
 
     _PRIORITY = ("reversed-sets", "over-general", "over-specific", "irrelevant-attribute")
@@ -1732,8 +1754,8 @@ class ContrastFamily(Family):
 
     def sample_error(self, item: Item, mode: str, rng: np.random.Generator) -> tuple[Any, str]:
         correct = item.answer["labels"]
+        rel = self._related(item)
         if mode == "select":
-            rel = self._related(item)
             opts = sorted({lab for labs in rel["labels"].values() for lab in labs} - {correct})
             n = len(correct)
             if rng.random() < 0.2 or not opts:
@@ -1745,19 +1767,26 @@ class ContrastFamily(Family):
             else:
                 resp = opts[int(rng.integers(len(opts)))]
             return resp, self.classify_error(item, resp, mode)
-        rule = parse_rule(item.answer["rule"])
-        cands = [format_rule(_negate(rule))]
-        rel = self._related(item)
+        rule = rel["rule"]
         g = grammar()
-        panels = rel["panels"]
-        h = rel["h"]
-        for k in rng.permutation(2 * g.n_leaves)[:400]:
-            lit = g.literal(int(k))
-            if rule_vector(lit, panels) != h:
-                cands.append(format_rule(_canon(lit)))
-            if len(cands) >= 8:
-                break
-        resp = cands[int(rng.integers(len(cands)))]
+        kinds: dict[str, list[str]] = {"reversed-sets": [format_rule(_negate(rule))]}
+        for name, idx in (("over-general", rel["general"]), ("irrelevant-attribute",
+                                                               rel["irrelevant"])):
+            if len(idx):
+                kinds[name] = [format_rule(_canon(g.literal(int(k))))
+                               for k in rng.choice(idx, min(3, len(idx)), replace=False)]
+        if len(rel["specific"]):
+            kinds["over-specific"] = [
+                format_rule(_canon(("and", (rule, g.literal(int(k))))))
+                for k in rng.choice(rel["specific"], min(3, len(rel["specific"])), replace=False)]
+        for name in list(kinds):  # a rule equivalent on every panel would be correct
+            kinds[name] = [r for r in kinds[name]
+                           if rule_vector(parse_rule(r), rel["panels"]) != rel["h"]]
+            if not kinds[name]:
+                del kinds[name]
+        names = sorted(kinds)
+        pool = kinds[names[int(rng.integers(len(names)))]]
+        resp = pool[int(rng.integers(len(pool)))]
         return resp, self.classify_error(item, resp, mode)
 
     def parse_text(self, item: Item, text: str, mode: str) -> Any:
