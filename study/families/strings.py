@@ -1182,9 +1182,9 @@ class StringsFamily(Family):
         end = boxes(syms, 38, 20, size)
         ax.add_patch(
             FancyArrowPatch(
-                (end - size * 0.5, 40 + size),
-                (20 + size * 0.5, 40 + size),
-                connectionstyle="arc3,rad=0.08",
+                (end - size * 0.5, 44 + size),
+                (20 + size * 0.5, 44 + size),
+                connectionstyle="arc3,rad=-0.06",
                 arrowstyle="->",
                 color=accent,
                 linewidth=1.2,
