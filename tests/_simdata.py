@@ -1,22 +1,23 @@
 """Test helper for the analysis tests: a tiny test-only family, a bank and simulated session logs.
 
-The family ``tallyup`` asks for the sum of a row of small numbers; its factors are ``width``
-(numbers in the row, 2-5) and ``layout`` (``row`` or ``ring``). An isomorph adds 10 to every
-number. Logs are written through :class:`TrialLogWriter` exactly as the runners write them, with
-responses drawn from a logistic model (person ability minus item difficulty) so the statistics have
-something to find.
+The family ``tallyup`` (registered only inside :func:`tally_registered`) asks for the sum of a
+row of small numbers; its factors are ``width`` (numbers in the row, 2-5) and ``layout`` (``row``
+or ``ring``). An isomorph adds 10 to every number. Logs are written through
+:class:`TrialLogWriter` exactly as the runners write them, with responses drawn from a logistic
+model (person ability minus item difficulty) so the statistics have something to find.
 """
 
 from __future__ import annotations
 
+import contextlib
 import json
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 from twofold.study.bank import Bank, write_bank
-from twofold.study.families import Family, ParamSpec, get_family, register
+from twofold.study.families import Family, ParamSpec, register
 from twofold.study.item import Item
 from twofold.study.logs import TrialLogWriter
 
@@ -91,12 +92,32 @@ class TallyFamily(Family):
         fig.text(0.5, 0.5, self.render_text(item, mode))
 
 
-FAMILY = register(TallyFamily())
+FAMILY = TallyFamily()
+
+
+@contextlib.contextmanager
+def tally_registered() -> Iterator[TallyFamily]:
+    """Register the test family for the duration of a block, then remove it again.
+
+    It is never left registered, so the shared tests that run over every registered family
+    (collected after these modules are imported) do not see it.
+    """
+    from twofold.study.families import _REGISTRY
+
+    before = _REGISTRY.get(FAMILY.name)
+    register(FAMILY)
+    try:
+        yield FAMILY
+    finally:
+        if before is None:
+            _REGISTRY.pop(FAMILY.name, None)
+        else:
+            _REGISTRY[FAMILY.name] = before
 
 
 def make_bank(n_parents: int = 16, *, seed: int = 1, isomorphs: bool = True) -> Bank:
     """A bank of ``n_parents`` items over every width x layout, each with one isomorph."""
-    fam = get_family("tallyup")
+    fam = FAMILY
     rng = np.random.default_rng(seed)
     items: list[Item] = []
     for k in range(n_parents):
@@ -144,7 +165,7 @@ def write_session(
     ``factor_slope`` adds to the effect of ``width`` for this respondent (machines that find
     wide rows easier or harder than people do).
     """
-    fam = get_family("tallyup")
+    fam = FAMILY
     items = list(bank.items if items is None else items)
     sub = "human" if kind == "human" else "machine"
     path = logs_dir / sub / f"{respondent}.csv"

@@ -1,0 +1,245 @@
+"""Tidy data from session logs, and the open-layout export."""
+
+from __future__ import annotations
+
+import json
+import re
+import shutil
+
+import frictionless
+import numpy as np
+import pandas as pd
+import pytest
+from _simdata import make_bank, make_study, tally_registered, write_session
+from twofold.analysis import export_dataset, item_table, load_study_data, trials_table_schema
+from twofold.analysis.data import BASE_COLUMNS, ISSUE_COLUMNS, SESSION_COLUMNS
+from twofold.study import load_study
+from twofold.study.exceptions import InputError, LogError, LogWarning
+
+
+@pytest.fixture(scope="module")
+def registered():
+    with tally_registered():
+        yield
+
+
+@pytest.fixture(scope="module")
+def study_dir(registered, tmp_path_factory):
+    root = tmp_path_factory.mktemp("toy")
+    make_study(root, n_parents=8, n_humans=5, seeds=(0, 1))
+    return root
+
+
+@pytest.fixture()
+def fresh(registered, tmp_path, study_dir):
+    """A private copy of the toy study that a test may add logs to."""
+    dest = tmp_path / "study"
+    shutil.copytree(study_dir, dest)
+    return dest
+
+
+@pytest.fixture(scope="module")
+def data(study_dir):
+    return load_study_data(study_dir / "study.toml")
+
+
+def test_trials_table_has_the_documented_columns_and_one_row_per_trial(data):
+    t = data.trials
+    assert list(t.columns) == list(BASE_COLUMNS) + ["factor_layout", "factor_width"]
+    # 8 parents + 8 isomorphs, answered by 5 people and 2 solvers x 2 seeds
+    assert len(t) == 16 * (5 + 4)
+    assert not t.duplicated(["session", "trial"]).any()
+    assert list(data.sessions.columns) == list(SESSION_COLUMNS)
+    assert list(data.issues.columns) == list(ISSUE_COLUMNS) and data.issues.empty
+    assert str(t["correct"].dtype) == "boolean" and str(t["seed"].dtype) == "Int64"
+    assert t["factor_width"].dtype == np.float64
+
+
+def test_group_seed_and_synthetic_come_from_the_sidecars(data):
+    t = data.trials
+    hum = t[t["kind"] == "human"]
+    assert set(hum["group"]) == {"human"} and hum["seed"].isna().all()
+    mach = t[t["kind"] == "machine"]
+    assert set(mach["group"]) == {"steadybot", "widebot"}
+    seeds = mach.groupby("respondent")["seed"].first().to_dict()
+    assert seeds == {"steadybot-s0": 0, "steadybot-s1": 1, "widebot-s0": 0, "widebot-s1": 1}
+    assert t["synthetic"].all()  # every simulated respondent stays marked
+    assert set(mach["effort_unit"]) == {"nodes"} and mach["rt_ms"].isna().all()
+
+
+def test_parent_is_the_variant_of_for_isomorphs_and_the_own_id_otherwise(data):
+    t = data.trials.drop_duplicates("item")
+    iso = t[t["isomorph"]]
+    par = t[~t["isomorph"]]
+    assert len(iso) == len(par) == 8
+    assert (iso["parent"] == iso["variant_of"]).all()
+    assert (iso["variant_operator"] == "shift").all()
+    assert (par["parent"] == par["item"]).all() and par["variant_of"].isna().all()
+    # factors are copied from the bank's items
+    bank_items = {it.id: it for it in data.bank}
+    for row in t.itertuples(index=False):
+        assert row.factor_width == bank_items[row.item].factors["width"]
+        assert row.factor_layout == bank_items[row.item].factors["layout"]
+
+
+def test_item_table_follows_chains_of_isomorphs_to_the_root(registered):
+    from _simdata import FAMILY
+
+    bank = make_bank(2)
+    parent = bank.items[0]
+    child = bank.items[1]
+    grandchild = FAMILY.vary(child, "shift", np.random.default_rng(0))
+    from twofold.study import Bank
+
+    items = item_table(Bank.from_items([*bank.items, grandchild]))
+    assert items.set_index("item").loc[grandchild.id, "parent"] == parent.id
+
+
+def test_a_log_from_another_bank_is_refused_naming_the_file(fresh):
+    bank = load_study(fresh).bank(create=False)
+    write_session(
+        fresh / "logs",
+        bank,
+        respondent="odd-s0",
+        kind="machine",
+        ability=0.0,
+        rng=np.random.default_rng(1),
+        solver="odd",
+        seed=0,
+        bank_hash="f" * 64,
+    )
+    with pytest.raises(LogError, match=r"machine/odd-s0\.csv: field 'bank_hash'") as err:
+        load_study_data(fresh)
+    assert err.value.field == "bank_hash"
+
+
+def test_duplicate_trials_are_reported_with_a_specific_warning(fresh):
+    bank = load_study(fresh).bank(create=False)
+    first = bank.items[0]
+    dup = dict(
+        study="toy", bank_hash=bank.hash, respondent="P001", kind="human", synthetic=False,
+        session="P001", form="F1", block="main", trial=0, item=first.id, family="tallyup",
+        mode="generate", response=-7, correct=False, error_type="other", status="ok",
+        rt_ms=999.0,
+    )  # fmt: skip
+    write_session(
+        fresh / "logs", bank, respondent="P001", kind="human", ability=0.0,
+        rng=np.random.default_rng(2), synthetic=False, extra_rows=[dup],
+    )  # fmt: skip
+    with pytest.warns(LogWarning, match="1 duplicate trial"):
+        d = load_study_data(fresh)
+    iss = d.issues
+    assert iss[["session", "issue", "n"]].values.tolist() == [["P001", "duplicate_trial", 1]]
+    p = d.trials[d.trials["respondent"] == "P001"]
+    assert len(p) == 16 and p.loc[p["trial"] == 0, "rt_ms"].iloc[0] != 999.0  # first row kept
+    row = d.sessions.set_index("session").loc["P001"]
+    assert (row["n_rows"], row["n_trials"], row["n_duplicates"]) == (17, 16, 1)
+    with pytest.raises(LogError, match="P001.csv: trial 0 is logged"):
+        load_study_data(fresh, duplicates="raise")
+    with pytest.warns(LogWarning):
+        kept = load_study_data(fresh, duplicates="keep")
+    assert (kept.trials["respondent"] == "P001").sum() == 17
+
+
+def test_missing_trials_are_counted_against_the_sidecar(fresh):
+    bank = load_study(fresh).bank(create=False)
+    write_session(
+        fresh / "logs", bank, respondent="P002", kind="human", ability=0.0,
+        rng=np.random.default_rng(3), synthetic=False, items=bank.items[:10], n_trials=16,
+    )  # fmt: skip
+    with pytest.warns(LogWarning, match="6 missing trials"):
+        d = load_study_data(fresh)
+    assert d.issues["issue"].tolist() == ["missing_trials"]
+    assert d.sessions.set_index("session").loc["P002", "n_missing"] == 6
+
+
+def test_synthetic_respondents_can_be_kept_dropped_or_isolated(fresh):
+    bank = load_study(fresh).bank(create=False)
+    write_session(
+        fresh / "logs", bank, respondent="P003", kind="human", ability=0.0,
+        rng=np.random.default_rng(4), synthetic=False,
+    )  # fmt: skip
+    assert set(load_study_data(fresh, synthetic="drop").trials["respondent"]) == {"P003"}
+    only = load_study_data(fresh, synthetic="only").trials
+    assert "P003" not in set(only["respondent"]) and only["synthetic"].all()
+    with pytest.raises(InputError, match="field 'synthetic'"):
+        load_study_data(fresh, synthetic="maybe")
+
+
+def test_an_item_missing_from_the_bank_is_an_error(fresh):
+    bank = load_study(fresh).bank(create=False)
+    path = write_session(
+        fresh / "logs", bank, respondent="P004", kind="human", ability=0.0,
+        rng=np.random.default_rng(5), synthetic=False,
+    )  # fmt: skip
+    text = path.read_text().replace(bank.items[3].id, "tly-000000000000")
+    path.write_text(text)
+    with pytest.raises(LogError, match=r"human/P004\.csv: field 'item': got 'tly-000000000000'"):
+        load_study_data(fresh)
+
+
+def test_summary_mentions_every_group(data):
+    text = data.summary()
+    assert "steadybot" in text and "widebot" in text and "(synthetic)" in text
+
+
+# -- export ----------------------------------------------------------------------------------------
+PSYCHDS_NAME = re.compile(r"^([a-z]+-[a-zA-Z0-9]+)(_[a-z]+-[a-zA-Z0-9]+)*_data\.(csv|json)$")
+
+
+@pytest.fixture(scope="module")
+def exported(data, study_dir, tmp_path_factory):
+    out = tmp_path_factory.mktemp("export") / "dataset"
+    return export_dataset(data, out, logs_dir=study_dir / "logs")
+
+
+def test_export_is_a_valid_frictionless_package(exported):
+    # reference: Frictionless Data Package / Table Schema specs, checked by the frictionless library
+    report = frictionless.validate(exported / "datapackage.json")
+    assert report.valid, report.flatten(["rowNumber", "fieldName", "type", "note"])[:5]
+
+
+def test_export_validation_catches_a_broken_value(exported, tmp_path):
+    copy = tmp_path / "copy"
+    shutil.copytree(exported, copy)
+    f = copy / "data" / "study-toy_table-trials_data.csv"
+    lines = f.read_text().splitlines()
+    cells = lines[1].split(",")
+    cells[list(lines[0].split(",")).index("correct")] = "maybe"
+    lines[1] = ",".join(cells)
+    f.write_text("\n".join(lines) + "\n")
+    assert not frictionless.validate(copy / "datapackage.json").valid
+
+
+def test_export_uses_psychds_names_and_description(exported, data):
+    names = sorted(p.name for p in (exported / "data").iterdir())
+    assert all(PSYCHDS_NAME.match(n) for n in names), names
+    assert "study-toy_kind-machine_respondent-steadybots0_data.csv" in names
+    assert "study-toy_kind-machine_respondent-steadybots0_data.json" in names
+    desc = json.loads((exported / "dataset_description.json").read_text())
+    # common practice: Psych-DS requires @context, @type Dataset, name, description,
+    # variableMeasured
+    assert desc["@context"] == "https://schema.org/" and desc["@type"] == "Dataset"
+    measured = {v["name"] for v in desc["variableMeasured"]}
+    assert measured == set(data.trials.columns)
+    side = json.loads(
+        (exported / "data" / "study-toy_kind-machine_respondent-steadybots0_data.json").read_text()
+    )
+    assert side["solver"] == "steadybot" and side["seed"] == 0
+    one = pd.read_csv(exported / "data" / "study-toy_kind-human_respondent-S001_data.csv")
+    assert set(one["respondent"]) == {"S001"} and len(one) == 16
+
+
+def test_table_schema_describes_every_column(data):
+    schema = trials_table_schema(data.trials)
+    by = {f["name"]: f for f in schema["fields"]}
+    assert list(by) == list(data.trials.columns)
+    assert by["correct"]["type"] == "boolean" and by["factor_width"]["type"] == "number"
+    assert by["factor_layout"]["type"] == "string"
+    assert by["kind"]["constraints"]["enum"] == ["human", "machine"]
+    assert all(f["description"] and f["description"] != f["name"] for f in schema["fields"])
+
+
+def test_export_refuses_to_overwrite_by_default(exported, data):
+    with pytest.raises(InputError, match="folder exists"):
+        export_dataset(data, exported)
