@@ -670,14 +670,13 @@ class StringsFamily(Family):
             else:
                 inside.append(t0)
         pool = (crossing or inside) if wrap else plain
-        tgt_seqs = []
-        for t0 in pool:
+        while True:
+            if not pool:
+                raise Rejected("no target position with the requested wrap")
+            t0 = pool.pop(int(rng.integers(len(pool))))
             tgt = tuple((v + t0) % n for v in raw_t)
             if tgt != src and tgt != chg:
-                tgt_seqs.append(tgt)
-        if not tgt_seqs:
-            raise Rejected("no target position with the requested wrap")
-        tgt = tgt_seqs[int(rng.integers(len(tgt_seqs)))]
+                break
         an = _Analysis(prog, src, chg, tgt, n, symbols)
         if an.answer is None or an.answer == tgt:
             raise Rejected("no visible change on the target")
