@@ -55,6 +55,7 @@ _ENTRY_KEYS = ("name", "spec", "seeds", "options", "timeout", "modes", "medium")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 #: option names whose values are secrets and never enter a hash, log or report
 SECRET_OPTIONS = ("api_key",)
+_INTERPRETERS = ("python", "node", "ruby", "perl", "julia", "Rscript", "bash", "sh", "java")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -139,14 +140,17 @@ def _default_name(spec: str) -> str:
         name = spec.rsplit(":", 1)[-1].replace("_", "-")
     elif kind == "command":
         argv = shlex.split(spec[len("command:") :]) or ["command"]
-        prog = argv[-1] if len(argv) > 1 and argv[0].startswith("python") else argv[0]
+        prog = argv[0]
+        if prog.rsplit("/", 1)[-1].startswith(_INTERPRETERS):
+            scripts = [a for a in argv[1:] if not a.startswith("-")]
+            prog = scripts[0] if scripts else prog
         name = prog.rsplit("/", 1)[-1].rsplit(".", 1)[0].replace("_", "-")
     elif kind == "http":
         name = "http-" + re.sub(r"[^A-Za-z0-9]+", "-", _url(spec).split("://", 1)[-1]).strip("-")
     else:
         name = spec
-    name = re.sub(r"[^A-Za-z0-9_.-]", "-", name)[:64] or "solver"
-    return name
+    name = re.sub(r"^[^A-Za-z0-9]+", "", re.sub(r"[^A-Za-z0-9_.-]", "-", name))[:64]
+    return name or "solver"
 
 
 def _url(spec: str) -> str:
@@ -356,18 +360,20 @@ def build_solver(spec: SolverSpec, seed: int = 0) -> Solver:
 
 
 class _FunctionSolver:
-    """Wraps a plain ``solve(view, mode)`` function (or any object with solve) as a Solver."""
+    """Wraps a user's ``solve(view, mode)`` (function or method) so it returns an Answer."""
 
-    def __init__(self, fn: Any, medium: str):
+    def __init__(self, fn: Any, medium: str, owner: Any = None):
         self._fn = fn
+        self._owner = owner
         self.medium = medium
+        self.max_in_flight = int(getattr(owner, "max_in_flight", 1) or 1)
 
     def solve(self, view: Any, mode: str) -> Answer:
         return coerce_answer(self._fn(view, mode))
 
     def close(self) -> None:
-        close = getattr(self._fn, "close", None)
-        if callable(close) and not inspect.isfunction(self._fn):
+        close = getattr(self._owner, "close", None)
+        if callable(close):
             close()
 
 
@@ -411,16 +417,9 @@ def _python_solver(spec: SolverSpec, seed: int, *, where: str) -> Solver:
         )
     medium = spec.options.get("medium") or getattr(obj, "medium", None) or "structured"
     if hasattr(obj, "solve") and callable(obj.solve):
-        if getattr(obj, "medium", None) == medium and _returns_answers(obj):
-            return obj  # type: ignore[no-any-return]
-        return _FunctionSolver(obj.solve, medium)
+        return _FunctionSolver(obj.solve, medium, owner=obj)
     if callable(obj):
         return _FunctionSolver(obj, medium)
     raise SolverError(
         f"{where}: {attr} is neither callable nor an object with a solve(view, mode) method."
     )
-
-
-def _returns_answers(obj: Any) -> bool:
-    # objects from our own registry return Answer already; user objects get wrapped to coerce
-    return type(obj).__module__.startswith("twofold.")
