@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import re
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -50,10 +51,10 @@ from . import _quadrature as _q
 __all__ = [
     "ABILITY_COLUMNS",
     "DEPARTURE_COLUMNS",
-    "ITEM_COLUMNS",
-    "MODELS",
     "HumanScaleResult",
     "IRTResult",
+    "ITEM_COLUMNS",
+    "MODELS",
     "fit_irt",
     "information_curve",
     "item_fit",
@@ -214,7 +215,8 @@ class IRTResult:
         (discrimination); ``b`` difficulty (``-d / a``); ``d`` intercept; ``a_se``, ``b_se``,
         ``d_se`` standard errors (NaN when not computed; ``a_se`` NaN for the Rasch model,
         whose slope is fixed); ``n`` respondents who saw the item; ``p_correct`` their proportion
-        correct; ``infit``, ``outfit`` mean squares at the EAP abilities (NaN when not computed).
+        correct; ``infit``, ``outfit`` mean squares at the maximum-likelihood abilities (NaN when
+        not computed).
     abilities : pandas.DataFrame
         EAP abilities of the calibration respondents, columns :data:`ABILITY_COLUMNS`.
     loglik : float
@@ -257,6 +259,49 @@ class IRTResult:
     dropped_persons: tuple[str, ...]
     cov: np.ndarray | None = field(repr=False)
     quadrature_points: int = 41
+
+    @classmethod
+    def from_parameters(
+        cls,
+        *,
+        a: Any = None,
+        b: Any = None,
+        d: Any = None,
+        items: Sequence[str] | None = None,
+        model: str = "2pl",
+        quadrature_points: int = 41,
+    ) -> IRTResult:
+        """A result holding given item parameters (assumed or published), for scoring.
+
+        Give slopes ``a`` (default 1) and either difficulties ``b`` or intercepts ``d``
+        (``d = -a b``). Fit quantities (log-likelihood, standard errors...) are NaN.
+        """
+        check_choice("model", model, MODELS)
+        if (b is None) == (d is None):
+            raise fail("b/d", "both" if b is not None else "neither",
+                       "exactly one of difficulties b or intercepts d")
+        given = np.atleast_1d(np.asarray(b if b is not None else d, dtype=np.float64))
+        J = given.size
+        slope = np.ones(J) if a is None else np.atleast_1d(np.asarray(a, dtype=np.float64))
+        if slope.shape != given.shape:
+            raise fail("a", f"{slope.size} values", f"one slope per item ({J})")
+        inter = -slope * given if b is not None else given
+        names = [f"item{j + 1}" for j in range(J)] if items is None else [str(i) for i in items]
+        if len(names) != J:
+            raise fail("items", f"{len(names)} names", f"one name per item ({J})")
+        nan = np.full(J, np.nan)
+        table = pd.DataFrame(
+            {"item": names, "a": slope, "b": -inter / slope, "d": inter, "a_se": nan,
+             "b_se": nan, "d_se": nan, "n": np.zeros(J, dtype=np.int64), "p_correct": nan,
+             "infit": nan, "outfit": nan}
+        )
+        empty = pd.DataFrame({c: [] for c in ABILITY_COLUMNS})
+        return cls(
+            model=model, items=table, abilities=empty, loglik=np.nan, n_persons=0, n_items=J,
+            n_params=0, converged=True, n_iter=0, n_estep=0, max_change=np.nan,
+            max_gradient=np.nan, history=(), dropped_items=(), dropped_persons=(), cov=None,
+            quadrature_points=quadrature_points,
+        )
 
     @property
     def a(self) -> np.ndarray:
@@ -376,7 +421,8 @@ def fit_irt(
     se : bool, default True
         Compute standard errors from the observed information.
     fit_statistics : bool, default True
-        Compute item infit and outfit at the EAP abilities (see :func:`item_fit`).
+        Compute item infit and outfit at the maximum-likelihood abilities, respondents with
+        every seen item right or every one wrong left out (see :func:`item_fit`).
 
     Returns
     -------
@@ -502,7 +548,8 @@ def fit_irt(
         }
     )
     if fit_statistics:
-        fit = _item_fit_arrays(X, Mk, theta, a, d, exclude_extreme=True)
+        theta_mle, _, _ = _q.mle_theta(X, Mk, a, d)
+        fit = _item_fit_arrays(X, Mk, theta_mle, a, d, exclude_extreme=True)
         items["infit"], items["outfit"] = fit
     return IRTResult(
         model=model,
@@ -673,7 +720,7 @@ def item_fit(
     data: Any,
     *,
     theta: Any = None,
-    method: str = "eap",
+    method: str = "mle",
     exclude_extreme: bool = True,
 ) -> pd.DataFrame:
     """Item infit and outfit mean squares.
@@ -686,8 +733,10 @@ def item_fit(
         Respondents x items matrix (or trials table) to compute the residuals on.
     theta : array_like, optional
         Abilities of the rows of ``data``; by default scored with ``method``.
-    method : {"eap", "mle"}, default "eap"
-        How abilities are scored when ``theta`` is not given.
+    method : {"mle", "eap"}, default "mle"
+        How abilities are scored when ``theta`` is not given. Maximum likelihood is the usual
+        choice; EAP abilities are shrunk towards 0, which pulls both statistics below 1 on
+        short tests.
     exclude_extreme : bool, default True
         Leave out respondents with every seen item right or every one wrong (common practice:
         their residuals carry no information about misfit).
