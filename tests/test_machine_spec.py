@@ -34,6 +34,7 @@ def test_entry_defaults_and_names():
     assert parse_solver_entry({"spec": "http://10.0.0.2:8000/v1"}).kind == "http"
     assert parse_solver_entry({"spec": "random", "seeds": [3, 7]}).seeds == (3, 7)
     assert parse_solver_entry({"spec": "random", "seeds": 3}).seeds == (0, 1, 2)
+    assert parse_solver_entry({"spec": "random", "families": "toy"}).families == ("toy",)
 
 
 def test_config_hash_tracks_answers_not_names_or_seeds():
@@ -55,6 +56,10 @@ def test_config_hash_tracks_answers_not_names_or_seeds():
         ({"spec": "random", "seeds": [1, 1]}, "field 'seeds': got [1, 1]"),
         ({"spec": "random", "modes": ["guess"]}, "field 'modes': got 'guess'"),
         ({"spec": "random", "medium": "audio"}, "field 'medium': got 'audio'"),
+        (
+            {"spec": "random", "families": ["toys"]},
+            "field 'families': got 'toys'; accepted: one of",
+        ),
         ({"spec": "random", "name": "a b"}, "field 'name': got 'a b'"),
         ({"spec": "random", "timeout": -1}, "field 'timeout': got -1"),
         (

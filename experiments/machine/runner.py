@@ -96,10 +96,13 @@ def _version() -> str:
 def plan_trials(bank: Bank, spec: SolverSpec) -> list[tuple[Item, str]]:
     """The trials of one session in order: each item (bank order) in each of its modes.
 
-    With ``spec.modes`` set, only those modes (and only items offering them) are planned.
+    With ``spec.modes`` set, only those modes (and only items offering them) are planned; with
+    ``spec.families`` set, only items of those families.
     """
     out = []
     for item in bank:
+        if spec.families is not None and item.family not in spec.families:
+            continue
         modes = item.modes if spec.modes is None else [m for m in spec.modes if m in item.modes]
         out.extend((item, m) for m in modes)
     return out

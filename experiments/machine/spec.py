@@ -15,6 +15,7 @@ and a ``[[solvers]]`` entry adds::
     spec = "http:https://example.invalid/v1/chat/completions"
     seeds = 3                  # or a list [0, 5, 9]; default 1 (seed 0)
     modes = ["select"]         # default: every mode listed on each item
+    families = ["strings"]     # default: items of every family
     medium = "text"            # default: the solver's own medium
     timeout = 60               # seconds per trial (default 120)
     [solvers.options]          # handed to the solver or adapter
@@ -51,7 +52,7 @@ __all__ = [
 ]
 
 DEFAULT_TIMEOUT = 120.0
-_ENTRY_KEYS = ("name", "spec", "seeds", "options", "timeout", "modes", "medium")
+_ENTRY_KEYS = ("name", "spec", "seeds", "options", "timeout", "modes", "medium", "families")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 #: option names whose values are secrets and never enter a hash, log or report
 SECRET_OPTIONS = ("api_key",)
@@ -78,6 +79,8 @@ class SolverSpec:
         Response modes to run; ``None`` runs every mode listed on each item.
     medium : str or None
         The view to render; ``None`` uses the solver's own ``medium``.
+    families : tuple of str or None
+        Only items of these families; ``None`` runs every item.
     """
 
     name: str
@@ -87,6 +90,7 @@ class SolverSpec:
     timeout: float = DEFAULT_TIMEOUT
     modes: tuple[str, ...] | None = None
     medium: str | None = None
+    families: tuple[str, ...] | None = None
 
     @property
     def kind(self) -> str:
@@ -102,6 +106,7 @@ class SolverSpec:
             "timeout": self.timeout,
             "modes": None if self.modes is None else list(self.modes),
             "medium": self.medium,
+            "families": None if self.families is None else list(self.families),
         }
 
     @property
@@ -121,6 +126,7 @@ class SolverSpec:
         d = dict(data)
         d["seeds"] = tuple(d["seeds"])
         d["modes"] = None if d.get("modes") is None else tuple(d["modes"])
+        d["families"] = None if d.get("families") is None else tuple(d["families"])
         return cls(**d)
 
 
@@ -228,6 +234,23 @@ def parse_solver_entry(entry: Any, *, where: str = "study.toml: solvers") -> Sol
     medium = entry.get("medium")
     if medium is not None:
         check_choice("medium", medium, MEDIA, where=where, error=SpecError)
+    families = entry.get("families")
+    if families is not None:
+        from twofold.study.families import known_families
+
+        if isinstance(families, str):
+            families = [families]
+        if not isinstance(families, list) or not families:
+            raise fail(
+                "families",
+                families,
+                "a non-empty list of family names",
+                where=where,
+                error=SpecError,
+            )
+        for f in families:
+            check_choice("families", f, known_families(), where=where, error=SpecError)
+        families = tuple(families)
     if "api_key" in options:
         raise fail(
             "options.api_key",
@@ -244,6 +267,7 @@ def parse_solver_entry(entry: Any, *, where: str = "study.toml: solvers") -> Sol
         timeout=timeout,
         modes=modes,
         medium=medium,
+        families=families,
     )
 
 
