@@ -397,6 +397,11 @@ def _abc_item():
         "{t} -> {a}",
         "Answer: {spaced}",
         "Final answer: `{a}`",
+        "**Answer:** {a}",
+        "Answer: **{a}**",
+        "I'll answer: the string becomes {a}",
+        "answer = '{a}'",
+        "Reasoning... the last symbol moves one step on.\n\nAnswer:\n{a}",
     ],
 )
 def test_parse_text_reads_messy_replies(template):

@@ -1334,26 +1334,53 @@ def _marker() -> re.Pattern[str]:
     )
 
 
-def _segment_answer(segment: str, symbols: str) -> str | None:
-    """The leading run of symbol tokens of a segment (``a b d`` or ``abd``), or ``None``."""
-    tokens = segment.split()
-    got: list[str] = []
-    for tok in tokens:
-        c = _clean(tok, symbols)
-        if c is None:
+def _segment_answer(segment: str, symbols: str, near: set[str]) -> str | None:
+    """The answer written at the start of a segment (``abd``, ``a b d``, ``**abd**``), or ``None``.
+
+    Punctuation-only tokens are skipped. A run of single symbols separated by spaces is one answer.
+    Otherwise the first token made of symbols is taken; for letter orders a later token whose
+    symbols all lie near the item's strings wins over a leading ordinary word (``the``).
+    """
+    cleaned = []
+    for tok in segment.split():
+        if not tok.strip(_STRIP):
+            continue  # punctuation only: ** or :
+        cleaned.append(_clean(tok, symbols))
+    if not cleaned or cleaned[0] is None:
+        return None
+    singles = []
+    for c in cleaned:
+        if c is None or len(c) != 1:
             break
-        got.append(c)
-        if symbols.isalpha() and len(c) > 1:
-            break  # a whole word of letters: one answer, not a spaced run
-    return "".join(got) if got else None
+        singles.append(c)
+    if len(singles) >= 2:
+        return "".join(singles)
+    first = cleaned[0]
+    if not symbols.isalpha() or set(first) <= near:
+        return first
+    for c in cleaned[1:]:
+        if c is not None and len(c) >= 2 and set(c) <= near:
+            return c
+    return first
+
+
+def _near(symbols: str, stimulus: Mapping[str, Any]) -> set[str]:
+    """Symbols within two places of a symbol of the target or the changed string."""
+    n = len(symbols)
+    return {
+        symbols[(symbols.index(c) + k) % n]
+        for c in stimulus["target"] + stimulus["changed"]
+        for k in (-2, -1, 0, 1, 2)
+    }
 
 
 def _parse_reply(text: str, symbols: str, stimulus: Mapping[str, Any]) -> str | None:
+    near = _near(symbols, stimulus)
     # 1. after the last "Answer:"-style marker
-    marks = list(_marker().finditer(text))
-    for m in reversed(marks):
-        rest = text[m.end() :].split("\n", 1)[0]
-        got = _segment_answer(rest, symbols)
+    for m in reversed(list(_marker().finditer(text))):
+        lines = [ln for ln in text[m.end() :].split("\n") if ln.strip(_STRIP + " \t")]
+        rest = lines[0] if lines else ""
+        got = _segment_answer(rest, symbols, near)
         if got is not None:
             return got
     # 2. the last code block, quoted or bold stretch
@@ -1367,15 +1394,9 @@ def _parse_reply(text: str, symbols: str, stimulus: Mapping[str, Any]) -> str | 
             if got is not None:
                 return got
     # 3. the last run of symbols in prose that could be an answer to this item: two or more
-    # symbols, each within two places of a symbol of the target or the changed string (so
-    # ordinary words are not taken for answers), preferring runs other than the strings shown
+    # symbols, each near the target or the changed string (so ordinary words are not taken for
+    # answers), preferring runs other than the strings shown
     shown = {stimulus["source"], stimulus["changed"], stimulus["target"]}
-    n = len(symbols)
-    near = {
-        symbols[(symbols.index(c) + k) % n]
-        for c in stimulus["target"] + stimulus["changed"]
-        for k in (-2, -1, 0, 1, 2)
-    }
     cands = []
     for line in text.splitlines():
         for tok in re.split(r"\s+|->|→|=>", line):
