@@ -1296,17 +1296,19 @@ def _labels(vec: int, n_a: int, n_b: int, n_test: int) -> str:
 
 
 def _validity(
-    panels: list[list[list[int]]], rule: Rule, n_a: int, n_b: int, *, minimal: bool
+    panels: list[list[list[int]]], rule: Rule, n_a: int, n_b: int, *, minimal: bool,
+    length: int | None = None,
 ) -> tuple[str | None, Rule | None, dict[str, np.ndarray]]:
     """Reason to reject (or None), one offending rule and the separating rules.
 
     Valid means: the hidden rule separates the training sets, and no enumerated rule of equal or
-    shorter description length separates them but classifies a test panel differently (with
-    ``minimal``, no strictly shorter rule separates them at all).
+    shorter description length (``length``, default the hidden rule's) separates them but
+    classifies a test panel differently (with ``minimal``, no strictly shorter rule separates
+    them at all).
     """
     n_test = len(panels) - n_a - n_b
     am, bm, tm = _masks(n_a, n_b, n_test)
-    length = rule_length(rule)
+    length = rule_length(rule) if length is None else length
     vec = leaf_vectors(panels)
     sep = separating(vec, a_mask=am, b_mask=bm, max_length=length)
     h = rule_vector(rule, panels)
@@ -1389,7 +1391,8 @@ class ContrastFamily(Family):
         "per-panel": "each test panel is classified A or B; the choices are the two set labels",
     }
     variant_operators = {
-        "swap-sets": "exchange sets A and B; the rule becomes its negation",
+        "swap-sets": "exchange sets A and B; the rule becomes its negation (validity is "
+                     "checked up to the shorter of the rule and its negation)",
         "change-irrelevant": "redraw the values of the attributes the rule does not use",
         "change-surface": "swap the values of a nominal attribute the rule uses (e.g. two shapes)",
         "mirror": "mirror every panel left to right (left and right swap in the rule)",
@@ -1509,7 +1512,8 @@ class ContrastFamily(Family):
         panels = [*set_a, *set_b, *tests]
         sep = checked
         if sep is None:
-            reason, _, sep = _validity(panels, rule, len(set_a), len(set_b), minimal=minimal)
+            reason, _, sep = _validity(panels, rule, len(set_a), len(set_b), minimal=minimal,
+                                       length=_check_length(rule, variant_operator))
             if reason:
                 raise Rejected(reason)
         text = format_rule(rule)
@@ -1617,7 +1621,8 @@ class ContrastFamily(Family):
         h = rule_vector(rule, panels)
         if _labels(h, n_a, n_b, n_test) != item.answer["labels"]:
             problems.append("stored labels differ from the rule's classification")
-        reason, _, _ = _validity(panels, rule, n_a, n_b, minimal=False)
+        reason, _, _ = _validity(panels, rule, n_a, n_b, minimal=False,
+                                 length=_check_length(rule, item.variant_operator))
         if reason:
             problems.append(reason)
         for k, pnl in enumerate(panels):
@@ -1638,7 +1643,19 @@ class ContrastFamily(Family):
         return len(item.stimulus["test"])
 
     def normalize(self, item: Item, response: Any, mode: str) -> Any:
+        """Canonical response: the label string (select) or the rule's canonical notation.
+
+        A mapping shaped like the item's answer (``{"labels": ..., "rule": ...}``) is read for
+        the part that belongs to ``mode``.
+        """
         n = self._n_test(item)
+        if isinstance(response, Mapping):
+            key = "labels" if mode == "select" else "rule"
+            if key not in response:
+                raise ResponseError(
+                    f"item {item.id}: field 'response': got {response!r}; accepted: a str, or a "
+                    f"mapping with '{key}'.", field="response")
+            response = response[key]
         if mode == "select":
             if isinstance(response, list | tuple):
                 response = "".join(str(r) for r in response)
@@ -1967,6 +1984,14 @@ class ContrastFamily(Family):
             xy, closed=True, facecolor=_FILL[VALUES["shade"].index(o["shade"])],
             edgecolor="#111111", lw=1.3 if dash else 1.0, linestyle=(0, (2, 1.2)) if dash
             else "-"))
+
+
+def _check_length(rule: Rule, operator: str | None) -> int:
+    """Length up to which validity is checked: the rule's, or for swapped sets the shorter of
+    the rule and its negation (which set is called A is arbitrary; the negation sign is free)."""
+    if operator == "swap-sets":
+        return min(rule_length(rule), rule_length(_negate(rule)))
+    return rule_length(rule)
 
 
 def _lit_uses_only_irrelevant(lit: Rule, used: set[str]) -> bool:
