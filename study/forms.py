@@ -11,6 +11,7 @@ practice items) and ``[forms]`` says how forms vary across respondents::
     time_limit_s = 90               # per item; 0 or absent: no limit
     practice = 2                    # practice items taken from the block (or a list of item ids)
     feedback = true                 # feedback after practice items
+    state_rule = false              # contrast: also type the rule (kept verbatim)
 
     [forms]
     order = "williams"              # "fixed", "latin" (cyclic Latin square) or "williams"
@@ -85,6 +86,7 @@ _BLOCK_KEYS = (
     "time_limit_s",
     "practice",
     "feedback",
+    "state_rule",
 )
 _FORM_KEYS = (
     "order",
@@ -110,6 +112,7 @@ class BlockSpec:
     time_limit_s: float | None
     practice: int | tuple[str, ...]
     feedback: bool
+    state_rule: bool = False
 
 
 @dataclasses.dataclass(frozen=True)
@@ -240,6 +243,7 @@ def parse_blocks(study: Any, *, check_files: bool = True) -> tuple[BlockSpec, ..
                 f"{key}.practice", practice, low=0, high=20, where=where, error=SpecError
             )
         feedback = _bool(f"{key}.feedback", b.get("feedback", True), where=where)
+        state_rule = _bool(f"{key}.state_rule", b.get("state_rule", False), where=where)
         out.append(
             BlockSpec(
                 name=name,
@@ -250,6 +254,7 @@ def parse_blocks(study: Any, *, check_files: bool = True) -> tuple[BlockSpec, ..
                 time_limit_s=tl or None,
                 practice=practice,
                 feedback=feedback,
+                state_rule=state_rule,
             )
         )
     return tuple(out)
@@ -377,6 +382,8 @@ class FormBlock:
         The block's item ids in presentation order.
     feedback : bool
         Whether practice items get feedback.
+    state_rule : bool
+        Whether respondents also type a statement of the rule (kept verbatim).
     """
 
     name: str
@@ -386,6 +393,7 @@ class FormBlock:
     practice: tuple[str, ...]
     items: tuple[str, ...]
     feedback: bool = True
+    state_rule: bool = False
 
 
 @dataclasses.dataclass(frozen=True)
@@ -439,6 +447,7 @@ class Form:
                 practice=tuple(b["practice"]),
                 items=tuple(b["items"]),
                 feedback=bool(b.get("feedback", True)),
+                state_rule=bool(b.get("state_rule", False)),
             )
             for b in rec["blocks"]
         )
@@ -692,6 +701,7 @@ def build_forms(study: Any, n_respondents: int | None = None, *, bank: Any = Non
                     practice=practice[bi],
                     items=tuple(order),
                     feedback=b.feedback,
+                    state_rule=b.state_rule,
                 )
             )
         forms.append(

@@ -51,7 +51,9 @@ def start_display() -> str:
             continue
         proc = subprocess.Popen(
             ["Xvfb", f":{n}", "-screen", "0", "1280x1024x24", "-nolisten", "tcp"],
-            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, preexec_fn=_pdeathsig,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+            preexec_fn=_pdeathsig,
         )
         for _ in range(100):
             if Path(f"/tmp/.X11-unix/X{n}").exists():
@@ -82,32 +84,53 @@ def session_env(display: str, home: Path, probe: Path) -> dict[str, str]:
     """Environment of a session subprocess: private HOME, no PsychoPy packages, the probe."""
     env = dict(os.environ)
     home.mkdir(parents=True, exist_ok=True)
-    env.update({
-        "DISPLAY": display, "HOME": str(home), "MPLCONFIGDIR": str(home / "mpl"),
-        "PSYCHOPYNOPACKAGES": "1", "TWOFOLD_RUNNER_PROBE": str(probe),
-        "PYTHONPATH": os.pathsep.join(filter(None, [str(REPO / "tests"),
-                                                    env.get("PYTHONPATH", "")])),
-    })
+    env.update(
+        {
+            "DISPLAY": display,
+            "HOME": str(home),
+            "MPLCONFIGDIR": str(home / "mpl"),
+            "PSYCHOPYNOPACKAGES": "1",
+            "TWOFOLD_RUNNER_PROBE": str(probe),
+            "PYTHONPATH": os.pathsep.join(
+                filter(None, [str(REPO / "tests"), env.get("PYTHONPATH", "")])
+            ),
+        }
+    )
     return env
 
 
 class Driver:
     """Start a session process and play the respondent: keys and clicks via XTEST."""
 
-    def __init__(self, display: str, study: Path, respondent: str, tmp: Path, *,
-                 resume: bool = False, imports: tuple[str, ...] = ()):
+    def __init__(
+        self,
+        display: str,
+        study: Path,
+        respondent: str,
+        tmp: Path,
+        *,
+        resume: bool = False,
+        imports: tuple[str, ...] = (),
+    ):
         from Xlib import display as xdisplay
 
         self.probe_path = tmp / f"probe-{respondent}-{time.monotonic_ns()}.json"
         env = session_env(display, tmp / "home", self.probe_path)
-        cmd = [sys.executable, "-m", "twofold.experiments.human", str(study),
-               "--respondent", respondent]
+        cmd = [
+            sys.executable,
+            "-m",
+            "twofold.experiments.human",
+            str(study),
+            "--respondent",
+            respondent,
+        ]
         if resume:
             cmd.append("--resume")
         for m in imports:
             cmd += ["--import", m]
-        self.proc = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE,
-                                     stderr=subprocess.PIPE, text=True)
+        self.proc = subprocess.Popen(
+            cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True
+        )
         self.x = xdisplay.Display(display)
         self.seq = 0
         self.state: dict[str, Any] = {}
@@ -118,8 +141,10 @@ class Driver:
         t0 = time.monotonic()
         while time.monotonic() - t0 < timeout:
             if self.proc.poll() is not None:
-                raise AssertionError(f"session ended (rc {self.proc.returncode}) while waiting "
-                                     f"for {screen}: {self.proc.stderr.read()}")
+                raise AssertionError(
+                    f"session ended (rc {self.proc.returncode}) while waiting "
+                    f"for {screen}: {self.proc.stderr.read()}"
+                )
             try:
                 data = json.loads(self.probe_path.read_text("utf-8"))
             except (FileNotFoundError, json.JSONDecodeError):
@@ -127,11 +152,19 @@ class Driver:
             if data and data["seq"] > self.seq:
                 self.seq = data["seq"]
                 self.state = data
-                if screen is None or data["screen"] == screen:
+                x0, y0, w, h = data["window"]
+                outside = {
+                    k: v
+                    for k, v in data["targets"].items()
+                    if not (x0 <= v[0] < x0 + w and y0 <= v[1] < y0 + h)
+                }
+                assert not outside, f"targets outside the window: {outside}"
+                if data["screen"] == screen or (screen is None and data["screen"] != "update"):
                     return data
             time.sleep(0.002)
-        raise AssertionError(f"no {screen or 'new'} screen within {timeout} s "
-                             f"(last: {self.state.get('screen')})")
+        raise AssertionError(
+            f"no {screen or 'new'} screen within {timeout} s (last: {self.state.get('screen')})"
+        )
 
     def refresh(self) -> dict[str, Any]:
         """Re-read the probe of the current screen (targets may move, e.g. a resized grid)."""

@@ -27,7 +27,6 @@ def human(
     plan = prepare_session(study_file, respondent, resume=resume)  # every check, no window yet
     console.print(BANNER, style="bold yellow", markup=False)
     result = run_session(plan)
-    stdout.print(f"session {result.status}: {result.n_written} trials written to "
-                 f"{result.csv_path}")
+    stdout.print(f"session {result.status}: {result.n_written} trials written to {result.csv_path}")
     if result.status != "complete":
         raise typer.Exit(3 if result.status == "aborted" else 4)

@@ -34,8 +34,10 @@ def main(argv: list[str] | None = None) -> int:
     except TwofoldError as err:
         print(f"error: {err}", file=sys.stderr)
         return 2
-    print(f"session {result.status}: {result.n_written} trials written to {result.csv_path}",
-          file=sys.stderr)
+    print(
+        f"session {result.status}: {result.n_written} trials written to {result.csv_path}",
+        file=sys.stderr,
+    )
     return EXIT[result.status]
 
 

@@ -60,7 +60,11 @@ class SessionResult:
 
     def __init__(self, status: str, n_written: int, csv_path: Path, sidecar: dict[str, Any]):
         self.status, self.n_written, self.csv_path, self.sidecar = (
-            status, n_written, csv_path, sidecar)
+            status,
+            n_written,
+            csv_path,
+            sidecar,
+        )
 
     def __repr__(self) -> str:
         return f"SessionResult(status={self.status!r}, n_written={self.n_written})"
@@ -72,6 +76,7 @@ class _Frames:
     def __init__(self, period: float | None):
         self.period = period
         self.n = 0
+        self.prep_ms = 0.0
         self.dropped = 0
         self.max_ms = 0.0
         self.sum_ms = 0.0
@@ -104,13 +109,15 @@ class _Session:
         self.plan = plan
         self.probe_path = os.environ.get("TWOFOLD_RUNNER_PROBE")
         self.probe_seq = 0
+        self.built: dict[tuple[str, str], Any] = {}
+        self.seen_keys: dict[tuple[str, float], None] = {}
 
     # -- set-up ----------------------------------------------------------------------------
     def open(self) -> None:
         os.environ.setdefault("PSYCHOPYNOPACKAGES", "1")
         try:
-            from psychopy import core, event, logging, visual
             from psychopy import clock as pclock
+            from psychopy import core, event, logging, visual
             from psychopy.hardware import keyboard
         except Exception as err:  # no display, missing library...
             raise RunnerError(f"PsychoPy could not start: {err}") from err
@@ -119,8 +126,12 @@ class _Session:
         opts = self.plan.options
         try:
             self.win = visual.Window(
-                size=list(opts.size), fullscr=opts.fullscreen, units="pix",
-                color=opts.background, checkTiming=False, allowGUI=not opts.fullscreen,
+                size=list(opts.size),
+                fullscr=opts.fullscreen,
+                units="pix",
+                color=opts.background,
+                checkTiming=False,
+                allowGUI=not opts.fullscreen,
                 winType="pyglet",
             )
         except Exception as err:
@@ -138,10 +149,10 @@ class _Session:
         self.size = tuple(int(v) for v in self.win.size)
         from .screens import Ctx
 
-        self.ctx = Ctx(win=self.win, visual=visual, size=self.size,
-                       background=opts.background)
-        rate = self.win.getActualFrameRate(nIdentical=10, nMaxFrames=120, nWarmUpFrames=10,
-                                           threshold=1)
+        self.ctx = Ctx(win=self.win, visual=visual, size=self.size, background=opts.background)
+        rate = self.win.getActualFrameRate(
+            nIdentical=10, nMaxFrames=120, nWarmUpFrames=10, threshold=1
+        )
         self.refresh_hz = float(rate) if rate else None
         self.period = 1.0 / self.refresh_hz if self.refresh_hz else None
         self.start = self.core.getTime()
@@ -152,7 +163,17 @@ class _Session:
         """New key presses since ``since``: released ones and ones still held, by press time."""
         got = list(self.kb.getKeys(waitRelease=True)) + list(self.kb.getKeys(waitRelease=False))
         got.sort(key=lambda k: k.tDown)
-        return [k for k in got if k.tDown >= since]
+        out = []
+        for k in got:
+            # a key seen while held comes back once more on release: report each press once
+            mark = (k.name, round(float(k.tDown), 6))
+            if mark in self.seen_keys or k.tDown < since:
+                continue
+            self.seen_keys[mark] = None
+            out.append(k)
+        while len(self.seen_keys) > 256:
+            del self.seen_keys[next(iter(self.seen_keys))]
+        return out
 
     def probe(self, screen: str, onset: float, **extra: Any) -> None:
         if not self.probe_path:
@@ -161,23 +182,46 @@ class _Session:
 
         loc = (0, 0) if self.plan.options.fullscreen else self.win.winHandle.get_location()
         w, h = self.size
-        targets = {k: [loc[0] + w / 2 + x, loc[1] + h / 2 - y]
-                   for k, (x, y) in (extra.pop("targets", None) or {}).items()}
+        targets = {
+            k: [loc[0] + w / 2 + x, loc[1] + h / 2 - y]
+            for k, (x, y) in (extra.pop("targets", None) or {}).items()
+        }
         self.probe_seq += 1
-        data = {"seq": self.probe_seq, "screen": screen, "onset": self.origin_abs + onset,
-                "getsecs": ptb.GetSecs(), "time": time.time(), "targets": targets,
-                "pid": os.getpid(), **extra}
+        data = {
+            "seq": self.probe_seq,
+            "screen": screen,
+            "onset": self.origin_abs + onset,
+            "getsecs": ptb.GetSecs(),
+            "time": time.time(),
+            "targets": targets,
+            "pid": os.getpid(),
+            "window": [loc[0], loc[1], w, h],
+            **extra,
+        }
         tmp = f"{self.probe_path}.tmp"
         with open(tmp, "w", encoding="utf-8") as fh:
             json.dump(data, fh)
         os.replace(tmp, self.probe_path)
 
     # -- generic screens -----------------------------------------------------------------------
-    def text_screen(self, text: str, keys: tuple[str, ...], name: str, *,
-                    max_s: float | None = None, escape: bool = True) -> str | None:
-        stim = self.visual.TextStim(self.win, text=text, height=24, color="#e8e4da",
-                                    wrapWidth=self.size[0] * 0.8, font="DejaVu Sans",
-                                    units="pix")
+    def text_screen(
+        self,
+        text: str,
+        keys: tuple[str, ...],
+        name: str,
+        *,
+        max_s: float | None = None,
+        escape: bool = True,
+    ) -> str | None:
+        stim = self.visual.TextStim(
+            self.win,
+            text=text,
+            height=24,
+            color="#e8e4da",
+            wrapWidth=self.size[0] * 0.8,
+            font="DejaVu Sans",
+            units="pix",
+        )
         while True:
             stim.draw()
             onset = self.win.flip()
@@ -200,39 +244,78 @@ class _Session:
     def confirm_abort(self) -> None:
         """Ask whether to end the session; raise :class:`Aborted` on yes."""
         key = self.text_screen(
-            "End the session now?\n\nY = end the session      N = go on", ("y", "n"),
-            "confirm", escape=False,
+            "End the session now?\n\nY = end the session      N = go on",
+            ("y", "n"),
+            "confirm",
+            escape=False,
         )
         if key == "y":
             raise Aborted()
 
     # -- one item ----------------------------------------------------------------------------
-    def present(self, item: Any, mode: str, *, time_limit: float | None, trial: int | None,
-                block: str) -> tuple[Any, float, float | None, str, str | None, _Frames]:
-        """Show ``item`` until a response or the time limit.
-
-        Returns (response, onset, response time, status, detail, frames) on the core clock.
-        """
+    def screen(self, item: Any, block: Any) -> Any:
+        """The response screen of ``item`` in ``block`` (built ahead when possible)."""
         from .screens import make_screen
 
-        view = render(item, "structured", mode)
-        screen = make_screen(self.ctx, item, view, mode)
+        key = (item.id, block.mode)
+        if key in self.built:
+            return self.built.pop(key)
+        view = render(item, "structured", block.mode)
+        return make_screen(
+            self.ctx, item, view, block.mode, state_rule=getattr(block, "state_rule", False)
+        )
+
+    def present(
+        self, item: Any, block: Any, *, trial: int | None, ahead: tuple[Any, Any] | None = None
+    ) -> tuple[Any, float, float | None, str, str | None, _Frames]:
+        """Show ``item`` until a response or the block's time limit.
+
+        ``ahead`` = (next item, its block): its screen is built right after this item's onset,
+        so the next onset follows a response quickly. Returns (response, onset, response time,
+        status, detail, frames) on the core clock.
+        """
+        screen = self.screen(item, block)
         while True:
             try:
-                return self._present(screen, time_limit=time_limit, trial=trial, block=block)
+                return self._present(
+                    screen,
+                    time_limit=block.time_limit_s,
+                    trial=trial,
+                    block=block.name,
+                    ahead=ahead,
+                )
             except _Restart:
+                ahead = None
                 continue
 
-    def _present(self, screen: Any, *, time_limit: float | None, trial: int | None,
-                 block: str) -> tuple[Any, float, float | None, str, str | None, _Frames]:
+    def _present(
+        self,
+        screen: Any,
+        *,
+        time_limit: float | None,
+        trial: int | None,
+        block: str,
+        ahead: tuple[Any, Any] | None,
+    ) -> tuple[Any, float, float | None, str, str | None, _Frames]:
         frames = _Frames(self.period)
         screen.draw()
         onset = self.win.flip()
         self.mouse.clickReset()
         reset_core = self.event.mouseClick[0].getLastResetTime() - self.origin_abs
-        self.probe("trial", onset, trial=trial, block=block, item=screen.item.id,
-                   targets=screen.targets)
-        last, was_down, answer = onset, False, None
+        if ahead is not None and (ahead[0].id, ahead[1].mode) not in self.built:
+            # key times come from the keyboard queue, so building now does not shift them
+            t0 = self.core.getTime()
+            self.built = {(ahead[0].id, ahead[1].mode): self.screen(*ahead)}
+            frames.prep_ms = (self.core.getTime() - t0) * 1000
+            screen.draw()
+            last = self.win.flip()  # the screen was static meanwhile: not a frame interval
+        else:
+            last = onset
+        # the probe (tests only) goes out once the loop is ready to take input
+        self.probe(
+            "trial", onset, trial=trial, block=block, item=screen.item.id, targets=screen.targets
+        )
+        answer, press_t = None, 0.0
         while answer is None:
             for k in self.keys(onset):
                 if k.name == "escape":
@@ -243,14 +326,22 @@ class _Session:
                     break
             if answer is None:
                 buttons, times = self.mouse.getPressed(getTime=True)
-                if buttons[0] and not was_down:
+                # a new press shows as a new press time, even when already released (a short
+                # click between two polls would be missed by the button state alone)
+                if times[0] and times[0] != press_t:
+                    press_t = times[0]
                     answer = screen.press(self.mouse.getPos(), reset_core + times[0])
                     if answer is None:  # the screen may have changed (e.g. a resized grid)
-                        self.probe("trial", onset, trial=trial, block=block,
-                                   item=screen.item.id, targets=screen.targets)
+                        self.probe(
+                            "update",
+                            onset,
+                            trial=trial,
+                            block=block,
+                            item=screen.item.id,
+                            targets=screen.targets,
+                        )
                 elif buttons[0]:
                     screen.drag(self.mouse.getPos())
-                was_down = bool(buttons[0])
             if answer is not None:
                 break
             now = self.core.getTime()
@@ -273,22 +364,40 @@ class _Session:
         interruptions = list(prev.get("interruptions", []))
         first_open = min((k for k, _, _ in plan.trials if k not in plan.done), default=None)
         if plan.resume:
-            interruptions.append({"previous_status": prev.get("status"),
-                                  "resumed": _now(), "next_trial": first_open,
-                                  "trials_on_disk": len(plan.done)})
+            interruptions.append(
+                {
+                    "previous_status": prev.get("status"),
+                    "resumed": _now(),
+                    "next_trial": first_open,
+                    "trials_on_disk": len(plan.done),
+                }
+            )
         meta = writer.update_sidecar(
-            study=study.name, bank_hash=plan.bank.hash, session=plan.respondent,
-            respondent=plan.respondent, kind="human", synthetic=False, form=form.form_id,
-            form_list=form.list, form_order=form.order, status="running",
-            started=prev.get("started", _now()), ended=None,
-            twofold_version=_version("twofold"), psychopy_version=_version("psychopy-lib"),
-            python_version=sys.version.split()[0], platform=platform.platform(),
-            n_trials=len(plan.done), n_form_trials=len(plan.trials),
+            study=study.name,
+            bank_hash=plan.bank.hash,
+            session=plan.respondent,
+            respondent=plan.respondent,
+            kind="human",
+            synthetic=False,
+            form=form.form_id,
+            form_list=form.list,
+            form_order=form.order,
+            status="running",
+            started=prev.get("started", _now()),
+            ended=None,
+            twofold_version=_version("twofold"),
+            psychopy_version=_version("psychopy-lib"),
+            python_version=sys.version.split()[0],
+            platform=platform.platform(),
+            n_trials=len(plan.done),
+            n_form_trials=len(plan.trials),
             interruptions=interruptions,
             screen={"size": list(self.size), "fullscreen": plan.options.fullscreen},
-            refresh_hz=self.refresh_hz, keyboard_backend=self.kb.getBackend(),
+            refresh_hz=self.refresh_hz,
+            keyboard_backend=self.kb.getBackend(),
             clock={"name": "psychtoolbox GetSecs", "session_origin": self.origin_abs + self.start},
-            consent=prev.get("consent", False), practice_done=prev.get("practice_done", []),
+            consent=prev.get("consent", False),
+            practice_done=prev.get("practice_done", []),
         )
         n_done = len(plan.done)
         session_frames = _Frames(self.period)
@@ -299,8 +408,9 @@ class _Session:
                 if key != "y":
                     writer.close()
                     plan.csv_path.unlink(missing_ok=True)
-                    meta = writer.update_sidecar(status="declined", ended=_now(), n_trials=0,
-                                                 consent=False)
+                    meta = writer.update_sidecar(
+                        status="declined", ended=_now(), n_trials=0, consent=False
+                    )
                     return SessionResult("declined", 0, plan.csv_path, meta)
                 meta = writer.update_sidecar(consent=True)
             practice_done = list(meta.get("practice_done", []))
@@ -312,8 +422,11 @@ class _Session:
                 if not todo:
                     continue
                 if bi > 0 and form.break_between_blocks and len(todo) == len(idx):
-                    self.text_screen("Take a short break.\n\nPress SPACE when you are ready "
-                                     "to go on.", ("space",), "break")
+                    self.text_screen(
+                        "Take a short break.\n\nPress SPACE when you are ready to go on.",
+                        ("space",),
+                        "break",
+                    )
                 self.text_screen(plan.instructions[block.name], ("space",), "instructions")
                 if block.practice and block.name not in practice_done:
                     self.practice(block)
@@ -322,18 +435,28 @@ class _Session:
                 for pos, k in enumerate(idx):
                     if k in plan.done:
                         continue
-                    if (form.break_every and pos > 0 and pos % form.break_every == 0
-                            and k != todo[0]):
-                        self.text_screen("Take a short break.\n\nPress SPACE when you are "
-                                         "ready to go on.", ("space",), "break")
-                    row, frames = self.trial(block, k, block.items[pos])
+                    if (
+                        form.break_every
+                        and pos > 0
+                        and pos % form.break_every == 0
+                        and k != todo[0]
+                    ):
+                        self.text_screen(
+                            "Take a short break.\n\nPress SPACE when you are ready to go on.",
+                            ("space",),
+                            "break",
+                        )
+                    row, frames = self.trial(
+                        block, k, block.items[pos], ahead=self.next_of(bi, pos)
+                    )
                     writer.append(row)
                     n_done += 1
                     session_frames.merge(frames)
-                    writer.update_sidecar(n_trials=n_done,
-                                          frames=_combine(prior, session_frames.stats()),
-                                          dropped_frames=_combine(prior, session_frames.stats())
-                                          ["dropped"])
+                    writer.update_sidecar(
+                        n_trials=n_done,
+                        frames=_combine(prior, session_frames.stats()),
+                        dropped_frames=_combine(prior, session_frames.stats())["dropped"],
+                    )
             self.text_screen(plan.options.end_text, ("space",), "end", max_s=30)
             meta = writer.update_sidecar(status="complete", ended=_now(), n_trials=n_done)
             return SessionResult("complete", writer.n_written, plan.csv_path, meta)
@@ -341,17 +464,36 @@ class _Session:
             meta = writer.update_sidecar(status="aborted", ended=_now(), n_trials=n_done)
             return SessionResult("aborted", writer.n_written, plan.csv_path, meta)
         except BaseException as err:
-            writer.update_sidecar(status="failed", ended=_now(), n_trials=n_done,
-                                  failure=f"{type(err).__name__}: {err}")
+            writer.update_sidecar(
+                status="failed",
+                ended=_now(),
+                n_trials=n_done,
+                failure=f"{type(err).__name__}: {err}",
+            )
             raise
         finally:
             writer.close()
 
-    def trial(self, block: Any, k: int, item_id: str) -> tuple[dict[str, Any], _Frames]:
+    def next_of(self, bi: int, pos: int) -> tuple[Any, Any] | None:
+        """The item shown after position ``pos`` of block ``bi`` (and its block)."""
+        blocks = self.plan.form.blocks
+        block = blocks[bi]
+        if pos + 1 < len(block.items):
+            return self.plan.bank[block.items[pos + 1]], block
+        if bi + 1 < len(blocks):
+            nb = blocks[bi + 1]
+            first = nb.practice[0] if nb.practice else (nb.items[0] if nb.items else None)
+            return (self.plan.bank[first], nb) if first else None
+        return None
+
+    def trial(
+        self, block: Any, k: int, item_id: str, *, ahead: tuple[Any, Any] | None = None
+    ) -> tuple[dict[str, Any], _Frames]:
         plan = self.plan
         item = plan.bank[item_id]
         resp, onset, t_resp, status, detail, frames = self.present(
-            item, block.mode, time_limit=block.time_limit_s, trial=k, block=block.name)
+            item, block, trial=k, ahead=ahead
+        )
         correct = error_type = None
         if status == "ok":
             try:
@@ -360,14 +502,27 @@ class _Session:
             except ResponseError as err:
                 status, detail = "invalid", str(err)
         st = frames.stats()
-        frame_note = (f"frames {st['n_intervals']}, max {st['max_interval_ms']} ms, "
-                      f"dropped {st['dropped']}")
+        frame_note = (
+            f"frames {st['n_intervals']}, max {st['max_interval_ms']} ms, "
+            f"dropped {st['dropped']}; next screen built in {frames.prep_ms:.0f} ms"
+        )
         row = {
-            "study": plan.study.name, "bank_hash": plan.bank.hash,
-            "respondent": plan.respondent, "kind": "human", "synthetic": False,
-            "session": plan.respondent, "form": plan.form.form_id, "block": block.name,
-            "trial": k, "item": item.id, "family": item.family, "mode": block.mode,
-            "response": resp, "correct": correct, "error_type": error_type, "status": status,
+            "study": plan.study.name,
+            "bank_hash": plan.bank.hash,
+            "respondent": plan.respondent,
+            "kind": "human",
+            "synthetic": False,
+            "session": plan.respondent,
+            "form": plan.form.form_id,
+            "block": block.name,
+            "trial": k,
+            "item": item.id,
+            "family": item.family,
+            "mode": block.mode,
+            "response": resp,
+            "correct": correct,
+            "error_type": error_type,
+            "status": status,
             "rt_ms": None if t_resp is None else (t_resp - onset) * 1000.0,
             "onset_s": onset - self.start,
             "response_s": None if t_resp is None else t_resp - self.start,
@@ -376,11 +531,13 @@ class _Session:
         return row, frames
 
     def practice(self, block: Any) -> None:
-        for pid in block.practice:
+        items = list(block.practice) + list(block.items[:1])
+        for j, pid in enumerate(block.practice):
             item = self.plan.bank[pid]
-            resp, _, _, status, _, _ = self.present(item, block.mode,
-                                                    time_limit=block.time_limit_s, trial=None,
-                                                    block=block.name)
+            nxt = self.plan.bank[items[j + 1]] if j + 1 < len(items) else None
+            resp, _, _, status, _, _ = self.present(
+                item, block, trial=None, ahead=(nxt, block) if nxt is not None else None
+            )
             if not block.feedback:
                 continue
             if status == "timeout":
@@ -407,11 +564,20 @@ def _combine(prior: dict[str, Any], now: dict[str, Any]) -> dict[str, Any]:
     n = prior["n_intervals"] + now["n_intervals"]
     mean = None
     if n:
-        mean = round(((prior["mean_interval_ms"] or 0) * prior["n_intervals"]
-                      + (now["mean_interval_ms"] or 0) * now["n_intervals"]) / n, 3)
-    return {"n_intervals": n, "mean_interval_ms": mean,
-            "max_interval_ms": max(prior["max_interval_ms"], now["max_interval_ms"]),
-            "dropped": prior["dropped"] + now["dropped"]}
+        mean = round(
+            (
+                (prior["mean_interval_ms"] or 0) * prior["n_intervals"]
+                + (now["mean_interval_ms"] or 0) * now["n_intervals"]
+            )
+            / n,
+            3,
+        )
+    return {
+        "n_intervals": n,
+        "mean_interval_ms": mean,
+        "max_interval_ms": max(prior["max_interval_ms"], now["max_interval_ms"]),
+        "dropped": prior["dropped"] + now["dropped"],
+    }
 
 
 def run_session(plan: SessionPlan) -> SessionResult:
