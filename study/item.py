@@ -174,12 +174,15 @@ class Item:
         record["modes"] = list(fields.get("modes") or ["generate"])
         if record["choices"] is not None:
             record["choices"] = list(record["choices"])
-        record.setdefault("seed", 0)
-        if record["seed"] is None:
-            record["seed"] = 0
-        record = json.loads(canonical_json(record))  # plain JSON values only
-        record["id"] = content_id(prefix, record)
-        return cls.from_record(record, validate=False)
+        seed = record.pop("seed", 0)
+        # one canonical encoding serves both: plain JSON values only, and the content hash
+        # (the same text content_id() would hash: the record without id and seed)
+        text = canonical_json(record)
+        record = json.loads(text)
+        record["seed"] = json.loads(canonical_json(0 if seed is None else seed))
+        digest = hashlib.sha256(text.encode("utf-8")).hexdigest()
+        record["id"] = f"{prefix}-{digest[:12]}"
+        return cls._from_own(record)  # fresh from json.loads: nothing shared, no copy needed
 
     @classmethod
     def from_record(
@@ -188,7 +191,11 @@ class Item:
         """Build an item from a raw record (as read from ``items.jsonl``)."""
         if validate:
             validate_record(record, where=where)
-        rec = copy.deepcopy(dict(record))
+        return cls._from_own(copy.deepcopy(dict(record)))
+
+    @classmethod
+    def _from_own(cls, rec: dict[str, Any]) -> Item:
+        """Build from a record dict the item may own (no other reference to its payloads)."""
         choices = rec.get("choices")
         return cls(
             id=rec["id"],
@@ -210,7 +217,15 @@ class Item:
     # -- serialisation ------------------------------------------------------------------------
     def to_record(self) -> dict[str, Any]:
         """The item as a plain JSON-ready dict in schema field order (deep copy)."""
-        rec = {
+        return copy.deepcopy(self._record_view())
+
+    def to_json(self) -> str:
+        """Canonical JSON of the record (one line of ``items.jsonl``)."""
+        return canonical_json(self._record_view())
+
+    def _record_view(self) -> dict[str, Any]:
+        # the record sharing this item's payloads: only for read-only use such as serialising
+        return {
             "id": self.id,
             "family": self.family,
             "family_version": self.family_version,
@@ -226,11 +241,6 @@ class Item:
             "variant_operator": self.variant_operator,
             "seed": self.seed,
         }
-        return copy.deepcopy(rec)
-
-    def to_json(self) -> str:
-        """Canonical JSON of the record (one line of ``items.jsonl``)."""
-        return canonical_json(self.to_record())
 
     def replace(self, *, prefix: str, **changes: Any) -> Item:
         """A new item with ``changes`` applied and its id recomputed."""
