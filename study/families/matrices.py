@@ -200,6 +200,50 @@ def _levels_text(attr: str) -> str:
     return "|".join(lv)
 
 
+class _Draw:
+    """Fast uniform draws from a block of floats taken from a numpy generator at once.
+
+    Generating an item needs a few dozen small random choices; one numpy call per choice costs
+    more than the rest of the generator, so draws come from a buffer refilled in blocks.
+    """
+
+    __slots__ = ("_buf", "_i", "_rng")
+
+    def __init__(self, rng: np.random.Generator):
+        self._rng = rng
+        self._buf: list[float] = rng.random(64).tolist()
+        self._i = 0
+
+    def random(self) -> float:
+        if self._i >= len(self._buf):
+            self._buf = self._rng.random(64).tolist()
+            self._i = 0
+        u = self._buf[self._i]
+        self._i += 1
+        return u
+
+    def integers(self, lo: int, hi: int | None = None) -> int:
+        """Uniform integer in ``[lo, hi)`` (or ``[0, lo)`` with one argument)."""
+        if hi is None:
+            lo, hi = 0, lo
+        return lo + int(self.random() * (hi - lo))
+
+    def choice(self, seq: Sequence[Any]) -> Any:
+        return seq[int(self.random() * len(seq))]
+
+    def sample(self, seq: Sequence[Any], k: int) -> list[Any]:
+        """``k`` distinct elements of ``seq`` in random order (partial Fisher-Yates)."""
+        pool = list(seq)
+        for i in range(k):
+            j = i + int(self.random() * (len(pool) - i))
+            pool[i], pool[j] = pool[j], pool[i]
+        return pool[:k]
+
+    def permutation(self, seq: Sequence[Any] | int) -> list[Any]:
+        items = list(range(seq)) if isinstance(seq, int) else list(seq)
+        return self.sample(items, len(items))
+
+
 class MatricesFamily(Family):
     """3x3 figure matrices with row rules per attribute; see the module docstring."""
 
@@ -271,7 +315,8 @@ class MatricesFamily(Family):
             )
         kinds = _RULE_SETS[p["rule_set"]]
         ranges = self._ranges(max_count)
-        order = [ATTRIBUTES[i] for i in rng.permutation(len(ATTRIBUTES))]
+        draw = _Draw(rng)
+        order = draw.permutation(ATTRIBUTES)
         ruled = order[:n_rules]
         irrelevant = order[n_rules : n_rules + n_irr]
         rules: dict[str, str] = {}
@@ -279,13 +324,13 @@ class MatricesFamily(Family):
         for attr in ATTRIBUTES:
             L = ranges[attr]
             if attr in ruled:
-                rule, col = self._ruled_column(attr, kinds, L, rng)
+                rule, col = self._ruled_column(attr, kinds, L, draw)
             elif attr in irrelevant:
                 if L < 3:
                     raise Rejected(f"{attr} has too few levels to vary irrelevantly")
-                rule, col = "irrelevant", [int(v) for v in rng.integers(L, size=9)]
+                rule, col = "irrelevant", [draw.integers(L) for _ in range(9)]
             else:
-                rule, col = "fixed", [int(rng.integers(L))] * 9
+                rule, col = "fixed", [draw.integers(L)] * 9
             rules[attr], cols[attr] = rule, col
         grid = [tuple(cols[a][k] for a in ATTRIBUTES) for k in range(9)]
         problem = self._grid_problem(grid, rules)
@@ -294,7 +339,7 @@ class MatricesFamily(Family):
         choices = None
         if "select" in modes:
             scheme = distractor_scheme or next(iter(self.distractor_schemes))
-            choices = self._make_choices(grid[8], rules, scheme, n_choices, ranges, rng)
+            choices = self._make_choices(grid[8], rules, scheme, n_choices, ranges, draw)
         return self._build(
             grid,
             rules,
@@ -312,33 +357,31 @@ class MatricesFamily(Family):
         return r
 
     @staticmethod
-    def _ruled_column(
-        attr: str, kinds: Sequence[str], L: int, rng: np.random.Generator
-    ) -> tuple[str, list[int]]:
+    def _ruled_column(attr: str, kinds: Sequence[str], L: int, rng: _Draw) -> tuple[str, list[int]]:
         options = [k for k in kinds if k != "arithmetic" or attr in _NUMERIC]
         if not options:
             raise Rejected(f"no rule of the rule set applies to {attr}")
-        kind = options[int(rng.integers(len(options)))]
+        kind = rng.choice(options)
         rows: list[list[int]]
         if kind == "constant":
             if L < 2:
                 raise Rejected(f"{attr} has one level; no constant rule that varies")
-            vals = [int(v) for v in rng.integers(L, size=3)]
+            vals = [rng.integers(L) for _ in range(3)]
             if len(set(vals)) == 1:
                 raise Rejected("constant rule with one value in every row")
             rule, rows = "constant", [[v] * 3 for v in vals]
         elif kind == "progression":
-            k = int(rng.choice([1, -1, 2, -2]))
+            k = rng.choice((1, -1, 2, -2))
             lo, hi = max(0, -2 * k), min(L - 1, L - 1 - 2 * k)
             if lo > hi:
                 raise Rejected(f"{attr} has too few levels for a progression of step {k}")
-            starts = [int(rng.integers(lo, hi + 1)) for _ in range(3)]
+            starts = [rng.integers(lo, hi + 1) for _ in range(3)]
             rule, rows = f"progression{k:+d}", [[s, s + k, s + 2 * k] for s in starts]
         elif kind == "distribution":
             if L < 3:
                 raise Rejected(f"{attr} has too few levels for a distribution of three values")
-            vals = [int(v) for v in rng.choice(L, size=3, replace=False)]
-            shift = int(rng.choice([1, 2]))
+            vals = rng.sample(range(L), 3)
+            shift = rng.choice((1, 2))
             rows = [[vals[(c + r * shift) % 3] for c in range(3)] for r in range(3)]
             rule = "distribution"
         else:
@@ -348,14 +391,14 @@ class MatricesFamily(Family):
                 if rule == "sum":  # 1-based values x + y = z <= L
                     if L < 2:
                         raise Rejected(f"{attr} has too few levels for a sum")
-                    x = int(rng.integers(1, L))
-                    y = int(rng.integers(1, L - x + 1))
+                    x = rng.integers(1, L)
+                    y = rng.integers(1, L - x + 1)
                     rows.append([x - 1, y - 1, x + y - 1])
                 else:  # x - y = z >= 1
                     if L < 3:
                         raise Rejected(f"{attr} has too few levels for a difference")
-                    x = int(rng.integers(2, L + 1))
-                    y = int(rng.integers(1, x))
+                    x = rng.integers(2, L + 1)
+                    y = rng.integers(1, x)
                     rows.append([x - 1, y - 1, x - y - 1])
         return rule, [v for row in rows for v in row]
 
@@ -390,7 +433,7 @@ class MatricesFamily(Family):
         scheme: str,
         n: int,
         ranges: Mapping[str, int],
-        rng: np.random.Generator,
+        rng: _Draw,
     ) -> list[tuple[int, ...]]:
         bound = self._bound(rules)
         if scheme == "one-off":
@@ -399,10 +442,8 @@ class MatricesFamily(Family):
                 raise Rejected(
                     f"one-off: only {len(mods)} single-attribute changes for {n} choices"
                 )
-            pick = rng.choice(len(mods), size=n - 1, replace=False)
             out = [answer]
-            for m in pick:
-                j, v = mods[int(m)]
+            for j, v in rng.sample(mods, n - 1):
                 c = list(answer)
                 c[j] = v
                 out.append(tuple(c))
@@ -410,8 +451,7 @@ class MatricesFamily(Family):
             out = self._balanced(answer, bound, n, ranges, rng)
         else:  # pragma: no cover - parse_spec checks the scheme
             raise Rejected(f"unknown distractor scheme {scheme}")
-        order = rng.permutation(len(out))
-        return [out[int(k)] for k in order]
+        return rng.permutation(out)
 
     @staticmethod
     def _balanced(
@@ -419,7 +459,7 @@ class MatricesFamily(Family):
         bound: Sequence[int],
         n: int,
         ranges: Mapping[str, int],
-        rng: np.random.Generator,
+        rng: _Draw,
     ) -> list[tuple[int, ...]]:
         # factor n into as many factors as possible; each factor is the number of values one
         # attribute takes among the choices, so the choices are a full product of value sets
@@ -430,7 +470,7 @@ class MatricesFamily(Family):
                 factors.append(q)
                 m //= q
             q += 1
-        attrs = [int(j) for j in rng.permutation(list(bound))]
+        attrs = rng.permutation(bound)
         while len(factors) > len(attrs) and len(factors) > 1:
             factors.sort()
             factors = [factors[0] * factors[1], *factors[2:]]
@@ -443,7 +483,7 @@ class MatricesFamily(Family):
                 raise Rejected(f"balanced: cannot build {n} choices from the free attributes")
             free.remove(j)
             others = [v for v in range(ranges[ATTRIBUTES[j]]) if v != answer[j]]
-            alt = [int(v) for v in rng.choice(others, size=f - 1, replace=False)]
+            alt = rng.sample(others, f - 1)
             chosen.append((j, [answer[j], *alt]))
         out = []
         for combo in itertools.product(*(vals for _, vals in chosen)):
