@@ -489,6 +489,9 @@ def format_grid(grid: Sequence[Sequence[int]]) -> str:
 
 
 _ROW = re.compile(r"^[\s>*`'\"|(\[]*(\d(?:[\s,;|]*\d)*)[\s,;|\])'\"`]*$")
+_CHOICE = re.compile(
+    r"\b(?:choice|option|answer)\s*(?:number|no\.?|is)?\s*[:#]?\s*(\d{1,2})\b", re.I
+)
 _MARK = re.compile(r"(answer|output|result|solution|choice)\b[^\n]*", re.IGNORECASE)
 
 
@@ -862,7 +865,13 @@ class GridsFamily(Family):
 
     def parse_text(self, item: Item, text: str, mode: str) -> Any:
         if mode == "select":
-            return super().parse_text(item, text, mode)
+            n = len(item.choices or ())
+            named = [
+                int(m)
+                for m in _CHOICE.findall(text)
+                if 1 <= int(m) <= n
+            ]
+            return named[-1] if named else super().parse_text(item, text, mode)
         marks = list(_MARK.finditer(text))
         grids_after: list[list[list[int]]] = []
         if marks:
@@ -1295,34 +1304,37 @@ def _classify(item: Item, r: Grid) -> str:
 
 # -- drawing ------------------------------------------------------------------------------------
 def _draw_grid(
-    ax: Any, grid: Sequence[Sequence[int]], labels: bool, title: str, side: int
+    ax: Any, grid: Sequence[Sequence[int]], labels: bool, title: str, box: tuple[int, int]
 ) -> None:
+    from matplotlib.collections import PatchCollection
     from matplotlib.patches import Rectangle
 
     g = np.asarray(grid)
     h, w = g.shape
-    ax.set_xlim(0, side)
-    ax.set_ylim(side, 0)
+    bh, bw = box
+    ax.set_xlim(0, bw)
+    ax.set_ylim(bh, 0)
     ax.set_aspect("equal")
     ax.axis("off")
-    ox, oy = (side - w) / 2, (side - h) / 2
-    fs = max(3.0, 70.0 / side)
-    for r in range(h):
-        for c in range(w):
-            v = int(g[r, c])
-            ax.add_patch(
-                Rectangle(
-                    (ox + c, oy + r),
-                    1,
-                    1,
-                    facecolor=PALETTE[v],
-                    edgecolor="#6b6b6b",
-                    linewidth=0.3,
-                    hatch=_HATCHES[v] or None,
-                )
+    ox, oy = (bw - w) / 2, (bh - h) / 2
+    fs = max(3.0, 70.0 / max(bh, bw))
+    # one collection per colour (with that colour's hatch) keeps drawing fast
+    for v in np.unique(g).tolist():
+        rows, cols = np.nonzero(g == v)
+        cells = [Rectangle((ox + c, oy + r), 1, 1) for r, c in zip(rows, cols, strict=True)]
+        ax.add_collection(
+            PatchCollection(
+                cells,
+                facecolor=PALETTE[v],
+                edgecolor="#6b6b6b",
+                linewidth=0.3,
+                hatch=_HATCHES[v] or None,
             )
-            if labels:
-                dark = v in (1, 4, 6, 8)
+        )
+    if labels:
+        for r in range(h):
+            for c in range(w):
+                v = int(g[r, c])
                 ax.text(
                     ox + c + 0.5,
                     oy + r + 0.5,
@@ -1330,7 +1342,7 @@ def _draw_grid(
                     ha="center",
                     va="center",
                     fontsize=fs,
-                    color="white" if dark else "black",
+                    color="white" if v in (1, 4, 6, 8) else "black",
                 )
     ax.add_patch(Rectangle((ox, oy), w, h, fill=False, edgecolor="black", linewidth=1.0))
     ax.set_title(title, fontsize=7, pad=2)
@@ -1345,10 +1357,8 @@ def _draw(item: Item, mode: str, fig: Figure, *, labels: bool) -> None:
     rows.append(((st["test"], "test in"), None))
     choices = list(item.choices or ()) if mode == "select" else []
     # one cell size for the whole picture, so sizes can be compared across grids
-    side = max(
-        max(len(g), len(g[0]))
-        for g in [st["test"], *choices, *(p[k] for p in st["train"] for k in ("input", "output"))]
-    )
+    every = [st["test"], *choices, *(p[k] for p in st["train"] for k in ("input", "output"))]
+    side = (max(len(g) for g in every), max(len(g[0]) for g in every))
     n_rows = len(rows) + (1 if choices else 0)
     cell_h = 0.96 / n_rows
     for i, (left, right) in enumerate(rows):
