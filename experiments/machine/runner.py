@@ -531,6 +531,7 @@ def run_solvers(
     dask: Any = None,
     progress: ProgressSink | None = None,
     cache_path: str | os.PathLike[str] | None = None,
+    bank: Bank | None = None,
 ) -> Any:
     """Run every solver x seed over the study's bank; resume from the trial cache.
 
@@ -549,6 +550,8 @@ def run_solvers(
         Receives ``set_total`` once and ``advance`` per trial.
     cache_path : path-like, optional
         The trial cache; default ``<study>/cache/machine_trials.sqlite``.
+    bank : Bank, optional
+        The study's bank, already loaded (default: ``study.bank()``, loaded and validated here).
 
     Returns
     -------
@@ -568,7 +571,8 @@ def run_solvers(
         raise SolverError(
             "no solver to run: pass --solver SPEC or add [[solvers]] entries to study.toml."
         )
-    bank = study.bank()
+    if bank is None:
+        bank = study.bank()
     # build each solver's first session now: a bad spec fails before anything is written
     built: dict[tuple[str, int], Any] = {}
     for spec in solvers:
