@@ -726,6 +726,10 @@ def _read_json(path: Path) -> Any:
         raise SpecError(f"{path}: not valid JSON ({err.msg}).", where=str(path)) from err
 
 
+def _plain(rec: Any) -> Any:
+    return json.loads(json.dumps(rec))
+
+
 def assignment(study: Any) -> dict[str, str]:
     """Respondent id -> form id for every respondent given a form so far."""
     p = study.forms_dir / "assignment.json"
@@ -744,7 +748,7 @@ def write_forms(study: Any, forms: Sequence[Form]) -> Path:
     taken = set(assignment(study).values())
     for f in forms:
         p = d / f"{f.form_id}.json"
-        if f.form_id in taken and p.exists() and _read_json(p) != f.to_record():
+        if f.form_id in taken and p.exists() and _read_json(p) != _plain(f.to_record()):
             raise SpecError(
                 f"{p}: form {f.form_id} is assigned to a respondent and would change; the study "
                 "file or bank changed after sessions started. Use a new study folder.",
