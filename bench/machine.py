@@ -143,12 +143,12 @@ modes = ["generate", "select"]
         f"    sweep (bank loaded): {total:.2f} s = {1000 * total / n:.3f} ms/trial  (target < 1 ms)"
     )
     print(
-        f"    plus loading and validating the bank once per run: {t_load:.2f} s "
-        f"({1000 * t_load / len(bank):.3f} ms/item)"
-    )
-    print(
         f"    of which render+solve+score: {1000 * bare / n:.3f} ms/trial; cache+log: "
         f"{1000 * (total - bare) / n:.3f} ms/trial"
+    )
+    print(
+        f"    plus loading and validating the bank once per run: {t_load:.2f} s "
+        f"({1000 * t_load / len(bank):.3f} ms/item)"
     )
     print(f"    rerun with everything cached: {resume:.2f} s ({1000 * resume / n:.3f} ms/trial)")
 
