@@ -20,15 +20,27 @@ from .compare import (
 )
 from .data import StudyData, factor_columns, item_table, load_study_data, read_logs, scored
 from .export import export_dataset, trials_table_schema
+from .irt import (
+    HumanScaleResult,
+    IRTResult,
+    fit_irt,
+    information_curve,
+    item_fit,
+    item_information,
+    response_matrix,
+    score_abilities,
+    score_on_human_scale,
+    simulate_responses,
+)
 from .mixed import MixedResult, factor_effects, fit_accuracy, fit_glmm, fit_lmm, fit_log_time
+from .planning import plan_from_pilot, plan_sample_size, required_sample_size
 from .run import PARTS, AnalysisRun, analyze_study
-
-# item-response models and sample planning (analysis/irt.py, analysis/planning.py) add their
-# public names here and to __all__.
 
 __all__ = [
     "PARTS",
     "AnalysisRun",
+    "HumanScaleResult",
+    "IRTResult",
     "MixedResult",
     "StudyData",
     "analyze_study",
@@ -45,15 +57,26 @@ __all__ = [
     "factor_effects",
     "fit_accuracy",
     "fit_glmm",
+    "fit_irt",
     "fit_lmm",
     "fit_log_time",
+    "information_curve",
     "item_difficulty",
+    "item_fit",
+    "item_information",
     "item_table",
     "load_study_data",
     "machine_error_rates",
+    "plan_from_pilot",
+    "plan_sample_size",
     "read_logs",
+    "required_sample_size",
+    "response_matrix",
     "robustness",
     "robustness_test",
+    "score_abilities",
+    "score_on_human_scale",
     "scored",
+    "simulate_responses",
     "trials_table_schema",
 ]

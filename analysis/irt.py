@@ -51,10 +51,10 @@ from . import _quadrature as _q
 __all__ = [
     "ABILITY_COLUMNS",
     "DEPARTURE_COLUMNS",
-    "HumanScaleResult",
-    "IRTResult",
     "ITEM_COLUMNS",
     "MODELS",
+    "HumanScaleResult",
+    "IRTResult",
     "fit_irt",
     "information_curve",
     "item_fit",

@@ -136,6 +136,7 @@ def test_input_errors():
 
 
 def test_public_names():
-    assert planning.__all__ == sorted(planning.__all__)
+    order = sorted(planning.__all__, key=lambda n: (not n.isupper(), not n[0].isupper(), n))
+    assert planning.__all__ == order
     for name in planning.__all__:
         assert hasattr(planning, name)
