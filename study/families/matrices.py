@@ -93,7 +93,14 @@ _RULE_SETS = {
     "all": ("constant", "progression", "distribution", "arithmetic"),
     "hard": ("distribution", "arithmetic"),
 }
-_SHADE_GREY = {"white": 1.0, "pale": 0.86, "light": 0.7, "medium": 0.5, "dark": 0.3, "black": 0.05}
+_SHADE_GREY = {
+    "white": 1.0,
+    "pale": 0.82,
+    "light": 0.64,
+    "medium": 0.46,
+    "dark": 0.28,
+    "black": 0.06,
+}
 
 
 # -- the rule space --------------------------------------------------------------------------
@@ -871,6 +878,19 @@ class MatricesFamily(Family):
             "panels": json.loads(canonical_json(item.stimulus["panels"])),
             "missing": [2, 2],
             "answer_format": self.answer_format,
+            # how a screen draws a panel: `count` copies side by side at the `position` height,
+            # shape outlines in black, filled with the shade's grey (0 black .. 100 white)
+            "drawing": {
+                "shade_grey_percent": {k: round(v * 100) for k, v in _SHADE_GREY.items()},
+                "shape_corners": {
+                    "triangle": 3,
+                    "square": 4,
+                    "pentagon": 5,
+                    "hexagon": 6,
+                    "circle": 0,
+                },
+                "position_from_top": list(LEVELS["position"]),
+            },
         }
         if mode == "select":
             view["choices"] = [dict(c) for c in item.choices or ()]
