@@ -176,3 +176,13 @@ def test_cli_audit_exits_1_on_flags_and_writes_json(tmp_path, one_off, balanced)
     res = runner.invoke(app, ["items", "audit", str(ok)])
     assert res.exit_code == 0, res.output
     assert "No flags" in res.output
+
+
+def test_sets_are_judged_per_family_and_scheme(one_off, balanced):
+    report = audit_bank(
+        Bank.from_items([*one_off.items[:60], *balanced.items[:60]]), picture_sample=0
+    )
+    verdicts = {s["distractor_scheme"]: s["flagged"] for s in report["shortcuts"]}
+    assert verdicts == {"balanced": False, "one-off": True}
+    (flag,) = [f for f in report["flags"] if f["kind"] == "shortcut"]
+    assert flag["distractor_scheme"] == "one-off" and flag["family"] == "matrices"

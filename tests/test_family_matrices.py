@@ -430,3 +430,21 @@ def test_bank_roundtrip(tmp_path):
     )
     assert set(levels) == set(itertools.product([1, 2, 3], [0, 1]))
     assert all(FAM.check(it) == [] for it in again)
+
+
+def test_balanced_scheme_refuses_a_prime_number_of_choices_beyond_the_levels():
+    spec = parse_spec(
+        {
+            "seed": 1,
+            "families": {
+                "matrices": {
+                    "n": 1,
+                    "modes": ["select"],
+                    "distractor_scheme": "balanced",
+                    "n_choices": 7,
+                }
+            },
+        }
+    )
+    with pytest.raises(GenerationError, match="balanced: cannot build 7 choices"):
+        generate_bank(spec)
