@@ -26,6 +26,7 @@ Options come from the study file's ``[analysis]`` table (``conf_level``, ``n_boo
 from __future__ import annotations
 
 import dataclasses
+import importlib
 import json
 import time
 import warnings
@@ -151,7 +152,7 @@ class AnalysisRun:
 
 def _irt(data: StudyData, opts: dict[str, Any]) -> tuple[dict[str, pd.DataFrame], Any]:
     try:
-        from . import irt
+        irt = importlib.import_module(f"{__package__}.irt")
     except ImportError as err:  # the IRT module is optional while it is being written
         raise _Skip(f"IRT module not available ({err})") from err
     trials = data.trials
