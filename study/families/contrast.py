@@ -1069,7 +1069,7 @@ def _new_object(ctx: _Ctx) -> list[int]:
 
 
 def _add(objs: list[list[int]], ctx: _Ctx) -> None:
-    if len(objs) >= MAX_OBJECTS:
+    if len(objs) >= ctx.hi:
         raise _Fail("too many objects")
     objs.append(_new_object(ctx))
     _place(objs, len(objs) - 1, ctx)
@@ -1086,7 +1086,7 @@ def _remove(objs: list[list[int]], ctx: _Ctx) -> None:
 
 
 def _set_count(objs: list[list[int]], n: int, ctx: _Ctx) -> None:
-    if not 1 <= n <= MAX_OBJECTS:
+    if not 1 <= n <= ctx.hi:
         raise _Fail("count out of range")
     while len(objs) < n:
         _add(objs, ctx)

@@ -1,0 +1,417 @@
+"""Tests of the ``contrast`` family: grammar, evaluator, generation, validity, variants, scoring."""
+
+from __future__ import annotations
+
+import itertools
+import json
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import strategies as st
+from twofold.study import generate_bank, load_bank, parse_spec, write_bank
+from twofold.study.exceptions import ResponseError, SpecError
+from twofold.study.families import Rejected, get_family
+from twofold.study.families.contrast import (
+    ATOM_NAME,
+    RELATIONS,
+    describe_rule,
+    evaluate_rule,
+    format_rule,
+    grammar,
+    leaf_vectors,
+    panels_from_stimulus,
+    parse_rule,
+    rule_length,
+    rule_vector,
+    separating,
+)
+from twofold.study.generate import item_rng
+from twofold.study.item import validate_record
+from twofold.study.render import render, render_picture
+
+FAM = get_family("contrast")
+FAST = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+PARAMS = st.fixed_dictionaries(
+    {
+        "length": st.integers(1, 5),
+        "kind": st.sampled_from(["any", "featural", "relational"]),
+        "attribute": st.sampled_from(["any", "shape", "size", "shade", "position", "count"]),
+        "distractors": st.integers(0, 4),
+        "objects": st.integers(2, 6),
+        "per_set": st.integers(4, 8),
+        "n_test": st.integers(2, 6),
+    }
+)
+MODES = st.sampled_from([("select",), ("generate",), ("select", "generate")])
+
+
+def make(params=None, seed=0, modes=("select", "generate")):
+    """The first valid item for ``params`` from ``seed`` (retrying as the bank does)."""
+    p = {**FAM.default_params(), **(params or {})}
+    for attempt in range(60):
+        s, rng = item_rng(seed, "test-contrast", attempt)
+        try:
+            return FAM.generate(p, rng, seed=s, modes=list(modes),
+                                distractor_scheme="per-panel" if "select" in modes else None,
+                                n_choices=2)
+        except Rejected:
+            continue
+        except SpecError:
+            break
+    assume(False)  # an impossible combination of levels
+    raise AssertionError(f"no item for {p}")
+
+
+def obj(shape="square", size="medium", shade="mid", edge="solid", tilt="upright", row=0, col=0,
+        inside=-1):
+    from twofold.study.families.contrast import VALUES
+
+    vals = dict(shape=shape, size=size, shade=shade, edge=edge, tilt=tilt)
+    return [VALUES[a].index(v) for a, v in vals.items()] + [row, col, inside]
+
+
+# -- the grammar --------------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("text", "canonical", "length"),
+    [
+        ("every[dome]", "every[dome]", 2),
+        ("some[ large + dome ]", "some[dome+large]", 4),
+        ("no[shape:dome]", "no[dome]", 2),
+        ("n>=3", "n>=3", 1),
+        ("#[dark]=2", "#[dark]=2", 2),
+        ("above[dark,*]", "above[dark,*]", 2),
+        ("leftof[*,*]", "leftof[*,*]", 1),
+        ("bigger[dome,square]", "bigger[dome,square]", 3),
+        ("n=2 & every[light]", "every[light] & n=2", 4),
+        ("not (every[light] and n=2)", "~(every[light] & n=2)", 5),
+        ("~~some[dark]", "some[dark]", 2),
+    ],
+)
+def test_parse_format_and_length(text, canonical, length):
+    rule = parse_rule(text)
+    assert format_rule(rule) == canonical
+    assert rule_length(rule) == length
+    assert parse_rule(canonical) == rule  # the canonical form parses back to itself
+
+
+@pytest.mark.parametrize(
+    "text",
+    ["", "every[]", "every[dome+square]", "some[purple]", "n>3", "above[dark]", "every dome",
+     "every[dome] &", "(n=2"],
+)
+def test_parser_rejects_malformed_rules(text):
+    with pytest.raises(ResponseError, match="response"):
+        parse_rule(text)
+
+
+def test_words_rendering():
+    assert describe_rule("every[large] & some[dark+dome]") == (
+        "every object is large and there is a dark dome")
+    assert describe_rule("no[dashed]") == "there is no dashed-edged object"
+    assert describe_rule("inside[small,*]") == "a small object is inside another object"
+    assert describe_rule("~n>=3") == "it is not true that there are at least 3 objects"
+
+
+def test_evaluator_on_hand_built_panels():
+    # panel 0: a large dark dome in the top-left cell holding a small light square
+    p0 = [obj("dome", "large", "dark", row=0, col=0), obj("square", "small", "light", row=0, col=0,
+                                                           inside=0)]
+    # panel 1: a small square above-left of a medium dome
+    p1 = [obj("square", "small", row=0, col=0), obj("dome", "medium", row=1, col=1)]
+    panels = [p0, p1]
+    cases = {
+        "inside[square,dome]": [True, False],
+        "inside[*,*]": [True, False],
+        "above[square,dome]": [False, True],
+        "leftof[square,*]": [False, True],
+        "bigger[dome,square]": [True, True],
+        "every[square]": [False, False],
+        "some[dome+large]": [True, False],
+        "no[dark]": [False, True],
+        "#[square]=1": [True, True],
+        "n=2 & ~some[dark]": [False, True],
+        "~(some[dark] & n>=2)": [False, True],
+    }
+    for text, expected in cases.items():
+        assert evaluate_rule(text, panels) == expected, text
+
+
+@FAST
+@given(seed=st.integers(0, 2**31), n=st.integers(1, 12))
+def test_vectorised_leaves_agree_with_the_evaluator(seed, n):
+    item = make(seed=seed % 1000)
+    panels, _, _ = panels_from_stimulus(item.stimulus)
+    rng = np.random.default_rng(seed)
+    panels = [panels[int(k)] for k in rng.choice(len(panels), n)]
+    vec = leaf_vectors(panels)
+    g = grammar()
+    for k in rng.choice(g.n_leaves, 60, replace=False):
+        leaf = g.leaves[int(k)]
+        assert int(vec[k]) == rule_vector(leaf, panels), format_rule(leaf)
+
+
+def test_separating_finds_exactly_the_brute_force_rules():
+    item = make(seed=5)
+    panels, n_a, n_b = panels_from_stimulus(item.stimulus)
+    panels = panels[: n_a + n_b]
+    am, bm = (1 << n_a) - 1, ((1 << n_b) - 1) << n_a
+    vec = leaf_vectors(panels)
+    g = grammar()
+    full = (1 << len(panels)) - 1
+    lits = [int(v) for v in vec] + [~int(v) & full for v in vec]
+    lens = list(g.lit_lengths)
+    max_len = 4
+    sep = separating(vec, a_mask=am, b_mask=bm, max_length=max_len)
+    # brute force over single literals and conjunctions of two literals (as truth vectors)
+    want_single = {k for k, v in enumerate(lits) if v & (am | bm) == am and lens[k] <= max_len}
+    assert set(sep["single"].tolist()) == want_single
+    short = [k for k in range(len(lits)) if lens[k] <= max_len - 2]
+    want_vecs = set()
+    for i, j in itertools.combinations(short, 2):
+        v = lits[i] & lits[j]
+        if lens[i] + lens[j] + 1 <= max_len and v & (am | bm) == am:
+            want_vecs.add(v)
+    got = {int(v) for v in sep["pair_vec"]}
+    # the pair step keeps one representative per distinct vector: the vectors must match
+    assert got <= want_vecs and want_vecs - got <= {int(v) for v in sep["single_vec"]}
+
+
+def test_grammar_size_counts():
+    g = grammar()
+    # 11 count tests, 60 quantified values, 60 counted values, 510 quantified pairs, 1764 relations
+    assert g.n_leaves == 11 + 60 + 60 + 510 + 4 * 21 * 21
+    assert g.count_up_to(1) == 11 + 4  # count tests and the four relations between any objects
+    assert len(ATOM_NAME) == len(set(ATOM_NAME)) == 20
+    assert len(RELATIONS) == 4
+
+
+# -- generation ---------------------------------------------------------------------------------
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 10_000), modes=MODES)
+def test_generation_is_deterministic_valid_and_answer_follows_rule(params, seed, modes):
+    item = make(params, seed, modes)
+    again = make(params, seed, modes)
+    assert item.to_json() == again.to_json()
+    validate_record(item.to_record())
+    json.loads(item.to_json())
+    assert FAM.check(item) == []
+    rule = parse_rule(item.answer["rule"])
+    panels, n_a, n_b = panels_from_stimulus(item.stimulus)
+    truth = evaluate_rule(rule, panels)
+    assert all(truth[:n_a]) and not any(truth[n_a:n_a + n_b])
+    assert "".join("A" if t else "B" for t in truth[n_a + n_b:]) == item.answer["labels"]
+    assert n_a == n_b == params["per_set"] and len(item.answer["labels"]) == params["n_test"]
+    assert item.factors["rule_length"] == rule_length(rule) == params["length"]
+    for k, pnl in enumerate(panels):
+        assert 1 <= len(pnl) <= params["objects"], k
+    if "select" in modes:
+        assert item.choices == ("A", "B")
+
+
+@FAST
+@given(params=PARAMS, seed=st.integers(0, 10_000))
+def test_no_rule_as_short_separates_the_sets_and_disagrees_on_a_test_panel(params, seed):
+    item = make(params, seed)
+    panels, n_a, n_b = panels_from_stimulus(item.stimulus)
+    rule = parse_rule(item.answer["rule"])
+    am, bm = (1 << n_a) - 1, ((1 << n_b) - 1) << n_a
+    sep = separating(leaf_vectors(panels), a_mask=am, b_mask=bm, max_length=rule_length(rule))
+    h = rule_vector(rule, panels)
+    off = n_a + n_b
+    full = (1 << len(panels)) - 1
+    for key in ("single_vec", "pair_vec", "neg_vec"):
+        for v in sep[key]:
+            assert (int(v) & full) >> off == h >> off
+    # with minimal=True (the default) no strictly shorter rule separates the sets
+    for key in ("single", "pair", "neg"):
+        assert all(sep[f"{key}_len"] >= rule_length(rule)) if len(sep[f"{key}_len"]) else True
+
+
+def test_impossible_levels_are_a_clear_spec_error():
+    rng = np.random.default_rng(0)
+    with pytest.raises(SpecError, match="length"):
+        FAM.generate({**FAM.default_params(), "length": 1, "kind": "relational"}, rng, seed=0,
+                     modes=["select"], distractor_scheme="per-panel", n_choices=2)
+    with pytest.raises(SpecError, match="objects"):
+        FAM.generate({**FAM.default_params(), "objects": 1, "kind": "relational"}, rng, seed=0,
+                     modes=["select"], distractor_scheme="per-panel", n_choices=2)
+
+
+def test_distractors_vary_and_the_rest_is_held_constant():
+    item = make({"distractors": 0, "kind": "featural", "attribute": "shape", "length": 2}, seed=3)
+    objs = [o for pnl in [*item.stimulus["sets"]["A"], *item.stimulus["sets"]["B"],
+                          *item.stimulus["test"]] for o in pnl]
+    values = list(zip(*(o.split()[:5] for o in objs), strict=True))
+    assert len(set(values[0])) > 1  # shape is the rule's attribute and varies
+    assert all(len(set(v)) == 1 for v in values[1:])  # size, shade, edge, tilt are constant
+    assert item.factors["distractors"] == 0
+
+
+def test_generated_accepted_rules_are_equivalent_on_every_panel():
+    for seed in range(12):
+        item = make({"length": 4}, seed)
+        panels, _, _ = panels_from_stimulus(item.stimulus)
+        h = rule_vector(parse_rule(item.answer["rule"]), panels)
+        for acc in item.accepted:
+            assert acc["label"] == "equivalent-rule"
+            assert rule_vector(parse_rule(acc["answer"]), panels) == h
+
+
+# -- variants -----------------------------------------------------------------------------------
+@FAST
+@given(seed=st.integers(0, 10_000), op=st.sampled_from(sorted(FAM.variant_operators)))
+def test_variants_keep_the_structure(seed, op):
+    item = make(seed=seed)
+    try:
+        var = FAM.vary(item, op, np.random.default_rng(seed))
+    except Rejected:
+        assume(False)
+        return
+    assert var.variant_of == item.id and var.variant_operator == op and var.id != item.id
+    validate_record(var.to_record())
+    assert FAM.check(var) == []
+    panels, n_a, n_b = panels_from_stimulus(var.stimulus)
+    truth = evaluate_rule(var.answer["rule"], panels)
+    assert all(truth[:n_a]) and not any(truth[n_a:n_a + n_b])
+    labels = item.answer["labels"]
+    if op == "swap-sets":
+        assert var.answer["labels"] == labels.translate(str.maketrans("AB", "BA"))
+        assert var.stimulus["sets"]["A"] == item.stimulus["sets"]["B"]
+    else:
+        assert var.answer["labels"] == labels
+        assert len(var.stimulus["test"]) == len(item.stimulus["test"])
+    assert FAM.score(var, var.answer["labels"], "select").correct
+    assert FAM.score(var, var.answer["rule"], "generate").correct
+
+
+def test_mirror_swaps_left_and_right():
+    for seed in range(40):
+        item = make({"kind": "relational", "attribute": "position"}, seed)
+        if "leftof" in item.answer["rule"] or "left" in item.answer["rule"]:
+            break
+    var = FAM.vary(item, "mirror", np.random.default_rng(0))
+    first = item.stimulus["sets"]["A"][0][0].split()
+    mirrored = var.stimulus["sets"]["A"][0][0].split()
+    flip = {"left": "right", "right": "left", "centre": "centre"}
+    assert mirrored[6] == flip[first[6]] and mirrored[5] == first[5]
+
+
+# -- scoring ------------------------------------------------------------------------------------
+@FAST
+@given(seed=st.integers(0, 10_000), k=st.integers(0, 1000))
+def test_classifier_never_labels_a_correct_answer_and_sample_error_types_match(seed, k):
+    item = make(seed=seed)
+    sc = FAM.score(item, item.answer["labels"], "select")
+    assert (sc.correct, sc.error_type, sc.label) == (True, None, "intended")
+    assert FAM.score(item, list(item.answer["labels"].lower()), "select").correct
+    assert FAM.score(item, item.answer["rule"], "generate").label == "intended"
+    for acc in item.accepted:
+        assert FAM.score(item, acc["answer"], "generate").correct
+    for mode in ("select", "generate"):
+        wrong, etype = FAM.sample_error(item, mode, np.random.default_rng(k))
+        sc = FAM.score(item, wrong, mode)
+        assert not sc.correct and sc.error_type == etype and etype in FAM.error_types
+
+
+def test_reversed_sets_and_an_equivalent_rule():
+    item = make(seed=11)
+    flipped = item.answer["labels"].translate(str.maketrans("AB", "BA"))
+    assert FAM.score(item, flipped, "select").error_type == "reversed-sets"
+    rule = parse_rule(item.answer["rule"])
+    # an equivalent rule written differently: the rule joined with a rule true of every panel
+    same = f"({item.answer['rule']}) & n>=1"
+    assert rule_length(parse_rule(same)) > rule_length(rule)
+    sc = FAM.score(item, same, "generate")
+    assert (sc.correct, sc.error_type, sc.label) == (True, None, "equivalent-rule")
+    assert FAM.score(item, f"~({item.answer['rule']})", "generate").error_type == "reversed-sets"
+
+
+def test_error_types_come_from_related_rules():
+    # each related rule's labelling is classified as its type, or as a type listed before it
+    item = make({"kind": "featural", "attribute": "size", "length": 2}, seed=2)
+    rel = FAM._related(item)
+    correct = item.answer["labels"]
+    for name in ("over-general", "over-specific", "irrelevant-attribute"):
+        for labels in rel["labels"][name]:
+            if labels != correct:
+                got = FAM.score(item, labels, "select").error_type
+                # a label string shared with a higher-priority type is classified there
+                assert FAM._PRIORITY.index(got) <= FAM._PRIORITY.index(name)
+
+
+def test_free_text_rule_is_not_automatically_scorable():
+    item = make(seed=1)
+    with pytest.raises(ResponseError, match="not automatically scorable"):
+        FAM.score(item, "the ones on the left have big shapes", "generate")
+    with pytest.raises(ResponseError, match="letters A or B"):
+        FAM.score(item, "ABX", "select")
+    with pytest.raises(ResponseError):
+        FAM.score(item, 3, "select")
+
+
+# -- parse_text ---------------------------------------------------------------------------------
+@FAST
+@given(seed=st.integers(0, 10_000),
+       wrap=st.sampled_from(["Answer: {}", "```\n{}\n```", "I think the labels are '{}'.",
+                             "Let me look at panel A1 first.\nFinal answer: {}",
+                             "**{}**"]))
+def test_parse_text_select(seed, wrap):
+    item = make(seed=seed)
+    labels = item.answer["labels"]
+    assert FAM.parse_text(item, wrap.format(labels), "select") == labels
+    spaced = ", ".join(labels)
+    assert FAM.parse_text(item, f"So: {spaced}", "select") == labels
+    tagged = "\n".join(f"T{k + 1}: {c}" for k, c in enumerate(labels))
+    assert FAM.parse_text(item, "A panel here is tricky.\n" + tagged, "select") == labels
+
+
+@pytest.mark.parametrize("wrap", ["Rule: {}", "```\n{}\n```", "The rule is:\n`{}`",
+                                  "Reasoning about set A...\nFinal rule: {}"])
+def test_parse_text_generate(wrap):
+    item = make(seed=4)
+    rule = item.answer["rule"]
+    assert FAM.parse_text(item, wrap.format(rule), "generate") == rule
+
+
+def test_parse_text_errors():
+    item = make(seed=4)
+    with pytest.raises(ResponseError):
+        FAM.parse_text(item, "I am not sure.", "select")
+    with pytest.raises(ResponseError):
+        FAM.parse_text(item, "Objects in A look bigger to me.", "generate")
+
+
+# -- rendering ----------------------------------------------------------------------------------
+def test_renderers_are_deterministic_and_answer_free():
+    item = make(seed=9)
+    for mode in ("select", "generate"):
+        text = render(item, "text", mode)
+        assert text == render(item, "text", mode)
+        view = render(item, "structured", mode)
+        dump = json.dumps(view)
+        assert "answer" not in view and "labels" not in json.dumps(view.get("sets"))
+        assert item.answer["rule"] not in dump and item.answer["rule"] not in text
+        assert f"T{len(item.stimulus['test'])}:" in text
+        assert len(view["sets"]["A"]) == len(item.stimulus["sets"]["A"])
+        assert set(view["sets"]["A"][0][0]) >= {"shape", "size", "shade", "edge", "tilt", "row",
+                                                "col", "inside"}
+    assert "letters" in render(item, "text", "select")
+    assert "notation" in render(item, "text", "generate")
+    png = render_picture(item, "select")
+    assert png.startswith(b"\x89PNG") and png == render_picture(item, "select")
+
+
+# -- banks --------------------------------------------------------------------------------------
+def test_bank_round_trip(tmp_path):
+    spec = parse_spec({"seed": 2, "families": {"contrast": {
+        "n": 6, "modes": ["select", "generate"], "params": {"length": [2, 3]},
+        "variants": {"operators": ["mirror", "swap-sets"], "per_item": 1}}}})
+    bank = generate_bank(spec)
+    written = write_bank(bank, tmp_path / "bank")
+    again = load_bank(tmp_path / "bank")
+    assert again.hash == written.hash
+    assert sum(it.variant_of is None for it in again) == 6
+    for it in again:
+        assert FAM.check(it) == []
