@@ -1,0 +1,128 @@
+"""Tests of the ``contrast-ref`` reference solver (Bayesian rule induction)."""
+
+from __future__ import annotations
+
+import pytest
+from twofold.experiments.solvers import Answer, builtin_solvers, make_builtin
+from twofold.experiments.solvers.contrast import ContrastReference
+from twofold.study.exceptions import SolverError
+from twofold.study.families import Rejected, get_family
+from twofold.study.families.contrast import grammar, parse_rule
+from twofold.study.generate import item_rng
+from twofold.study.render import render
+
+FAM = get_family("contrast")
+MODES = ["select", "generate"]
+
+
+def items(params, n, seed=17):
+    p = {**FAM.default_params(), **params}
+    out, i = [], 0
+    while len(out) < n:
+        s, rng = item_rng(seed, "solver", str(sorted(params.items())), i)
+        i += 1
+        try:
+            out.append(FAM.generate(p, rng, seed=s, modes=MODES, distractor_scheme="per-panel",
+                                    n_choices=2))
+        except Rejected:
+            continue
+    return out
+
+
+def run(solver, its, mode):
+    hits, effort = 0, []
+    for it in its:
+        ans = solver.solve(render(it, "structured", mode), mode)
+        assert isinstance(ans, Answer) and ans.effort_unit == "rules"
+        hits += FAM.score(it, ans.answer, mode).correct
+        effort.append(ans.effort)
+    return hits / len(its), sum(effort) / len(effort)
+
+
+@pytest.fixture(scope="module")
+def default_items():
+    return items({}, 30)
+
+
+def test_registered():
+    assert "contrast-ref" in builtin_solvers()
+    solver = make_builtin("contrast-ref", seed=3, budget=5000, noise=0.05)
+    assert isinstance(solver, ContrastReference) and solver.medium == "structured"
+    assert solver.max_length == 3  # 2,295 rules reach length 3; length 4 needs 8,935
+
+
+@pytest.mark.parametrize("mode", MODES)
+def test_reference_solves_default_items(default_items, mode):
+    acc, _ = run(make_builtin("contrast-ref"), default_items, mode)
+    assert acc >= 0.9
+
+
+def test_generate_answer_is_a_rule_in_the_notation_and_explained(default_items):
+    it = default_items[0]
+    ans = make_builtin("contrast-ref").solve(render(it, "structured", "generate"), "generate")
+    parse_rule(ans.answer)  # parses
+    assert ans.explanation.startswith("most probable rule: ")
+    assert ans.answer in ans.explanation
+    assert len(ans.raw["p_a"]) == len(it.stimulus["test"])
+
+
+def test_worse_on_long_rules_and_at_a_tiny_budget(default_items):
+    ref = make_builtin("contrast-ref")
+    hard = items({"length": 6, "distractors": 4}, 20)
+    for mode in MODES:
+        easy_acc, easy_effort = run(ref, default_items, mode)
+        hard_acc, hard_effort = run(ref, hard, mode)
+        tiny_acc, tiny_effort = run(make_builtin("contrast-ref", budget=300), default_items, mode)
+        assert hard_acc <= easy_acc - 0.3
+        assert tiny_acc <= easy_acc - 0.3
+        assert hard_effort > easy_effort > tiny_effort
+
+
+def test_effort_grows_with_rule_length():
+    ref = make_builtin("contrast-ref")
+    short = run(ref, items({"length": 2}, 10), "select")[1]
+    longer = run(ref, items({"length": 4}, 10), "select")[1]
+    assert longer > short
+    assert short == grammar().count_up_to(3)  # shortest consistent rule 2, searched one beyond
+
+
+def test_deterministic_and_reads_only_the_view(default_items):
+    it = default_items[1]
+    view = render(it, "structured", "select")
+    assert "answer" not in view
+    a1 = make_builtin("contrast-ref", seed=4).solve(view, "select")
+    a2 = make_builtin("contrast-ref", seed=4).solve(view, "select")
+    assert a1 == a2
+
+
+def test_one_mislabelled_panel_is_tolerated(default_items):
+    # move one set-A panel into set B: no rule is consistent any more, so the exact learner
+    # falls back to a noisy likelihood and the noisy learner uses its own
+    hits = {0.0: 0, 0.05: 0}
+    for it in default_items[:12]:
+        view = render(it, "structured", "select")
+        view["sets"]["B"] = view["sets"]["B"] + [view["sets"]["A"][0]]
+        for noise in hits:
+            ans = make_builtin("contrast-ref", noise=noise).solve(view, "select")
+            hits[noise] += ans.answer == it.answer["labels"]
+    assert min(hits.values()) >= 7
+
+
+@pytest.mark.parametrize(
+    ("opts", "field"),
+    [({"budget": 0}, "budget"), ({"noise": 0.5}, "noise"), ({"seed": -1}, "seed"),
+     ({"prior": 1.0}, "prior"), ({"budget": True}, "budget")],
+)
+def test_bad_options_name_the_field(opts, field):
+    with pytest.raises(SolverError, match=field):
+        make_builtin("contrast-ref", **opts)
+
+
+def test_bad_view_and_mode():
+    ref = make_builtin("contrast-ref")
+    with pytest.raises(SolverError, match="view"):
+        ref.solve("not a view", "select")
+    with pytest.raises(SolverError, match="view"):
+        ref.solve({"sets": {}}, "select")
+    with pytest.raises(SolverError, match="mode"):
+        ref.solve({}, "choose")
