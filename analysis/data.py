@@ -47,7 +47,7 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 from twofold.study._check import check_choice, fail
-from twofold.study.bank import Bank, load_bank
+from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError, LogError, LogWarning
 from twofold.study.logs import read_sidecar, read_trials
 from twofold.study.studyfile import Study, load_study
@@ -502,7 +502,13 @@ def load_study_data(
     """
     st = study if isinstance(study, Study) else load_study(study)
     if bank is None:
-        bank = st.bank(create=False) if st.bank_dir.exists() else load_bank(st.bank_dir)
+        bank = st.bank(create=False)
+    if not _log_files(st.logs_dir):
+        raise LogError(
+            f"{st.logs_dir}: no session logs found; accepted: a logs folder holding "
+            "human/<session>.csv or machine/<session>.csv files (run sessions first).",
+            where=str(st.logs_dir),
+        )
     data = read_logs(st.logs_dir, bank, duplicates=duplicates, synthetic=synthetic)
     return dataclasses.replace(data, study=st.name)
 

@@ -243,3 +243,9 @@ def test_table_schema_describes_every_column(data):
 def test_export_refuses_to_overwrite_by_default(exported, data):
     with pytest.raises(InputError, match="folder exists"):
         export_dataset(data, exported)
+
+
+def test_a_study_without_logs_is_a_clear_error(registered, tmp_path):
+    toy = make_study(tmp_path, n_parents=2, n_humans=0, machines={})
+    with pytest.raises(LogError, match="no session logs found"):
+        load_study_data(toy)
