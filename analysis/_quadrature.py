@@ -331,18 +331,20 @@ def mle_theta(
     Returns ``theta``, ``se`` and ``converged`` (persons,). Persons whose score is 0 or perfect
     (no finite maximum) get NaN; the caller decides how to report them.
     """
-    n_obs = M @ np.ones(a.size)
-    n_cor = X @ np.ones(a.size)
+    n_obs = M.sum(1)
+    n_cor = X.sum(1)
     finite = (n_cor > 0) & (n_cor < n_obs)
     theta = np.zeros(X.shape[0])
     done = ~finite
+    full = M.strides == (0, 0)  # a broadcast 1: every item seen once
     for _ in range(max_iter):
         idx = ~done
         if not idx.any():
             break
         p = expit(np.outer(theta[idx], a) + d)
-        g = (X[idx] - M[idx] * p) @ a
-        info = (M[idx] * p * (1.0 - p)) @ (a * a)
+        m = 1.0 if full else M[idx]
+        g = (X[idx] - m * p) @ a
+        info = (m * p * (1.0 - p)) @ (a * a)
         step = np.clip(g / info, -1.0, 1.0)
         theta[idx] = np.clip(theta[idx] + step, -bound, bound)
         small = np.abs(step) < tol

@@ -396,7 +396,7 @@ def factor_effects(table: pd.DataFrame) -> Figure:
     ax.axvline(0, color="#888888", linewidth=0.8)
     ax.set_yticks(range(len(factors)), factors, fontsize=7)
     ax.invert_yaxis()
-    ax.set_xlabel("effect on the log-odds of an error (per standard deviation of the factor)")
+    ax.set_xlabel("effect on the log-odds of an error (per unit, or level vs first level)")
     ax.legend(fontsize=7, frameon=False)
     _caption(fig, "Logistic mixed model per group with crossed random effects; 95 % intervals.")
     return fig

@@ -195,8 +195,16 @@ def _as_matrix(data: Any, *, kind: str | None = None, name: str = "data") -> pd.
 
 
 def _split(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Correct-counts and seen-mask. Without missing values no copy is made and the mask is a
+    read-only broadcast of 1 (no memory); :func:`_full` recognises it."""
     mask = ~np.isnan(values)
+    if mask.all():
+        return values, np.broadcast_to(np.float64(1.0), values.shape)
     return np.where(mask, values, 0.0), mask.astype(np.float64)
+
+
+def _full(Mk: np.ndarray) -> bool:
+    return Mk.ndim == 2 and Mk.strides == (0, 0)
 
 
 # ---------------------------------------------------------------------------------- the result
@@ -372,9 +380,13 @@ def _initial_phi(X: np.ndarray, Mk: np.ndarray, kind: str) -> np.ndarray:
     # through the normal-ogive relation a ~ 1.7 r / sqrt(1 - r^2); moments by matrix products
     t = X.sum(1)
     c = np.maximum(Mk.sum(1) - 1.0, 1.0)
-    sum_r = Mk.T @ (t / c) - X.T @ (1.0 / c)
+
+    def mt(v):
+        return np.full(X.shape[1], v.sum()) if _full(Mk) else Mk.T @ v
+
+    sum_r = mt(t / c) - X.T @ (1.0 / c)
     sum_xr = X.T @ (t / c) - X.T @ (1.0 / c)
-    sum_rr = Mk.T @ (t * t / c**2) - 2.0 * X.T @ (t / c**2) + X.T @ (1.0 / c**2)
+    sum_rr = mt(t * t / c**2) - 2.0 * X.T @ (t / c**2) + X.T @ (1.0 / c**2)
     mx = X.sum(0) / n_seen
     mr = sum_r / n_seen
     cov = sum_xr / n_seen - mx * mr
@@ -492,7 +504,7 @@ def fit_irt(
                    f"at least 2 respondents and {min_items} item(s) with variation")
     values = frame.to_numpy(dtype=np.float64)
     X, Mk = _split(values)
-    M = None if Mk.all() else Mk
+    M = None if _full(Mk) else Mk
     design = _q.Design(_DESIGN[model], n_items)
     nodes, logw = _q.normal_quadrature(quadrature_points)
     phi0 = _initial_phi(X, Mk, design.kind)
@@ -576,20 +588,26 @@ def fit_irt(
 
 
 def _lz(X: np.ndarray, Mk: np.ndarray, theta: np.ndarray, a: np.ndarray, d: np.ndarray):
-    """Standardised log-likelihood person fit (Drasgow et al. 1985) at ``theta``."""
+    """Standardised log-likelihood person fit (Drasgow et al. 1985) at ``theta``.
+
+    With ``z = a theta + d``: ``l0 = sum x z + m log(1 - p)``, ``E l0 = sum m (p z + log(1 - p))``
+    and ``Var l0 = sum m p (1 - p) z^2``.
+    """
     t = np.where(np.isfinite(theta), theta, 0.0)
     l0 = np.empty(t.size)
     e = np.empty(t.size)
     v = np.empty(t.size)
     for rows in _q.chunks(X.shape[0], X.shape[1]):
-        z = np.outer(t[rows], a) + d
-        lp = -np.logaddexp(0.0, -z)
+        z = np.outer(t[rows], a)
+        z += d
         lq = -np.logaddexp(0.0, z)
-        p = np.exp(lp)
+        p = expit(z)
         m = Mk[rows]
         l0[rows] = (X[rows] * z + m * lq).sum(1)
-        e[rows] = (m * (p * lp + (1 - p) * lq)).sum(1)
-        v[rows] = (m * p * (1 - p) * z * z).sum(1)
+        e[rows] = (m * (p * z + lq)).sum(1)
+        p *= 1.0 - p
+        p *= z * z
+        v[rows] = (m * p).sum(1)
     with np.errstate(invalid="ignore", divide="ignore"):
         out = (l0 - e) / np.sqrt(v)
     out[~np.isfinite(theta) | (v <= 0)] = np.nan
@@ -613,7 +631,7 @@ def _ability_table(index, theta, se, method, X, Mk, a, d) -> pd.DataFrame:
 def _scores(X, Mk, a, d, method, quadrature_points=41):
     if method == "eap":
         nodes, logw = _q.normal_quadrature(quadrature_points)
-        W, _ = _q.posterior(X, Mk, a, d, nodes, logw)
+        W, _ = _q.posterior(X, None if _full(Mk) else Mk, a, d, nodes, logw)
         theta = W @ nodes
         return theta, np.sqrt(np.maximum(W @ (nodes * nodes) - theta * theta, 0.0))
     theta, se, _ = _q.mle_theta(X, Mk, a, d)
