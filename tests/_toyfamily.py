@@ -1,8 +1,10 @@
 """A minimal test-only item family ("toy") and solvers for it.
 
 Items ask for the sum of two small numbers, in generate mode (type the sum) or select mode (pick
-it among numeric choices). Importing this module registers the family; it is used by the machine
-runner tests so they do not depend on the real families.
+it among numeric choices). It is used by the machine runner tests so they do not depend on the
+real families. Importing this module does not register the family (registry-wide tests of other
+modules must not see it): tests call :func:`use_toy` with pytest's ``monkeypatch``, which removes
+it again after the test.
 """
 
 from __future__ import annotations
@@ -120,7 +122,16 @@ class ToyFamily(Family):
         ax.text(0.5, 0.5, f"{item.stimulus['a']} + {item.stimulus['b']} = ?", ha="center")
 
 
-TOY = families.register(ToyFamily())
+TOY = ToyFamily()
+
+
+def use_toy(monkeypatch: Any = None) -> ToyFamily:
+    """Register the toy family; with ``monkeypatch``, only until the test ends."""
+    if monkeypatch is None:
+        return families.register(TOY)
+    monkeypatch.setitem(families._REGISTRY, TOY.name, TOY)
+    return TOY
+
 
 TOY_SPEC = {"seed": 3, "families": {"toy": {"n": 12, "modes": ["generate", "select"]}}}
 

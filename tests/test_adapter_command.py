@@ -6,9 +6,8 @@ import sys
 import textwrap
 from pathlib import Path
 
-import _toyfamily  # noqa: F401 - registers the toy family
 import pytest
-from _toyfamily import make_study
+from _toyfamily import make_study, use_toy
 from twofold.experiments.machine import (
     CommandSolver,
     TrialFailure,
@@ -19,9 +18,7 @@ from twofold.experiments.machine import (
 from twofold.study import read_trials
 from twofold.study.exceptions import SolverError
 
-EXAMPLE = (
-    Path(__file__).parents[1] / "experiments" / "machine" / "examples" / "jsonl_solver.py"
-)
+EXAMPLE = Path(__file__).parents[1] / "experiments" / "machine" / "examples" / "jsonl_solver.py"
 PY = sys.executable
 
 # a child in plain Python (no twofold) that misbehaves on chosen requests, counted across restarts
@@ -57,6 +54,11 @@ FAULTY = textwrap.dedent("""
             reply = {"version": 1, "id": msg["id"], "text": f"I'd say {answer}.", "effort": k}
         print(json.dumps(reply), flush=True)
 """)
+
+
+@pytest.fixture(autouse=True)
+def _toy(monkeypatch):
+    use_toy(monkeypatch)
 
 
 def child(tmp_path: Path, body: str, name: str = "child.py") -> str:

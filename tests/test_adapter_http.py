@@ -9,9 +9,8 @@ import time
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
 from pathlib import Path
 
-import _toyfamily  # noqa: F401 - registers the toy family
 import pytest
-from _toyfamily import make_study, solve_text
+from _toyfamily import make_study, solve_text, use_toy
 from twofold.experiments.cli import main
 from twofold.experiments.machine import (
     ChatSolver,
@@ -25,6 +24,11 @@ from twofold.study import read_trials
 from twofold.study.exceptions import SolverError
 
 SECRET = "sk-test-5e3f9a0c7d1b4e2a"
+
+
+@pytest.fixture(autouse=True)
+def _toy(monkeypatch):
+    use_toy(monkeypatch)
 
 
 class ChatServer:

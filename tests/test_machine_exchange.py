@@ -4,13 +4,17 @@ from __future__ import annotations
 
 import json
 
-import _toyfamily  # noqa: F401 - registers the toy family
 import pytest
-from _toyfamily import make_study
+from _toyfamily import make_study, use_toy
 from twofold.experiments.cli import main
 from twofold.experiments.machine import export_items, import_answers
 from twofold.study import read_sidecar, read_trials
 from twofold.study.exceptions import InputError
+
+
+@pytest.fixture(autouse=True)
+def _toy(monkeypatch):
+    use_toy(monkeypatch)
 
 
 @pytest.fixture

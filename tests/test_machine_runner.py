@@ -14,7 +14,7 @@ from pathlib import Path
 import _toyfamily
 import pandas as pd
 import pytest
-from _toyfamily import make_study
+from _toyfamily import make_study, use_toy
 from twofold.experiments import machine
 from twofold.experiments.machine import (
     SolverSpec,
@@ -29,6 +29,11 @@ from twofold.study.exceptions import SolverError
 from twofold.study.logs import TRIAL_COLUMNS
 
 TESTS = Path(__file__).parent
+
+
+@pytest.fixture(autouse=True)
+def _toy(monkeypatch):
+    use_toy(monkeypatch)
 
 
 def spec(s: str, **kw) -> SolverSpec:
@@ -160,6 +165,7 @@ def test_kill_9_loses_at_most_the_trials_in_flight(tmp_path):
         import sys
         sys.path.insert(0, {str(TESTS)!r})
         import _toyfamily
+        _toyfamily.use_toy()
         from twofold.study import load_study
         from twofold.experiments.machine import parse_solver_entry, run_solvers
         s = parse_solver_entry({{"spec": "python:_toyfamily:StopAfter",

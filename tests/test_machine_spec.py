@@ -4,10 +4,9 @@ from __future__ import annotations
 
 import json
 
-import _toyfamily  # noqa: F401 - registers the toy family
 import numpy as np
 import pytest
-from _toyfamily import make_study
+from _toyfamily import make_study, use_toy
 from hypothesis import given
 from hypothesis import strategies as st
 from twofold.experiments.cli import main
@@ -22,6 +21,11 @@ from twofold.experiments.solvers.baselines import flatten_payload
 from twofold.study.exceptions import SolverError, SpecError
 
 EX = "twofold.experiments.machine.examples.python_solver"
+
+
+@pytest.fixture(autouse=True)
+def _toy(monkeypatch):
+    use_toy(monkeypatch)
 
 
 # -- specs ---
