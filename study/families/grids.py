@@ -58,6 +58,8 @@ __all__ = [
 
 #: Largest side of any grid (outputs of scale/tile included).
 MAX_SIDE = 30
+#: Most programs the uniqueness check may try per item (it rejects the item beyond that).
+_CHECK_BUDGET = 50_000
 
 #: Our own colour-blind-conscious palette: colour 0 (background) to 9. The colours differ in
 #: lightness as well as hue, and every colour also has its own hatch, so cells stay distinguishable
@@ -98,7 +100,7 @@ def _label(g: Grid) -> tuple[np.ndarray, int]:
     key = bytes(g.shape) + g.tobytes()
     hit = _LABELS.get(key)
     if hit is None:
-        if len(_LABELS) > 20_000:
+        if len(_LABELS) > 5_000:
             _LABELS.clear()
         hit = ndimage.label(g != 0, structure=_CROSS)
         _LABELS[key] = hit
@@ -328,8 +330,13 @@ def _expansions(grids: Sequence[Grid], targets: list[int]) -> list[Op]:
     return ops
 
 
-def _final_ops(g: Grid, y: Grid, targets: list[int]) -> list[Op]:
-    """Last operations that could turn ``g`` into ``y`` (a cheap filter on shapes and colours)."""
+def _final_ops(gl: Sequence[Grid], yl: Sequence[Grid]) -> list[Op]:
+    """Last operations that could turn each ``gl[i]`` into ``yl[i]``.
+
+    A cheap filter: shapes and colour counts of the first pair, and the cell-wise colour change
+    over all pairs (which must be a function for a colour operation).
+    """
+    g, y = gl[0], yl[0]
     gs, ys = g.shape, y.shape
     hg = np.bincount(g.ravel(), minlength=10)
     hy = np.bincount(y.ravel(), minlength=10)
@@ -343,10 +350,16 @@ def _final_ops(g: Grid, y: Grid, targets: list[int]) -> list[Op]:
             ops += [("gravity", d) for d in _DIRS]
         if (hy[1:] <= hg[1:]).all():
             ops += [("translate", d) for d in _DIRS]
-            if hy[0] > hg[0]:
+            if hy[0] >= hg[0]:
                 ops += [("keep_largest",), ("keep_smallest",)]
         # colour operations: the cell-wise colour change must be a function
-        pairs = np.unique(g.astype(np.int16) * 10 + y)
+        if all(a.shape == b.shape for a, b in zip(gl, yl, strict=True)):
+            codes = [
+                a.astype(np.int16).ravel() * 10 + b.ravel() for a, b in zip(gl, yl, strict=True)
+            ]
+            pairs = np.unique(np.concatenate(codes))
+        else:
+            pairs = np.zeros(1, np.int16)
         src, dst = pairs // 10, pairs % 10
         changed = src != dst
         if changed.any() and np.unique(src).size == src.size:
@@ -435,7 +448,7 @@ def search(
     for depth in range(1, max_depth + 1):
         nxt: list[tuple[tuple[Op, ...], list[Grid]]] = []
         for prog, grids in frontier:
-            finals = _final_ops(grids[0], ys[0], targets)
+            finals = _final_ops(grids[:n], ys)
             if rng is not None:
                 finals = [finals[i] for i in rng.permutation(len(finals))]
             for op in finals:
@@ -489,6 +502,7 @@ def format_grid(grid: Sequence[Sequence[int]]) -> str:
 
 
 _ROW = re.compile(r"^[\s>*`'\"|(\[]*(\d(?:[\s,;|]*\d)*)[\s,;|\])'\"`]*$")
+_ROW_LABEL = re.compile(r"^(?:row|line)\s*\d+\s*[:.)-]\s*", re.I)
 _CHOICE = re.compile(
     r"\b(?:choice|option|answer)\s*(?:number|no\.?|is)?\s*[:#]?\s*(\d{1,2})\b", re.I
 )
@@ -502,7 +516,7 @@ def _blocks(text: str) -> list[tuple[int, list[list[int]]]]:
     start = 0
     pos = 0
     for line in text.splitlines(keepends=True):
-        m = _ROW.match(line.strip())
+        m = _ROW.match(_ROW_LABEL.sub("", line.strip()))
         row = [int(ch) for ch in m.group(1) if ch.isdigit()] if m else None
         if row is not None and (not cur or len(row) == len(cur[0])):
             if not cur:
@@ -707,7 +721,7 @@ class GridsFamily(Family):
             "depth": len(program),
             "kinds": "+".join(kinds),
             "size": int(max(test_input.shape)),
-            "n_objects": int(params["objects"]),
+            "n_objects": int(_label(test_input)[1]),
             "n_demos": len(demo_inputs),
             "size_change": bool(change),
         }
@@ -1119,11 +1133,16 @@ def _validity(
             return "hidden colour"
     depth = len(program)
     pairs = list(zip(xs, ys, strict=True))
-    for prog, out in search(pairs, test, max_depth=min(depth, 2), budget=50_000):
+    stats = SearchResult()
+    for prog, out in search(
+        pairs, test, max_depth=min(depth, 2), budget=_CHECK_BUDGET, stats=stats
+    ):
         if out.shape != answer.shape or not np.array_equal(out, answer):
             return "ambiguous"
         if len(prog) < depth:
             return "reducible"
+    if stats.exhausted:
+        return "uniqueness search too large"
     return None
 
 
