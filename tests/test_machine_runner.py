@@ -280,3 +280,10 @@ def test_cache_keys_separate_configs_and_seeds(tmp_path):
     a = json.loads((study.logs_dir / "machine" / "random-s0.json").read_text())
     b = json.loads((study.logs_dir / "machine" / "rx-s0.json").read_text())
     assert a["config_hash"] != b["config_hash"]
+
+
+def test_two_solvers_with_one_name_are_refused(tmp_path):
+    study = make_study(tmp_path)
+    with pytest.raises(SolverError, match="solver name 'random' is used twice"):
+        run_solvers(study, [spec("random"), spec("random", seeds=2)])
+    assert not (study.logs_dir / "machine").exists()

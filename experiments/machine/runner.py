@@ -571,6 +571,13 @@ def run_solvers(
         raise SolverError(
             "no solver to run: pass --solver SPEC or add [[solvers]] entries to study.toml."
         )
+    names = [s.name for s in solvers]
+    dupes = sorted({n for n in names if names.count(n) > 1})
+    if dupes:
+        raise SolverError(
+            f"solver name {dupes[0]!r} is used twice; give each solver its own name "
+            "(name in [[solvers]], or --name with a single --solver)."
+        )
     if bank is None:
         bank = study.bank()
     # build each solver's first session now: a bad spec fails before anything is written
@@ -581,10 +588,10 @@ def run_solvers(
     if progress is not None:
         pending = 0
         for spec in solvers:
-            n_plan = len(plan_trials(bank, spec))
+            keys = {(it.id, m) for it, m in plan_trials(bank, spec)}
             for seed in spec.seeds:
                 done = cache.done(bank.hash, spec.config_hash, seed)
-                pending += n_plan - sum(1 for _ in done)
+                pending += len(keys - set(done))
         progress.set_total(max(pending, 0))
     executor = _Executor(workers=workers, dask=dask)
     out = []
