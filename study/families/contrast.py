@@ -421,10 +421,19 @@ def describe_rule(rule: Rule | str) -> str:
 _VALUE_POS = [{v: k for k, v in enumerate(VALUES[a])} for a in ATTRIBUTES]
 
 
+_CODES: dict[tuple[int, ...], str] = {}
+
+
 def _obj_code(o: Sequence[int]) -> str:
     """Compact record form of an object: its values in attribute order, then ``in<k>``."""
-    code = " ".join([VALUES[a][o[i]] for i, a in enumerate(ATTRIBUTES)])
-    return code if o[INSIDE] < 0 else f"{code} in{o[INSIDE]}"
+    key = tuple(o)
+    code = _CODES.get(key)
+    if code is None:
+        code = " ".join([VALUES[a][o[i]] for i, a in enumerate(ATTRIBUTES)])
+        if o[INSIDE] >= 0:
+            code = f"{code} in{o[INSIDE]}"
+        _CODES[key] = code
+    return code
 
 
 def _obj_dict(code: str | Mapping[str, Any]) -> dict[str, Any]:
@@ -618,49 +627,48 @@ def _panel_array(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
 _WEIGHTS = 2.0 ** np.arange(53)
 
 
-def _pack(truth: np.ndarray) -> np.ndarray:
-    """Pack a (P, K) boolean array into K uint64 bit masks (bit p = panel p)."""
-    p = truth.shape[0]
-    if p > 53:  # exact in float64, which lets one BLAS product do the packing
-        raise ValueError("at most 53 panels per item")
-    return (_WEIGHTS[:p] @ truth).astype(np.uint64)
+_K1 = np.arange(1, MAX_OBJECTS + 1)
+_K2 = np.arange(2, MAX_OBJECTS + 1)
+_OBJ = np.arange(MAX_OBJECTS)
 
 
 def leaf_vectors(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
-    """Truth of every enumerated leaf on every panel, as uint64 bit masks (bit p = panel p)."""
+    """Truth of every enumerated leaf on every panel, as uint64 bit masks (bit p = panel p).
+
+    One pass over all panels: an object-by-value indicator ``M`` (with a last column marking real
+    objects) gives value counts and co-occurrence counts as ``M^T M``, and relation leaves as
+    ``M^T R M`` for each relation matrix ``R`` (padding rows of ``M`` are zero).
+    """
     g = grammar()
-    x = _panel_array(panels)
-    exist = x[:, :, 0] >= 0
-    n = exist.sum(1)
-    m = (x[:, :, ATOM_ATTR] == ATOM_VAL) & exist[:, :, None]  # (P, O, atoms)
-    mf = m.astype(np.float32)
-    c1 = m.sum(1)  # (P, atoms)
-    mt = mf.transpose(0, 2, 1)
-    c2 = mt @ mf  # co-occurrence counts
-    cp = c2[:, g.pair_a, g.pair_b]
-    nn = n[:, None]
-    w = _WEIGHTS[: len(panels)]
-    if len(panels) > len(_WEIGHTS):
+    p = len(panels)
+    if p > len(_WEIGHTS):
         raise ValueError("at most 53 panels per item")
-    parts = [w @ x for x in (
-        n[:, None] == np.arange(1, MAX_OBJECTS + 1)[None, :],
-        n[:, None] >= np.arange(2, MAX_OBJECTS + 1)[None, :],
-        c1 == nn, c1 > 0, c1 == 0,
-        c1 == 1, c1 == 2, c1 == 3,
-        cp == nn, cp > 0, cp == 0,
-    )]
+    x = _panel_array(panels)
+    na = N_ATOMS
+    maug = np.empty((p, MAX_OBJECTS, na + 1), dtype=np.float32)
+    np.equal(x[:, :, ATOM_ATTR], ATOM_VAL, out=maug[:, :, :na], casting="unsafe")
+    np.greater_equal(x[:, :, 0], 0, out=maug[:, :, na], casting="unsafe")
+    mt = maug.transpose(0, 2, 1)
+    c2 = mt @ maug  # co-occurrence counts; the last row holds value counts, the corner n
+    n = c2[:, na, na]
+    c1 = c2[:, na, :na]
+    cp = c2[:, g.pair_a, g.pair_b]
     row, col, size, ins = x[:, :, ROW], x[:, :, COL], x[:, :, SIZE], x[:, :, INSIDE]
-    both = exist[:, :, None] & exist[:, None, :]
-    rel = np.stack([
-        row[:, :, None] < row[:, None, :],
-        col[:, :, None] < col[:, None, :],
-        size[:, :, None] > size[:, None, :],
-        ins[:, :, None] == np.arange(MAX_OBJECTS)[None, None, :],
-    ], axis=1) & both[:, None]  # (P, 4, O, O)
-    maug = np.concatenate([mf, exist[:, :, None].astype(np.float32)], axis=2)  # (P, O, A+1)
-    res = (maug.transpose(0, 2, 1)[:, None] @ (rel.astype(np.float32) @ maug[:, None])) > 0
-    parts.append(w @ res.reshape(len(panels), -1))
-    return np.concatenate(parts).astype(np.uint64)
+    rel = np.empty((p, 4, MAX_OBJECTS, MAX_OBJECTS), dtype=np.float32)
+    np.less(row[:, :, None], row[:, None, :], out=rel[:, 0], casting="unsafe")
+    np.less(col[:, :, None], col[:, None, :], out=rel[:, 1], casting="unsafe")
+    np.greater(size[:, :, None], size[:, None, :], out=rel[:, 2], casting="unsafe")
+    np.equal(ins[:, :, None], _OBJ, out=rel[:, 3], casting="unsafe")
+    res = mt[:, None] @ (rel @ maug[:, None])  # (P, 4, A+1, A+1); the last index is "*"
+    truth = np.empty((p, g.n_leaves), dtype=bool)
+    nn = n[:, None]
+    k = 0
+    for arr in (nn == _K1, nn >= _K2, c1 == nn, c1 > 0, c1 == 0, c1 == 1, c1 == 2, c1 == 3,
+                cp == nn, cp > 0, cp == 0):
+        truth[:, k:k + arr.shape[1]] = arr
+        k += arr.shape[1]
+    np.greater(res.reshape(p, -1), 0, out=truth[:, k:])
+    return (_WEIGHTS[:p] @ truth).astype(np.uint64)
 
 
 def rule_vector(rule: Rule, panels: Sequence[Sequence[Sequence[int]]]) -> int:
@@ -804,14 +812,21 @@ class _Ctx:
         self.rnd = self.rng.r.random
         self._np = rng
         self._pool: list[list[int]] = []
+        self._cells: list[list[int]] = []
         self.allowed = allowed
         self.lo, self.hi = lo, hi
         self.nest = nest
 
+    def new_cells(self) -> list[int]:
+        """The nine cells in random order (drawn in blocks for speed)."""
+        if not self._cells:
+            self._cells = self._np.permuted(np.tile(np.arange(9), (64, 1)), axis=1).tolist()
+        return self._cells.pop()
+
     def new_values(self) -> list[int]:
         """Random values of the five object attributes (drawn in blocks for speed)."""
         if not self._pool:
-            cols = [np.asarray(al)[self._np.integers(0, len(al), 256)] for al in self.allowed[:5]]
+            cols = [np.asarray(al)[self._np.integers(0, len(al), 128)] for al in self.allowed[:5]]
             self._pool = np.stack(cols, axis=1).tolist()
         return self._pool.pop()
 
@@ -1094,17 +1109,16 @@ def _set_count(objs: list[list[int]], n: int, ctx: _Ctx) -> None:
         _remove(objs, ctx)
 
 
-_NINE = tuple(range(9))
+_CELL_RC = tuple(divmod(c, 3) for c in range(9))
 
 
 def _random_panel(ctx: _Ctx) -> list[list[int]]:
     rng = ctx.rng
-    n = int(rng.integers(ctx.lo, ctx.hi + 1))
-    cells = rng.r.sample(_NINE, n)
+    n = ctx.lo + int(ctx.rnd() * (ctx.hi - ctx.lo + 1))
     objs = []
-    for c in cells:
+    for c in ctx.new_cells()[:n]:
         o = _new_object(ctx)
-        o[ROW], o[COL] = int(c) // 3, int(c) % 3
+        o[ROW], o[COL] = _CELL_RC[c]
         objs.append(o)
     if ctx.nest and n >= 2 and rng.random() < 0.3:
         i, j = (int(v) for v in rng.choice(n, 2, replace=False))
