@@ -242,3 +242,185 @@ class Driver:
         self.proc.send_signal(signal.SIGKILL)
         self.proc.wait()
         self.x.close()
+
+
+ALL_FAMILIES = """
+[bank.spec]
+seed = 21
+[bank.spec.families.strings]
+n = 3
+modes = ["generate", "select"]
+design = "crossed"
+[bank.spec.families.strings.params]
+alphabet = ["letters", "glyphs"]
+[bank.spec.families.matrices]
+n = 3
+modes = ["select", "generate"]
+[bank.spec.families.contrast]
+n = 2
+modes = ["select", "generate"]
+[bank.spec.families.grids]
+n = 2
+modes = ["generate", "select"]
+[bank.spec.families.grids.params]
+size = 4
+
+[[blocks]]
+name = "letters"
+families = ["strings"]
+mode = "generate"
+instructions = "instructions.txt"
+practice = 1
+
+[[blocks]]
+name = "figures"
+families = ["matrices"]
+mode = "select"
+instructions = "instructions.txt"
+
+[[blocks]]
+name = "sets"
+families = ["contrast"]
+mode = "select"
+instructions = "instructions.txt"
+state_rule = true
+
+[[blocks]]
+name = "colours"
+families = ["grids"]
+mode = "generate"
+instructions = "instructions.txt"
+
+[forms]
+order = "fixed"
+"""
+
+
+def make_runner_study(
+    root: Path,
+    body: str = ALL_FAMILIES,
+    *,
+    name: str = "runnertest",
+    runner: str = "",
+    n_forms: int = 20,
+) -> Path:
+    """A study folder with consent and instructions files and built forms."""
+    from twofold.study import load_study
+    from twofold.study.forms import build_forms, write_forms
+
+    root.mkdir(parents=True, exist_ok=True)
+    runner = runner or "size = [1024, 768]\n"
+    (root / "study.toml").write_text(
+        f'[study]\nname = "{name}"\nseed = 8\n{body}\n[runner]\n{runner}', "utf-8"
+    )
+    (root / "consent.txt").write_text(
+        "Consent text approved for this test study.\n\nY = agree, N = do not agree.\n", "utf-8"
+    )
+    (root / "instructions.txt").write_text("Instructions.\n\nPress SPACE.\n", "utf-8")
+    study = load_study(root)
+    write_forms(study, build_forms(study, n_forms))
+    return root / "study.toml"
+
+
+def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
+    """Answer ``item`` correctly on the current screen; return what the log should show.
+
+    ``step`` varies the way of answering (key vs click) so both paths are exercised.
+    """
+    fam = item.family
+    if mode == "select" and fam != "contrast":
+        k = item.answer_choice
+        if step % 2:
+            d.click(f"choice:{k}")
+        else:
+            d.key(str(k))
+        return {"response": k, "correct": True}
+    if fam == "strings":
+        text = item.answer
+        if all(ch.isascii() and ch.isalnum() for ch in text):
+            d.key("x" if "x" not in text else "q")  # a wrong symbol, then correct it
+            d.key("BackSpace")
+            d.type(text)
+            d.key("Return")
+        else:
+            d.click(f"symbol:{text[0]}")
+            d.click("delete")
+            for ch in text:
+                d.click(f"symbol:{ch}")
+            d.click("done")
+        return {"response": text, "correct": True}
+    if fam == "contrast":
+        labels = item.answer["labels"]
+        for j, lab in enumerate(labels):
+            if j == 0:
+                d.key(lab.lower())
+            elif j == 1:  # the other key pair, F for A and J for B
+                d.key({"A": "f", "B": "j"}[lab])
+            else:
+                d.click(f"label:{lab}")
+        d.type("dark ones")
+        d.key("Return")
+        return {"response": labels, "correct": True, "detail": "rule statement: dark ones"}
+    if fam == "grids":
+        target = item.answer
+        test = item.stimulus["test"]
+        d.click("copy")
+        d.click("reset")
+        d.refresh()
+        rows, cols = len(test), len(test[0])
+        # drag across the first row with colour 1 (then repaint it below)
+        d.key("1")
+        row0 = [d.state["targets"][f"cell:0,{c}"] for c in range(cols)]
+        d.drag(row0)
+        for name, diff in (("rows", len(target) - rows), ("cols", len(target[0]) - cols)):
+            for _ in range(abs(diff)):
+                d.click(f"{name}{'+' if diff > 0 else '-'}")
+        d.refresh()
+        by_colour: dict[int, list[str]] = {}
+        for r, line in enumerate(target):
+            for c, v in enumerate(line):
+                if r == 0 or v != 0:
+                    by_colour.setdefault(int(v), []).append(f"cell:{r},{c}")
+        for k, (colour, cells) in enumerate(sorted(by_colour.items())):
+            if k % 2:
+                d.click(f"colour:{colour}")
+            else:
+                d.key(str(colour))
+            for cell in cells:
+                d.click(cell)
+        d.click("submit")
+        return {"response": target, "correct": True}
+    raise AssertionError(f"no way to answer {fam} in {mode}")
+
+
+def play(
+    d: Driver, bank: Any, *, consent: str = "y", stop_after: int | None = None
+) -> list[dict[str, Any]]:
+    """Go through a session answering every item correctly; return the expected trial rows.
+
+    Practice items are answered too (their rows are not logged). Stops (without ending the
+    session) after ``stop_after`` logged trials when given.
+    """
+    expected: list[dict[str, Any]] = []
+    step = 0
+    while True:
+        s = d.wait(None)
+        if s["screen"] == "consent":
+            d.key(consent)
+            if consent != "y":
+                return expected
+        elif s["screen"] == "trial":
+            if stop_after is not None and len(expected) >= stop_after:
+                return expected
+            item = bank[s["item"]]
+            mode = "select" if s["block"] in ("figures", "sets") else "generate"
+            exp = answer(d, item, mode, step=step)
+            step += 1
+            if s["trial"] is not None:
+                exp.update(trial=s["trial"], item=item.id)
+                expected.append(exp)
+        elif s["screen"] == "end":
+            d.key("space")
+            return expected
+        else:  # instructions, feedback, break
+            d.key("space")

@@ -414,20 +414,21 @@ class _Session:
                     return SessionResult("declined", 0, plan.csv_path, meta)
                 meta = writer.update_sidecar(consent=True)
             practice_done = list(meta.get("practice_done", []))
-            trial = 0
+            trial, shown = 0, False  # shown: a block was presented in this run
             for bi, block in enumerate(form.blocks):
                 idx = list(range(trial, trial + len(block.items)))
                 trial += len(block.items)
                 todo = [k for k in idx if k not in plan.done]
                 if not todo:
                     continue
-                if bi > 0 and form.break_between_blocks and len(todo) == len(idx):
+                if shown and form.break_between_blocks:
                     self.text_screen(
                         "Take a short break.\n\nPress SPACE when you are ready to go on.",
                         ("space",),
                         "break",
                     )
                 self.text_screen(plan.instructions[block.name], ("space",), "instructions")
+                shown = True
                 if block.practice and block.name not in practice_done:
                     self.practice(block)
                     practice_done.append(block.name)

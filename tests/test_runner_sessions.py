@@ -1,0 +1,99 @@
+"""Real participant sessions: a PsychoPy window under X, driven through XTEST.
+
+Every family's screen is answered the way a person would: typed strings with corrections,
+on-screen symbol keys, matrix choices by key and by click, contrast labels by both key pairs and
+by click plus a typed rule, and the grid editor (copy, reset, drag-paint, resize, palette by key
+and by click, cell clicks, submit). Also: declining consent, ESC with and without confirmation,
+and resuming an aborted session.
+"""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from _display import Driver, make_runner_study, play, x_display  # noqa: F401
+from twofold.study import load_study, read_sidecar, read_trials
+
+pytestmark = pytest.mark.display
+
+
+@pytest.fixture(scope="module")
+def study(tmp_path_factory):
+    path = make_runner_study(tmp_path_factory.mktemp("runner"))
+    st = load_study(path)
+    return st, st.bank()
+
+
+def test_full_session_every_family_screen(x_display, study, tmp_path):  # noqa: F811
+    st, bank = study
+    d = Driver(x_display, st.file, "P001", tmp_path)
+    expected = play(d, bank)
+    rc, err = d.finish()
+    assert rc == 0, err
+    assert "ethics board" in err and "data-protection law" in err  # the start banner
+    df = read_trials(st.logs_dir / "human" / "P001.csv")
+    assert list(df["trial"]) == list(range(len(expected))) == list(range(9))
+    families = set(df["family"])
+    assert families == {"strings", "matrices", "contrast", "grids"}
+    for row, exp in zip(df.to_dict("records"), expected, strict=True):
+        assert row["item"] == exp["item"]
+        assert row["status"] == "ok", row
+        assert json.loads(row["response"]) == exp["response"], row
+        assert row["correct"] is True or row["correct"] == True, row  # noqa: E712
+        assert row["rt_ms"] > 0 and row["response_s"] > row["onset_s"]
+        if "detail" in exp:
+            assert row["detail"].startswith(exp["detail"])
+    side = read_sidecar(st.logs_dir / "human" / "P001.json")
+    assert side["status"] == "complete" and side["n_trials"] == 9
+    assert side["keyboard_backend"] == "ptb"
+    assert side["consent"] is True and side["practice_done"] == ["letters"]
+    assert side["screen"]["size"] == [1024, 768] and side["refresh_hz"] > 0
+    assert side["frames"]["n_intervals"] > 0 and "dropped_frames" in side
+    assert side["bank_hash"] == bank.hash and side["form"] == "F001"
+    assert not any(k in side for k in ("name", "email", "contact"))
+
+
+def test_declining_consent_keeps_no_trial_data(x_display, study, tmp_path):  # noqa: F811
+    st, bank = study
+    d = Driver(x_display, st.file, "P002", tmp_path)
+    assert play(d, bank, consent="n") == []
+    rc, _ = d.finish()
+    assert rc == 4
+    assert not (st.logs_dir / "human" / "P002.csv").exists()
+    assert read_sidecar(st.logs_dir / "human" / "P002.json")["status"] == "declined"
+
+
+def test_escape_confirm_then_resume(x_display, study, tmp_path):  # noqa: F811
+    st, bank = study
+    d = Driver(x_display, st.file, "P003", tmp_path)
+    first = play(d, bank, stop_after=2)
+    on_screen = d.state
+    d.key("Escape")
+    assert d.wait("confirm")["screen"] == "confirm"
+    d.key("n")  # go on: the same item comes back with a fresh onset
+    again = d.wait("trial")
+    assert again["item"] == on_screen["item"] and again["onset"] > on_screen["onset"]
+    d.key("Escape")
+    d.wait("confirm")
+    d.key("y")
+    rc, _ = d.finish()
+    assert rc == 3
+    csv = st.logs_dir / "human" / "P003.csv"
+    assert list(read_trials(csv)["trial"]) == [e["trial"] for e in first]
+    assert read_sidecar(csv.with_suffix(".json"))["status"] == "aborted"
+    # resume: no consent again, no practice again, continues at the first open trial
+    d = Driver(x_display, st.file, "P003", tmp_path, resume=True)
+    s = d.wait(None)
+    assert s["screen"] == "instructions"
+    d.key("space")
+    rest = play(d, bank)
+    rc, err = d.finish()
+    assert rc == 0, err
+    assert rest[0]["trial"] == len(first)
+    df = read_trials(csv)
+    assert list(df["trial"]) == list(range(9))
+    side = read_sidecar(csv.with_suffix(".json"))
+    assert side["status"] == "complete"
+    assert side["interruptions"][0]["previous_status"] == "aborted"
+    assert side["interruptions"][0]["next_trial"] == len(first)
