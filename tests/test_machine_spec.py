@@ -11,7 +11,9 @@ from hypothesis import given
 from hypothesis import strategies as st
 from twofold.experiments.cli import main
 from twofold.experiments.machine import (
+    CHECK_COLUMNS,
     build_solver,
+    check_solver,
     parse_solver_entry,
     solver_from_string,
     study_solvers,
@@ -218,3 +220,19 @@ def test_flatten_payload_keeps_every_leaf(value):
 
     walk(value)
     assert sorted(flat.values()) == sorted(leaves)
+
+
+def test_check_solver_runs_a_few_items_and_reports(tmp_path):
+    bank = make_study(tmp_path).bank()
+    table = check_solver("python:_toyfamily:solve_structured", bank, n_items=3)
+    assert list(table.columns) == list(CHECK_COLUMNS)
+    assert len(table) == 6 and (table["status"] == "ok").all() and table["correct"].all()
+    with pytest.raises(SolverError, match="all 6 trials failed; first reason: solver raised"):
+        check_solver("python:_toyfamily:solve_text", bank, n_items=3)
+
+    class NoMedium:
+        def solve(self, view, mode):
+            return 1
+
+    with pytest.raises(SolverError, match="field 'medium': got None"):
+        check_solver(NoMedium(), bank)

@@ -10,12 +10,14 @@ and caches every finished trial so a rerun resumes. :func:`export_items` and
 from ._core import FreeText, TrialFailure, coerce_answer
 from .cache import TrialCache
 from .chat import ChatSolver
+from .check import CHECK_COLUMNS, check_solver
 from .command import PROTOCOL, PROTOCOL_VERSION, CommandSolver
 from .exchange import export_items, import_answers
 from .runner import SUMMARY_COLUMNS, plan_trials, run_solvers, run_trial
 from .spec import SolverSpec, build_solver, parse_solver_entry, solver_from_string, study_solvers
 
 __all__ = [
+    "CHECK_COLUMNS",
     "PROTOCOL",
     "PROTOCOL_VERSION",
     "SUMMARY_COLUMNS",
@@ -26,6 +28,7 @@ __all__ = [
     "TrialCache",
     "TrialFailure",
     "build_solver",
+    "check_solver",
     "coerce_answer",
     "export_items",
     "import_answers",
