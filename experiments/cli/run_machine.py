@@ -34,7 +34,10 @@ def machine(
     study_toml: Annotated[Path, typer.Argument(help="The study file (or its folder).")],
     solver: Annotated[
         list[str] | None,
-        typer.Option(help="Solver spec or [[solvers]] name (repeatable); default: all entries."),
+        typer.Option(
+            help="Solver spec, or the name of a solvers entry of study.toml (repeatable); "
+            "default: every entry."
+        ),
     ] = None,
     seeds: Annotated[
         int | None, typer.Option(help="Seeds per solver (overrides the study).")
