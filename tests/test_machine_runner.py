@@ -169,12 +169,13 @@ def test_kill_9_loses_at_most_the_trials_in_flight(tmp_path):
         from twofold.study import load_study
         from twofold.experiments.machine import parse_solver_entry, run_solvers
         s = parse_solver_entry({{"spec": "python:_toyfamily:StopAfter",
-                                 "options": {{"stop": 10**6, "sleep": 0.05}}}})
+                                 "options": {{"stop": 10**6}}}})
         run_solvers(load_study({str(tmp_path)!r}), [s])
     """)
-    proc = subprocess.Popen([sys.executable, "-c", script])
+    env = {**os.environ, "TWOFOLD_TOY_SLEEP": "0.2"}
+    proc = subprocess.Popen([sys.executable, "-c", script], env=env)
     db = tmp_path / "cache" / CACHE_FILE
-    deadline = time.monotonic() + 30
+    deadline = time.monotonic() + 60
     n = 0
     while time.monotonic() < deadline and n < 4:
         time.sleep(0.05)
@@ -191,7 +192,7 @@ def test_kill_9_loses_at_most_the_trials_in_flight(tmp_path):
         kept = c.count()
     assert 4 <= kept < 24
     study = make_study(tmp_path)
-    s = spec("python:_toyfamily:StopAfter", options={"stop": 10**6, "sleep": 0.05})
+    s = spec("python:_toyfamily:StopAfter", options={"stop": 10**6})
     table = run_solvers(study, [s])
     assert table.loc[0, "n_cached"] == kept and table.loc[0, "n_run"] == 24 - kept
     df = trials(study, s.session_id(0))
