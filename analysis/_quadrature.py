@@ -7,8 +7,8 @@ Everything here works on plain float64 arrays:
 - ``M`` (persons x items): number of attempts (1 where seen, 0 where not). Counts above 1 let a
   pooled respondent (several machine seeds) be scored with the same code.
 
-The latent trait has a standard normal prior, integrated with Gauss-Hermite quadrature. Items are
-kept in slope-intercept form ``z = a * theta + d`` (``b = -d / a``).
+The latent trait has a standard normal prior, integrated on a fixed grid (or Gauss-Hermite
+nodes). Items are kept in slope-intercept form ``z = a * theta + d`` (``b = -d / a``).
 """
 
 from __future__ import annotations
@@ -26,17 +26,32 @@ __all__ = [
     "chunks",
     "louis_information",
     "mle_theta",
+    "QUADRATURES",
     "normal_quadrature",
     "posterior",
     "run_em",
 ]
 
 
-def normal_quadrature(n_points: int) -> tuple[np.ndarray, np.ndarray]:
-    """Gauss-Hermite nodes and log-weights for a standard normal density (weights sum to 1)."""
-    nodes, weights = hermegauss(n_points)
-    weights = weights / weights.sum()
-    return nodes.astype(np.float64), np.log(weights)
+QUADRATURES = ("gauss-hermite", "grid")
+GRID_BOUND = 6.0
+
+
+def normal_quadrature(n_points: int, kind: str = "grid") -> tuple[np.ndarray, np.ndarray]:
+    """Nodes and log-weights (weights sum to 1) for a standard normal ability distribution.
+
+    ``"grid"``: equally spaced nodes on [-6, 6] weighted by the normal density. ``"gauss-hermite"``:
+    Gauss-Hermite nodes, exact for polynomials but spaced about 0.5 apart near 0, too coarse for
+    the narrow posteriors of long tests (it biases slopes downwards there).
+    """
+    if kind == "gauss-hermite":
+        nodes, weights = hermegauss(n_points)
+        weights = weights / weights.sum()
+        return nodes.astype(np.float64), np.log(weights)
+    nodes = np.linspace(-GRID_BOUND, GRID_BOUND, n_points)
+    logw = -0.5 * nodes * nodes
+    logw -= np.log(np.exp(logw).sum())
+    return nodes, logw
 
 
 def _log1mp(z: np.ndarray) -> np.ndarray:

@@ -9,7 +9,7 @@ The models (logistic, one latent trait ``theta ~ N(0, 1)``)::
 - ``"1pl"``: one common slope estimated for all items.
 
 Item parameters are estimated by marginal maximum likelihood with the Bock-Aitkin EM algorithm
-on a Gauss-Hermite grid, accelerated with SQUAREM; standard errors come from the exact observed
+on a fixed quadrature grid, accelerated with SQUAREM; standard errors come from the exact observed
 information (Louis 1982). Missing responses (NaN: the respondent did not see the item) are
 allowed everywhere.
 
@@ -226,7 +226,8 @@ class IRTResult:
         correct; ``infit``, ``outfit`` mean squares at the maximum-likelihood abilities (NaN when
         not computed).
     abilities : pandas.DataFrame
-        EAP abilities of the calibration respondents, columns :data:`ABILITY_COLUMNS`.
+        EAP abilities of the calibration respondents (121-node grid), columns
+        :data:`ABILITY_COLUMNS`.
     loglik : float
         Marginal log-likelihood at the estimate.
     n_persons, n_items, n_params : int
@@ -247,7 +248,9 @@ class IRTResult:
         Covariance of the free parameters (slopes then intercepts for the 2PL; the common slope
         then intercepts for the 1PL; intercepts for the Rasch model).
     quadrature_points : int
-        Number of Gauss-Hermite nodes.
+        Number of quadrature nodes used in the fit.
+    quadrature : str
+        ``"grid"`` or ``"gauss-hermite"``.
     """
 
     model: str
@@ -267,6 +270,7 @@ class IRTResult:
     dropped_persons: tuple[str, ...]
     cov: np.ndarray | None = field(repr=False)
     quadrature_points: int = 41
+    quadrature: str = "grid"
 
     @classmethod
     def from_parameters(
@@ -348,7 +352,7 @@ class IRTResult:
         """A short plain-text report of the fit."""
         lines = [
             f"Item-response model: {self.model} (marginal ML, Bock-Aitkin EM, "
-            f"{self.quadrature_points} Gauss-Hermite points)",
+            f"{self.quadrature_points}-point {self.quadrature} quadrature)",
             f"respondents: {self.n_persons}   items: {self.n_items}   parameters: "
             f"{self.n_params}",
             f"log-likelihood: {self.loglik:.3f}   AIC: {self.aic:.1f}   BIC: {self.bic:.1f}",
@@ -403,6 +407,7 @@ def fit_irt(
     *,
     model: str = "2pl",
     kind: str | None = None,
+    quadrature: str = "grid",
     quadrature_points: int = 41,
     max_iter: int = 500,
     tol: float = 1e-5,
@@ -422,8 +427,12 @@ def fit_irt(
         ``"rasch"`` fixes every slope at 1; ``"1pl"`` estimates one common slope.
     kind : {"human", "machine"} or None, default None
         With a trials table: calibrate on respondents of this kind only.
+    quadrature : {"grid", "gauss-hermite"}, default "grid"
+        How the N(0, 1) ability distribution is integrated: equally spaced nodes on [-6, 6]
+        weighted by the normal density, or Gauss-Hermite nodes (accurate for short tests, but
+        biased for long ones, whose posteriors are narrower than the node spacing).
     quadrature_points : int, default 41
-        Gauss-Hermite nodes for the N(0, 1) ability distribution.
+        Number of nodes.
     max_iter : int, default 500
         Maximum EM (SQUAREM) cycles; a :class:`ConvergenceWarning` is issued when reached.
     tol : float, default 1e-5
@@ -471,7 +480,8 @@ def fit_irt(
     (True, 8)
     """
     check_choice("model", model, MODELS)
-    check_int("quadrature_points", quadrature_points, low=5, high=201)
+    check_choice("quadrature", quadrature, _q.QUADRATURES)
+    check_int("quadrature_points", quadrature_points, low=5, high=401)
     check_int("max_iter", max_iter, low=1)
     check_number("tol", tol, low=0.0)
     frame = _as_matrix(data, kind=kind)
@@ -506,7 +516,7 @@ def fit_irt(
     X, Mk = _split(values)
     M = None if _full(Mk) else Mk
     design = _q.Design(_DESIGN[model], n_items)
-    nodes, logw = _q.normal_quadrature(quadrature_points)
+    nodes, logw = _q.normal_quadrature(quadrature_points, quadrature)
     phi0 = _initial_phi(X, Mk, design.kind)
     out = _q.run_em(X, M, design, phi0, nodes, logw,
                     max_iter=max_iter, tol=tol, accelerate=accelerate)
@@ -541,8 +551,7 @@ def fit_irt(
                 a_se = np.sqrt(var_a) if model != "rasch" else np.full(J, np.nan)
                 d_se = np.sqrt(var_d)
                 b_se = np.sqrt(np.maximum(var_b, 0.0))
-    theta = out.W @ nodes
-    theta_sd = np.sqrt(np.maximum(out.W @ (nodes * nodes) - theta * theta, 0.0))
+    theta, theta_sd = _scores(X, Mk, a, d, "eap")
     abilities = _ability_table(frame.index, theta, theta_sd, "eap", X, Mk, a, d)
     items = pd.DataFrame(
         {
@@ -581,6 +590,7 @@ def fit_irt(
         dropped_persons=dropped_persons,
         cov=cov,
         quadrature_points=quadrature_points,
+        quadrature=quadrature,
     )
 
 
@@ -628,9 +638,13 @@ def _ability_table(index, theta, se, method, X, Mk, a, d) -> pd.DataFrame:
     )
 
 
-def _scores(X, Mk, a, d, method, quadrature_points=41):
+#: EAP scoring grid: 121 nodes on [-6, 6] (spacing 0.1), fine enough for long-test posteriors
+EAP_POINTS = 121
+
+
+def _scores(X, Mk, a, d, method, quadrature_points=EAP_POINTS):
     if method == "eap":
-        nodes, logw = _q.normal_quadrature(quadrature_points)
+        nodes, logw = _q.normal_quadrature(quadrature_points, "grid")
         W, _ = _q.posterior(X, None if _full(Mk) else Mk, a, d, nodes, logw)
         theta = W @ nodes
         return theta, np.sqrt(np.maximum(W @ (nodes * nodes) - theta * theta, 0.0))
@@ -671,8 +685,8 @@ def score_abilities(
         ``"eap"``: posterior mean and SD under the N(0, 1) prior. ``"mle"``: maximum likelihood
         with SE ``1 / sqrt(information)``; NaN (with a :class:`DegenerateWarning`) for
         respondents who got every seen item right or every one wrong.
-    quadrature_points : int, optional
-        Nodes for EAP; defaults to the calibration's.
+    quadrature_points : int, default 121
+        Nodes of the EAP grid on [-6, 6].
 
     Returns
     -------
@@ -685,7 +699,8 @@ def score_abilities(
     check_choice("method", method, ("eap", "mle"))
     frame = _aligned(result, data)
     X, Mk = _split(frame.to_numpy(dtype=np.float64))
-    q = quadrature_points or result.quadrature_points
+    q = EAP_POINTS if quadrature_points is None else check_int(
+        "quadrature_points", quadrature_points, low=5, high=2001)
     theta, se = _scores(X, Mk, result.a, result.d, method, q)
     if method == "mle":
         _warn_extreme(theta)
@@ -774,7 +789,7 @@ def item_fit(
     frame = _aligned(result, data)
     X, Mk = _split(frame.to_numpy(dtype=np.float64))
     if theta is None:
-        t, _ = _scores(X, Mk, result.a, result.d, method, result.quadrature_points)
+        t, _ = _scores(X, Mk, result.a, result.d, method)
     else:
         t = np.asarray(theta, dtype=np.float64).ravel()
         if t.size != X.shape[0]:
@@ -1016,7 +1031,7 @@ def score_on_human_scale(
             pooled_col.append(True)
     XX, MM = np.vstack(rows_X), np.vstack(rows_M)
     if XX.shape[0]:
-        theta, se = _scores(XX, MM, a, d, method, cal.quadrature_points)
+        theta, se = _scores(XX, MM, a, d, method)
         if method == "mle":
             _warn_extreme(theta)
     else:

@@ -45,9 +45,11 @@ def lsat7() -> pd.DataFrame:
     return _lsat("lsat7")
 
 
-def _marginal_loglik(x: np.ndarray, a: np.ndarray, d: np.ndarray, n_points: int = 61) -> float:
-    """Independent, unoptimised marginal log-likelihood (Gauss-Hermite, persons x nodes x items)."""
-    nodes, weights = np.polynomial.hermite_e.hermegauss(n_points)
+def _marginal_loglik(x: np.ndarray, a: np.ndarray, d: np.ndarray, n_points: int = 41) -> float:
+    """Independent, unoptimised marginal log-likelihood (normal density on an equally spaced
+    grid over [-6, 6]; persons x nodes x items)."""
+    nodes = np.linspace(-6, 6, n_points)
+    weights = np.exp(-nodes**2 / 2)
     logw = np.log(weights / weights.sum())
     p = expit(nodes[:, None] * a + d)  # nodes x items
     cell = np.where(x[:, None, :] == 1, np.log(p), np.log1p(-p))
@@ -77,6 +79,15 @@ def test_lsat6_one_common_slope(lsat6):
     assert_allclose(res.a, 0.755, atol=1e-3)
     assert_allclose(res.loglik, -2466.938, atol=1e-3)
     assert res.n_params == 6
+
+
+@pytest.mark.parametrize("quadrature", ["gauss-hermite", "grid"])
+def test_lsat6_rasch_either_quadrature(lsat6, quadrature):
+    res = fit_irt(lsat6, model="rasch", quadrature=quadrature, quadrature_points=21, tol=1e-7)
+    # reference: Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory; REFERENCES.md)
+    assert_allclose(res.items["b"], [-2.872, -1.063, -0.258, -1.388, -2.219], atol=2e-3)
+    assert_allclose(res.loglik, -2473.054, atol=2e-3)
+    assert quadrature in res.summary()
 
 
 def test_lsat6_2pl(lsat6):
@@ -153,7 +164,7 @@ def test_standard_errors_match_numerical_hessian(model):
     J = 4
     x = simulate_responses(rng.uniform(0.6, 1.6, J), np.linspace(-1, 1, J),
                            rng.normal(size=300), rng, missing=0.2)
-    res = fit_irt(x, model=model, tol=1e-9, quadrature_points=61)
+    res = fit_irt(x, model=model, tol=1e-9)
     a, d = res.a, res.d
     if model == "2pl":
         phi = np.concatenate([a, d])
@@ -251,6 +262,20 @@ def test_parameter_recovery_with_missing_responses():
     ab = res.abilities
     assert list(ab.columns) == list(ABILITY_COLUMNS)
     assert np.corrcoef(ab["theta"], theta)[0, 1] > 0.85
+
+
+def test_long_test_slopes_unbiased_on_the_default_grid():
+    rng = np.random.default_rng(17)
+    J, n = 120, 2000
+    a = rng.uniform(0.8, 2.0, J)
+    b = rng.normal(size=J)
+    x = simulate_responses(a, b, rng.normal(size=n), rng)
+    grid = fit_irt(x, se=False, fit_statistics=False)
+    assert abs(np.mean(grid.a - a)) < 0.04
+    assert np.sqrt(np.mean((grid.a - a) ** 2)) < 0.1
+    # Gauss-Hermite nodes (about 0.5 apart near 0) are too coarse for posteriors this narrow
+    gh = fit_irt(x, quadrature="gauss-hermite", se=False, fit_statistics=False)
+    assert np.mean(gh.a - a) < np.mean(grid.a - a) - 0.03
 
 
 def test_plain_em_reaches_the_accelerated_optimum(sim2pl):
