@@ -43,6 +43,30 @@ classifies every training and test panel as the hidden rule does. Free text that
 as a rule (a participant's rule in words) is *not automatically scorable*: :meth:`score` raises
 :class:`~twofold.study.exceptions.ResponseError` (field ``response``), so runners log the trial
 as ``invalid`` with the verbatim text kept for hand coding, rather than counting it as wrong.
+
+Items offering select mode carry ``choices = ["A", "B"]``: the two labels every test panel is
+classified with (distractor scheme ``per-panel``). The answer is the mapping
+``{"rule": <canonical notation>, "labels": <one letter per test panel>}``; :meth:`normalize` also
+reads such a mapping for the part belonging to the mode.
+
+Error types
+-----------
+A wrong label string is compared with the labels given by related rules, in this order (the first
+match wins): ``reversed-sets`` (the negated rule), ``over-general`` (a shorter literal true of every
+panel the rule admits and of some set-B panel), ``over-specific`` (the rule joined with a literal
+true of all set-A panels, when that changes a test label), ``irrelevant-attribute`` (the
+best-fitting literals of length <= 3 about attributes the rule does not use, when they misfit at
+most a third of the training panels); anything else is ``other``. A wrong rule (generate mode) is
+compared by its truth on all panels: its negation, a shorter superset, a subset covering set A, a
+rule about unused attributes only, or ``other``.
+
+Validity
+--------
+A candidate item is rejected (:class:`~twofold.study.families.Rejected`, counted by the bank) when
+another enumerated rule of equal or shorter description length separates the sets but classifies
+a test panel differently, and by default (``minimal``) also when a strictly shorter rule separates
+the sets. Before rejecting, the generator swaps in up to ``2 + 2 * length`` training panels on
+which the hidden rule and a competing rule disagree.
 """
 
 from __future__ import annotations
@@ -110,6 +134,15 @@ N_ATOMS = len(ATOMS)
 _ALIASES = {"center": "centre", "grey": "mid", "gray": "mid"}
 
 QUANTS = ("every", "some", "no")
+#: the example rule in prompts and messages: a form no rule template produces (~n=k)
+_EXAMPLE_RULE = "some[dark+dome] & ~n=2"
+
+
+def _example_labels(n: int) -> str:
+    """An example answer of another length than ``n``, so it can never be copied as correct."""
+    k = 5 if n != 5 else 3
+    return f"'Answer: {'ABBAB'[:k]}' for {k} panels"
+
 RELATIONS = ("above", "leftof", "bigger", "inside")
 MAX_OBJECTS = 6
 
@@ -222,7 +255,7 @@ class _Parser:
     def error(self, what: str) -> ResponseError:
         return ResponseError(
             f"field 'response': got {self.text!r}; accepted: a rule in the contrast notation, "
-            f"e.g. 'every[dome] & n>=3' ({what}).",
+            f"e.g. '{_EXAMPLE_RULE}' ({what}).",
             field="response",
         )
 
@@ -1423,7 +1456,7 @@ class ContrastFamily(Family):
     default_choices = 2
     answer_format = (
         "select: one letter A or B per test panel in order (e.g. ABBA); generate: the rule in "
-        "the contrast notation (e.g. every[dome] & n>=3)"
+        f"the contrast notation (e.g. {_EXAMPLE_RULE})"
     )
 
     # -- generation ------------------------------------------------------------------------------
@@ -1896,8 +1929,8 @@ class ContrastFamily(Family):
         if mode == "select":
             lines.append(
                 f"Classify each test panel T1..T{n} as A (follows the rule) or B (does not). "
-                f"Answer with exactly {n} letters in order on the last line, e.g. "
-                f"'Answer: {'AB' * (n // 2) + 'A' * (n % 2)}'.")
+                f"Answer with exactly {n} letters in order on the last line, as in "
+                f"{_example_labels(n)}.")
         else:
             lines += [
                 "State the hidden rule in this notation:",
@@ -1908,7 +1941,8 @@ class ContrastFamily(Family):
                 "inside[a,b] (an object a is above/left of/larger than/inside an object b; "
                 "* means any object);",
                 "  ~F (not F), F & G (both), parentheses group.",
-                "Answer with the rule alone on the last line, e.g. 'Rule: every[dome] & n>=3'.",
+                f"Answer with the rule alone on the last line, as in 'Rule: {_EXAMPLE_RULE}' "
+                "(an example of the form only).",
             ]
         return "\n".join(lines)
 
@@ -1962,14 +1996,17 @@ class ContrastFamily(Family):
         ax.text(x + pad + w * 0.03, y + pad + w * 0.97, label, fontsize=6, va="top", ha="left",
                 color=colour)
         c = w / 3
-        scale = {"small": 0.16, "medium": 0.26, "large": 0.38}
-        for o in map(_obj_dict, objs):
+        scale = {"small": 0.2, "medium": 0.3, "large": 0.42}
+        dicts = [_obj_dict(x) for x in objs]
+        # containers first, so that nested objects are drawn on top of them
+        for o in sorted(dicts, key=lambda d: d["inside"] is not None):
             ci, ri = VALUES["col"].index(o["col"]), VALUES["row"].index(o["row"])
             cx = x + pad + (ci + 0.5) * c
             cy = y + pad + (2 - ri + 0.5) * c
             rad = scale[o["size"]] * c
             if o["inside"] is not None:
-                rad = scale[o["size"]] * c * 0.55
+                host = dicts[o["inside"]]
+                rad = min(rad, scale[host["size"]] * c * 0.45)
             self._shape(ax, patches, o, cx, cy, rad)
 
     def _shape(self, ax: Any, patches: Any, o: Mapping[str, Any], cx: float, cy: float,
@@ -1993,11 +2030,16 @@ class ContrastFamily(Family):
         rot = [(px * math.cos(ang) - py * math.sin(ang), px * math.sin(ang) + py * math.cos(ang))
                for px, py in pts]
         xy = [(cx + px * r, cy + py * r) for px, py in rot]
-        dash = o["edge"] == "dashed"
-        ax.add_patch(patches.Polygon(
-            xy, closed=True, facecolor=_FILL[VALUES["shade"].index(o["shade"])],
-            edgecolor="#111111", lw=1.3 if dash else 1.0, linestyle=(0, (2, 1.2)) if dash
-            else "-"))
+        fill = _FILL[VALUES["shade"].index(o["shade"])]
+        if o["edge"] == "dashed":
+            # a dashed outline set slightly outside the shape reads on light and dark fills alike
+            ax.add_patch(patches.Polygon(xy, closed=True, facecolor=fill, edgecolor="none"))
+            halo = [(cx + px * r * 1.22, cy + py * r * 1.22) for px, py in rot]
+            ax.add_patch(patches.Polygon(halo, closed=True, fill=False, edgecolor="#111111",
+                                         lw=1.0, linestyle=(0, (2.5, 1.5))))
+        else:
+            ax.add_patch(patches.Polygon(xy, closed=True, facecolor=fill, edgecolor="#111111",
+                                         lw=1.1))
 
 
 def _check_length(rule: Rule, operator: str | None) -> int:
