@@ -236,3 +236,11 @@ def test_check_solver_runs_a_few_items_and_reports(tmp_path):
 
     with pytest.raises(SolverError, match="field 'medium': got None"):
         check_solver(NoMedium(), bank)
+
+
+def test_baselines_label_each_test_panel_when_asked():
+    view = {"choices": ["A", "B"], "test": [{}, {}, {}, {}, {}]}
+    for name in ("random", "choices-only"):
+        answers = {make_builtin(name, seed=s).solve(view, "select").answer for s in range(20)}
+        assert all(len(a) == 5 and set(a) <= {"A", "B"} for a in answers)
+        assert len(answers) > 10  # random labellings, not one fixed string

@@ -1,7 +1,9 @@
 """Context-free baselines: ``random`` and ``choices-only``.
 
 Both read the structured view and use nothing but its ``choices`` (select mode), so they give the
-floor a real solver must beat and show how much the choices alone give away.
+floor a real solver must beat and show how much the choices alone give away. Where a select
+trial asks for one label per test panel (the view has a ``test`` list and the choices are label
+strings, as in ``contrast``), both answer one random label per panel.
 
 Generate mode
 -------------
@@ -39,6 +41,18 @@ def _choices(view: Any) -> list[Any]:
     return list(view["choices"])
 
 
+def _panels(view: Mapping[str, Any], choices: list[Any]) -> int | None:
+    """Number of test panels when a select view asks for one label per panel, else None.
+
+    Some families (contrast) classify several test panels in one select trial: the choices are
+    label strings and the response is one label per panel, in order (e.g. ``"ABBA"``).
+    """
+    test = view.get("test")
+    if isinstance(test, list) and test and all(isinstance(c, str) for c in choices):
+        return len(test)
+    return None
+
+
 class RandomSolver:
     """Pick a choice uniformly at random (select); abstain (generate).
 
@@ -57,7 +71,17 @@ class RandomSolver:
     def solve(self, view: Any, mode: str) -> Answer:
         if mode != "select":
             return Answer(None, effort=0.0, effort_unit="choices", explanation=_ABSTAIN)
-        n = len(_choices(view))
+        choices = _choices(view)
+        n = len(choices)
+        panels = _panels(view, choices)
+        if panels is not None:
+            labels = "".join(choices[int(i)] for i in self._rng.integers(0, n, panels))
+            return Answer(
+                labels,
+                effort=float(panels),
+                effort_unit="choices",
+                explanation=f"a random label for each of {panels} panels",
+            )
         k = int(self._rng.integers(1, n + 1))
         return Answer(k, effort=1.0, effort_unit="choices", explanation=f"random pick of {n}")
 
@@ -110,7 +134,17 @@ class ChoicesOnlySolver:
     def solve(self, view: Any, mode: str) -> Answer:
         if mode != "select":
             return Answer(None, effort=0.0, effort_unit="attributes", explanation=_ABSTAIN)
-        flat = [flatten_payload(c) for c in _choices(view)]
+        choices = _choices(view)
+        panels = _panels(view, choices)
+        if panels is not None:  # bare labels carry no attributes: every label ties
+            labels = "".join(choices[int(i)] for i in self._rng.integers(0, len(choices), panels))
+            return Answer(
+                labels,
+                effort=0.0,
+                effort_unit="attributes",
+                explanation="labels carry no attributes; random label per panel",
+            )
+        flat = [flatten_payload(c) for c in choices]
         paths = sorted(set().union(*flat))
         majority = {}
         for p in paths:
