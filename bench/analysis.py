@@ -29,7 +29,9 @@ mixed
     100,000.
 
 The machine has 2 cores shared with other work; the load average is printed first, because
-multi-threaded BLAS slows down several-fold when the cores are busy.
+multi-threaded BLAS slows down several-fold when the cores are busy. ``--threads 1`` re-runs the
+script with single-threaded BLAS (OPENBLAS_NUM_THREADS, OMP_NUM_THREADS, MKL_NUM_THREADS), which is
+the faster choice on a busy machine.
 """
 
 from __future__ import annotations
@@ -276,9 +278,19 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="also run girth at 50,000 x 200 (minutes)")
     parser.add_argument("--mixed-large", action="store_true",
                         help="also fit the mixed models at 100,000 trials (many minutes)")
+    parser.add_argument("--threads", type=int, default=0,
+                        help="BLAS threads (re-runs the script with the thread variables set)")
     args = parser.parse_args(argv)
+    if args.threads and os.environ.get("OPENBLAS_NUM_THREADS") != str(args.threads):
+        env = dict(os.environ)
+        for var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+            env[var] = str(args.threads)
+        argv_all = [sys.executable, os.path.abspath(__file__), *sys.argv[1:]]
+        os.execve(sys.executable, argv_all, env)
     load = os.getloadavg()
-    print(f"load average: {load[0]:.2f} {load[1]:.2f} {load[2]:.2f} on {os.cpu_count()} cores")
+    threads = os.environ.get("OPENBLAS_NUM_THREADS", "default")
+    print(f"load average: {load[0]:.2f} {load[1]:.2f} {load[2]:.2f} on {os.cpu_count()} cores; "
+          f"BLAS threads: {threads}")
     for name in args.only or list(SECTIONS):
         kwargs: dict[str, Any] = {}
         if name == "irt":
