@@ -65,7 +65,7 @@ Validity
 A candidate item is rejected (:class:`~twofold.study.families.Rejected`, counted by the bank) when
 another enumerated rule of equal or shorter description length separates the sets but classifies
 a test panel differently, and by default (``minimal``) also when a strictly shorter rule separates
-the sets. Before rejecting, the generator swaps in up to ``2 + 2 * length`` training panels on
+the sets. Before rejecting, the generator swaps in up to ``4 + 2 * length`` training panels on
 which the hidden rule and a competing rule disagree.
 """
 
@@ -620,6 +620,16 @@ class Grammar:
         # literals: the leaves, then their negations
         self.lit_lengths = np.concatenate([self.lengths, self.lengths + 1])
         self.n_leaves = len(leaves)
+        self._upto: dict[int, tuple[np.ndarray, ...]] = {}
+
+    def upto(self, length: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Literals of length <= ``length``: indices, their leaves, negation masks, lengths."""
+        key = max(length, 0)
+        if key not in self._upto:
+            idx = np.flatnonzero(self.lit_lengths <= key)
+            flip = np.where(idx >= self.n_leaves, np.uint64((1 << 64) - 1), np.uint64(0))
+            self._upto[key] = (idx, idx % self.n_leaves, flip, self.lit_lengths[idx])
+        return self._upto[key]
 
     def literal(self, k: int) -> Rule:
         """The literal with index ``k`` (leaves first, then negated leaves)."""
@@ -739,31 +749,34 @@ def separating(
     """
     g = grammar()
     full = np.uint64((1 << 64) - 1)
-    lits = np.concatenate([vec, ~vec & full])
-    lens = g.lit_lengths
     am, bm = np.uint64(a_mask), np.uint64(b_mask)
     train = am | bm
     out: dict[str, np.ndarray] = {}
-    ok = ((lits & train) == am) & (lens <= max_length)
-    idx = np.flatnonzero(ok)
-    out["single"], out["single_vec"], out["single_len"] = idx, lits[idx], lens[idx]
+    idx, leaf, flip, lens = g.upto(max_length)
+    lits = vec[leaf] ^ flip
+    ok = (lits & train) == am
+    out["single"], out["single_vec"], out["single_len"] = idx[ok], lits[ok], lens[ok]
     for name, pos, neg, extra in (("pair", am, bm, 1), ("neg", bm, am, 2)):
-        cand = ((lits & pos) == pos) & (lens <= max_length - extra - 1) & ((lits & neg) != neg)
-        ci = np.flatnonzero(cand)
         empty = np.zeros(0, dtype=np.int64)
+        sub, leaf, flip, lens = g.upto(max_length - extra - 1)
+        ci = np.zeros(0, dtype=np.int64)
+        if sub.size:
+            lits = vec[leaf] ^ flip
+            cand = ((lits & pos) == pos) & ((lits & neg) != neg)
+            ci = np.flatnonzero(cand)
+            lits, lens, sub = lits[ci], lens[ci], sub[ci]
         if ci.size == 0:
             out[f"{name}_i"] = out[f"{name}_j"] = empty
             out[f"{name}_vec"] = np.zeros(0, dtype=np.uint64)
             out[f"{name}_len"] = empty
             continue
         # one representative (shortest) per distinct vector keeps the pair step small
-        order = np.lexsort((lens[ci], lits[ci]))
-        ci = ci[order]
-        v = lits[ci]
-        first = np.ones(len(ci), dtype=bool)
+        order = np.lexsort((lens, lits))
+        v = lits[order]
+        first = np.ones(len(v), dtype=bool)
         first[1:] = v[1:] != v[:-1]
-        ci = ci[first]
-        v, ln = lits[ci], lens[ci]
+        keep = order[first]
+        ci, v, ln = sub[keep], lits[keep], lens[keep]
         conj = v[:, None] & v[None, :]
         total = ln[:, None] + ln[None, :] + extra
         good = ((conj & neg) == 0) & (total <= max_length)
@@ -1344,7 +1357,7 @@ def _labels(vec: int, n_a: int, n_b: int, n_test: int) -> str:
 
 def _validity(
     panels: list[list[list[int]]], rule: Rule, n_a: int, n_b: int, *, minimal: bool,
-    length: int | None = None,
+    length: int | None = None, truth: int | None = None,
 ) -> tuple[str | None, Rule | None, dict[str, np.ndarray]]:
     """Reason to reject (or None), one offending rule and the separating rules.
 
@@ -1358,7 +1371,7 @@ def _validity(
     length = rule_length(rule) if length is None else length
     vec = leaf_vectors(panels)
     sep = separating(vec, a_mask=am, b_mask=bm, max_length=length)
-    h = rule_vector(rule, panels)
+    h = rule_vector(rule, panels) if truth is None else truth  # truth: known by construction
     if (h & (am | bm)) != am:
         return "hidden rule does not separate the sets", None, sep
     vv, ll = _all_sep(sep)
@@ -1522,13 +1535,18 @@ class ContrastFamily(Family):
                   for k in range(n_test - n_a_test)]
         order = ctx.rng.permutation(n_test)
         tests = [tests[int(i)] for i in order]
+        # every panel was built and checked to be `want`: the rule's truth vector is known
+        truth = (1 << per) - 1
+        for k, i in enumerate(order):
+            if int(i) < n_a_test:
+                truth |= 1 << (2 * per + k)
         # repair: where another rule also separates the sets, swap in a training panel on which
         # the two disagree, then check again (items still failing are rejected)
         checked = None
         kept: set[tuple[bool, int]] = set()  # panels swapped in by earlier repairs stay
         for _ in range(_REPAIRS + 2 * rule_length(rule) + 1):
             reason, other, sep = _validity([*set_a, *set_b, *tests], rule, per, per,
-                                           minimal=minimal)
+                                           minimal=minimal, truth=truth)
             if reason is None:
                 checked = sep
                 break
@@ -1549,13 +1567,14 @@ class ContrastFamily(Family):
                    "relational": relational, "distractors": distractors,
                    "objects": int(p["objects"])}
         return self._finish(rule, set_a, set_b, tests, params=p, factors=factors, seed=seed,
-                            modes=modes, minimal=minimal, checked=checked)
+                            modes=modes, minimal=minimal, checked=checked, truth=truth)
 
     def _finish(self, rule: Rule, set_a: list, set_b: list, tests: list, *,
                 params: Mapping[str, Any], factors: Mapping[str, Any], seed: int,
                 modes: Sequence[str], minimal: bool, variant_of: str | None = None,
                 variant_operator: str | None = None,
-                checked: dict[str, np.ndarray] | None = None) -> Item:
+                checked: dict[str, np.ndarray] | None = None,
+                truth: int | None = None) -> Item:
         panels = [*set_a, *set_b, *tests]
         sep = checked
         if sep is None:
@@ -1564,11 +1583,12 @@ class ContrastFamily(Family):
             if reason:
                 raise Rejected(reason)
         text = format_rule(rule)
-        h = rule_vector(rule, panels)
+        h = rule_vector(rule, panels) if truth is None else truth
         accepted = []
         seen = {text}
         order = np.argsort(sep["single_len"], kind="stable")
-        full_equal = sep["single_vec"][order] == np.uint64(h)
+        mask = np.uint64((1 << len(panels)) - 1)
+        full_equal = (sep["single_vec"][order] & mask) == np.uint64(h)
         for k in sep["single"][order][full_equal]:
             alt = format_rule(_canon(_lit_rule(k)))
             if alt not in seen:
