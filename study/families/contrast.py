@@ -659,12 +659,15 @@ def grammar() -> Grammar:
     return Grammar()
 
 
+_PAD = (-1,) * 8
+
+
 def _panel_array(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
-    arr = np.full((len(panels), MAX_OBJECTS, 8), -1, dtype=np.int64)
-    for p, objs in enumerate(panels):
-        if objs:
-            arr[p, : len(objs)] = objs
-    return arr
+    rows: list[Sequence[int]] = []
+    for objs in panels:
+        rows.extend(objs)
+        rows.extend([_PAD] * (MAX_OBJECTS - len(objs)))
+    return np.array(rows, dtype=np.int64).reshape(len(panels), MAX_OBJECTS, 8)
 
 
 _WEIGHTS = 2.0 ** np.arange(53)
@@ -872,8 +875,12 @@ class _Ctx:
     def new_values(self) -> list[int]:
         """Random values of the five object attributes (drawn in blocks for speed)."""
         if not self._pool:
-            cols = [np.asarray(al)[self._np.integers(0, len(al), 128)] for al in self.allowed[:5]]
-            self._pool = np.stack(cols, axis=1).tolist()
+            tab = np.zeros((5, 4), dtype=np.int64)
+            sizes = np.array([len(al) for al in self.allowed[:5]])
+            for a, al in enumerate(self.allowed[:5]):
+                tab[a, : len(al)] = al
+            pick = (self._np.random((128, 5)) * sizes).astype(np.int64)
+            self._pool = tab[np.arange(5), pick].tolist()
         return self._pool.pop()
 
     def pick(self, seq: Sequence[Any]) -> Any:
@@ -1199,7 +1206,10 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
         return
     if len(objs) < 2:
         _add(objs, ctx)
-    i, j = (int(v) for v in ctx.rng.choice(len(objs), 2, replace=False))
+    n = len(objs)
+    i = int(ctx.rnd() * n)
+    j = int(ctx.rnd() * (n - 1))
+    j += j >= i
     if a is not None:
         _set_atom(objs, i, a, ctx)
     if b is not None:
