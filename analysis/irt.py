@@ -160,7 +160,11 @@ def _as_matrix(data: Any, *, kind: str | None = None, name: str = "data") -> pd.
     if isinstance(data, pd.DataFrame):
         if {"respondent", "item", "correct"} <= set(data.columns):
             return response_matrix(data, kind=kind)
-        frame = data.copy()
+        try:
+            arr = data.to_numpy(dtype=np.float64, na_value=np.nan)
+        except (TypeError, ValueError) as err:
+            raise fail(name, "non-numeric values", "0/1, True/False or NaN") from err
+        frame = pd.DataFrame(arr, index=data.index, columns=data.columns, copy=False)
     else:
         arr = np.asarray(data)
         if arr.ndim != 2:
@@ -210,7 +214,7 @@ def _full(Mk: np.ndarray) -> bool:
 # ---------------------------------------------------------------------------------- the result
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class IRTResult:
     """A fitted item-response model (returned by :func:`fit_irt`).
 
@@ -893,7 +897,7 @@ def simulate_responses(
 # ------------------------------------------------------------------------ machines on the scale
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class HumanScaleResult:
     """Machines scored on a scale calibrated on people (see :func:`score_on_human_scale`).
 
@@ -1011,6 +1015,14 @@ def score_on_human_scale(
     machine = machine.reindex(columns=cal.item_names)
     X, Mk = _split(machine.to_numpy(dtype=np.float64))
     keep = Mk.sum(1) > 0
+    if not keep.all():
+        unscored = [str(r) for r in machine.index[~keep]]
+        warnings.warn(
+            f"{len(unscored)} machine respondent(s) answered no calibrated item and are not "
+            f"scored: {', '.join(unscored[:10])}",
+            DegenerateWarning,
+            stacklevel=2,
+        )
     X, Mk = X[keep], Mk[keep]
     ids = [str(r) for r in machine.index[keep]]
     if "solver" in trials.columns:

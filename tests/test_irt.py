@@ -510,9 +510,10 @@ def test_machines_on_the_human_scale():
             _trials_from_matrix(odd, ["odd-s1", "odd-s2", "odd-s3"], "machine", items),
         ]
     )
-    extra = pd.DataFrame({"respondent": ["odd-s1"], "kind": ["machine"], "item": ["new"],
-                          "correct": [True]})
-    out = score_on_human_scale(pd.concat([humans, machines, extra]), model="2pl")
+    extra = pd.DataFrame({"respondent": ["odd-s1", "lost-s1"], "kind": ["machine"] * 2,
+                          "item": ["new", "new"], "correct": [True, False]})
+    with pytest.warns(DegenerateWarning, match="answered no calibrated item.*lost-s1"):
+        out = score_on_human_scale(pd.concat([humans, machines, extra]), model="2pl")
     assert out.skipped_items == ("new",)
     ab = out.abilities
     assert set(ABILITY_COLUMNS) <= set(ab.columns)
