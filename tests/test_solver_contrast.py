@@ -95,17 +95,24 @@ def test_deterministic_and_reads_only_the_view(default_items):
     assert a1 == a2
 
 
-def test_one_mislabelled_panel_is_tolerated(default_items):
-    # move one set-A panel into set B: no rule is consistent any more, so the exact learner
-    # falls back to a noisy likelihood and the noisy learner uses its own
-    hits = {0.0: 0, 0.05: 0}
-    for it in default_items[:12]:
-        view = render(it, "structured", "select")
-        view["sets"]["B"] = view["sets"]["B"] + [view["sets"]["A"][0]]
-        for noise in hits:
+def test_noise(default_items):
+    # one set-A panel copied into set B: no rule is consistent any more, so the exact learner
+    # falls back to a noisy likelihood and the noisy learner uses its own; both stay far above
+    # guessing (1/16 for four test panels)
+    its = default_items[:16]
+    for noise in (0.0, 0.05):
+        hits = 0
+        for it in its:
+            view = render(it, "structured", "select")
+            view["sets"]["B"] = view["sets"]["B"] + [view["sets"]["A"][0]]
             ans = make_builtin("contrast-ref", noise=noise).solve(view, "select")
-            hits[noise] += ans.answer == it.answer["labels"]
-    assert min(hits.values()) >= 7
+            hits += ans.answer == it.answer["labels"]
+            assert all(0.0 <= p <= 1.0 for p in ans.raw["p_a"])
+        assert hits / len(its) >= 0.25
+    # on clean sets a large noise lets short, slightly wrong rules outweigh the hidden one
+    exact, _ = run(make_builtin("contrast-ref"), its, "select")
+    noisy, _ = run(make_builtin("contrast-ref", noise=0.2), its, "select")
+    assert noisy < exact
 
 
 @pytest.mark.parametrize(
