@@ -234,6 +234,9 @@ class Driver:
     def finish(self, timeout: float = 30.0) -> tuple[int, str]:
         try:
             _, err = self.proc.communicate(timeout=timeout)
+        except subprocess.TimeoutExpired:
+            self.kill()
+            raise
         finally:
             self.x.close()
         return self.proc.returncode, err
@@ -241,6 +244,8 @@ class Driver:
     def kill(self) -> None:
         self.proc.send_signal(signal.SIGKILL)
         self.proc.wait()
+        for pipe in (self.proc.stdout, self.proc.stderr):
+            pipe.close()
         self.x.close()
 
 

@@ -151,7 +151,7 @@ class _Session:
 
         self.ctx = Ctx(win=self.win, visual=visual, size=self.size, background=opts.background)
         rate = self.win.getActualFrameRate(
-            nIdentical=10, nMaxFrames=120, nWarmUpFrames=10, threshold=1
+            nIdentical=10, nMaxFrames=60, nWarmUpFrames=5, threshold=1
         )
         self.refresh_hz = float(rate) if rate else None
         self.period = 1.0 / self.refresh_hz if self.refresh_hz else None
