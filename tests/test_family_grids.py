@@ -412,3 +412,35 @@ def test_bank_round_trip(tmp_path):
     assert back.hash == bank.hash
     for it in back:
         assert FAM.check(it) == []
+
+
+@given(st.integers(0, 10_000))
+@SETTINGS
+def test_choice_credit_matches_the_bank_audit(seed):
+    from twofold.study.audit import choice_shortcuts
+
+    rng = np.random.default_rng(seed)
+    grids = [
+        rng.integers(0, 3, size=(int(rng.integers(1, 4)), int(rng.integers(1, 4)))).astype(
+            np.int8
+        )
+        for _ in range(4)
+    ]
+    wins = choice_shortcuts([g.tolist() for g in grids])
+    expected = sum(0.5 / len(w) for w in wins.values() if 0 in w)
+    assert G._credit(grids) == pytest.approx(expected)
+
+
+def test_select_choices_do_not_give_the_answer_away():
+    from twofold.study.audit import audit_bank
+
+    spec = parse_spec(
+        {
+            "seed": 9,
+            "families": {"grids": {"n": 150, "modes": ["select"], "params": {"depth": [1, 2]}}},
+        }
+    )
+    report = audit_bank(generate_bank(spec), picture_sample=0)
+    (row,) = report["shortcuts"]
+    assert not row["flagged"]
+    assert row["majority_accuracy"] < 0.32 and row["centroid_accuracy"] < 0.32

@@ -132,8 +132,10 @@ def _fill(g: Grid, c: int) -> Grid:
     lab, n = ndimage.label(g == 0, structure=_CROSS)
     if n == 0:
         return g
-    border = np.unique(np.concatenate([lab[0], lab[-1], lab[:, 0], lab[:, -1]]))
-    enclosed = (lab > 0) & ~np.isin(lab, border)
+    table = np.ones(n + 1, bool)
+    table[0] = False
+    table[lab[0]] = table[lab[-1]] = table[lab[:, 0]] = table[lab[:, -1]] = False
+    enclosed = table[lab]
     return np.where(enclosed, np.int8(c), g)
 
 
@@ -143,8 +145,8 @@ def _keep(g: Grid, largest: bool) -> Grid | None:
         return None
     sizes = np.bincount(lab.ravel())[1:]
     target = sizes.max() if largest else sizes.min()
-    keep = np.flatnonzero(sizes == target) + 1
-    return np.where(np.isin(lab, keep), g, np.int8(0))
+    table = np.concatenate([[False], sizes == target])
+    return np.where(table[lab], g, np.int8(0))
 
 
 def _gravity(g: Grid, d: str) -> Grid:
@@ -168,12 +170,15 @@ def _gravity(g: Grid, d: str) -> Grid:
         for i in order:
             cs = cells[i]
             occ.difference_update(cs)
+            own = set(cs)
+            # only the cells on the leading side can bump into something
+            front = [(r, c) for r, c in cs if (r + dy, c + dx) not in own]
             k = 0
             while all(
                 0 <= r + (k + 1) * dy < h
                 and 0 <= c + (k + 1) * dx < w
                 and (r + (k + 1) * dy, c + (k + 1) * dx) not in occ
-                for r, c in cs
+                for r, c in front
             ):
                 k += 1
             if k:
@@ -1227,36 +1232,86 @@ def _near_miss_choices(
     n: int,
     rng: np.random.Generator,
 ) -> list[list[list[int]]]:
+    """The answer and ``n - 1`` outputs of related programs, in random order.
+
+    Related programs: proper prefixes (the first is the test input itself), one or two steps
+    swapped for a sibling operation, the steps reversed. When these run out, recoloured cells of
+    pool members pad the pool. Near misses cluster round the answer, so the answer would stand out
+    as the choice most like the others; the distractor set is drawn (up to 24 tries) so that the
+    answer is the choices-only favourite (by majority vote per cell and by closeness to the
+    centroid, as the bank audit scores them) with probability ``1 / n`` only.
+    """
     related: list[list[Any]] = [list(program[:j]) for j in range(len(program))]
-    for j, op in enumerate(program):
-        for sib in _siblings(op):
+    sibs = [_siblings(op) for op in program]
+    for j in range(len(program)):
+        for sib in sibs[j]:
             related.append([*program[:j], sib, *program[j + 1 :]])
+    for i, j in itertools.combinations(range(len(program)), 2):
+        for si, sj in itertools.product(sibs[i][:2], sibs[j][:2]):
+            prog = list(program)
+            prog[i], prog[j] = si, sj
+            related.append(prog)
     if len(program) > 1:
         related.append(list(program[::-1]))
-    seen = {canonical_json(_lst(answer))}
-    pool: list[list[list[int]]] = []
+    seen = {_key([answer])}
+    pool: list[Grid] = []
     for prog in related:
         out = apply_program(test, prog)
-        if out is None:
+        if out is None or max(out.shape) > MAX_SIDE:
             continue
-        lst = _lst(out)
-        key = canonical_json(lst)
+        key = _key([out])
         if key not in seen:
             seen.add(key)
-            pool.append(lst)
-    picked = [pool[i] for i in rng.permutation(len(pool))[: n - 1]]
+            pool.append(out)
     tries = 0
-    while len(picked) < n - 1:
+    while len(pool) < max(n + 1, 2 * (n - 1)):
         tries += 1
-        lst = _lst(_perturb(answer, rng, cells=1 + tries % 3))
-        key = canonical_json(lst)
+        base = pool[int(rng.integers(len(pool)))] if pool and rng.random() < 0.7 else answer
+        out = _perturb(base, rng, cells=1 + tries % 3)
+        key = _key([out])
         if key not in seen:
             seen.add(key)
-            picked.append(lst)
-        if tries > 200:  # pragma: no cover - a perturbation almost always differs
+            pool.append(out)
+        if tries > 500:
             raise Rejected("not enough distractors")
-    choices = [*picked, _lst(answer)]
+    # the audit credits a choices-only solver 1/t when the answer is among t tied favourites;
+    # pick the favourite-most or the least-favoured set with the odds that make the expected
+    # credit exactly 1/n for this item
+    sets = []
+    for _ in range(24):
+        cand = [pool[i] for i in rng.choice(len(pool), size=n - 1, replace=False)]
+        sets.append((_credit([answer, *cand]), cand))
+    lo = min(sets, key=lambda t: t[0])
+    hi = max(sets, key=lambda t: t[0])
+    p_hi = 0.0 if hi[0] <= lo[0] else min(max((1.0 / n - lo[0]) / (hi[0] - lo[0]), 0.0), 1.0)
+    best = hi[1] if rng.random() < p_hi else lo[1]
+    choices = [_lst(g) for g in [*best, answer]]  # type: ignore[misc]
     return [choices[i] for i in rng.permutation(len(choices))]
+
+
+def _credit(grids: Sequence[Grid]) -> float:
+    """Mean credit of choice 0 under the two choices-only shortcuts of the bank audit.
+
+    Majority vote: per cell position, the choices holding the most common value score a point.
+    Centroid: per cell position, each choice scores the number of choices sharing its value.
+    A position outside a smaller grid holds the value "absent". A shortcut whose ``t`` tied
+    favourites include choice 0 credits ``1/t``.
+    """
+    h = max(g.shape[0] for g in grids)
+    w = max(g.shape[1] for g in grids)
+    stack = np.full((len(grids), h, w), -1, np.int8)
+    for k, g in enumerate(grids):
+        stack[k, : g.shape[0], : g.shape[1]] = g
+    flat = stack.reshape(len(grids), -1)
+    counts = (flat[:, None, :] == flat[None, :, :]).sum(axis=1)
+    majority = (counts == counts.max(axis=0)).sum(axis=1)
+    centroid = counts.sum(axis=1)
+    credit = 0.0
+    for score in (majority, centroid):
+        top = score == score.max()
+        if top[0]:
+            credit += 0.5 / top.sum()
+    return credit
 
 
 def _siblings(op: Sequence[Any]) -> list[list[Any]]:
