@@ -25,7 +25,19 @@ from twofold.study.studyfile import Study, load_study
 
 from . import figures as F
 
-__all__ = ["METHODS", "build_report"]
+__all__ = ["METHODS", "SECTIONS", "build_report"]
+
+#: the report's analysis sections, in order (each calls ``progress`` once when done)
+SECTIONS = (
+    "audit",
+    "difficulty",
+    "irt",
+    "errors",
+    "consistency",
+    "robustness",
+    "factors",
+    "effort",
+)
 
 #: Published methods the analysis uses, cited in the report's methods section.
 METHODS = (
@@ -461,6 +473,9 @@ def build_report(
             }
         )
 
+    for sec in sections:
+        sec.setdefault("synthetic", False)
+        sec.setdefault("note", "")
     facts = [
         ("bank hash", bank.hash),
         ("families", ", ".join(f"{r['family']} ({r['items']} items)" for r in fam_rows)),

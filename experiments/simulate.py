@@ -236,12 +236,12 @@ def _trial(
     a, b = ab
     p = 1.0 / (1.0 + np.exp(-a * (theta - b)))
     if rng.random() < p:
-        response: Any = item.answer_choice if mode == "select" else item.answer
+        response: Any = fam.correct_response(item, mode)
     else:
         try:
             response, _ = fam.sample_error(item, mode, rng)
         except Rejected:
-            response = item.answer_choice if mode == "select" else item.answer
+            response = fam.correct_response(item, mode)
     score = fam.score(item, response, mode)
     base = _BASE_RT_MS.get(item.family, 10000.0)
     rt = float(base * np.exp(0.3 * b - 0.15 * theta + rng.normal(0, settings.rt_sd)))

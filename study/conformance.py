@@ -91,10 +91,7 @@ def family_problems(family: Family, *, n: int = 10, seed: int = 0) -> list[str]:
 
 def _check_scoring(family: Family, item: Item, mode: str, where: str, seed: int) -> list[str]:
     out = []
-    if mode == "select" and item.answer_choice is not None:
-        correct_response: Any = item.answer_choice
-    else:
-        correct_response = item.answer
+    correct_response = family.correct_response(item, mode)
     if not family.score(item, correct_response, mode).correct:
         out.append(f"{where}: the answer does not score correct")
     if mode == "generate":

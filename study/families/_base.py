@@ -241,6 +241,13 @@ class Family(abc.ABC):
             return response
         return response
 
+    def correct_response(self, item: Item, mode: str) -> Any:
+        """The response that scores correct: the answer's choice number in select mode (when the
+        family selects among ``choices``), otherwise the answer itself."""
+        if mode == "select" and item.choices is not None and item.answer_choice is not None:
+            return item.answer_choice
+        return item.answer
+
     def score(self, item: Item, response: Any, mode: str) -> Score:
         """Score a response: correct, or wrong with an error type."""
         resp = self.normalize(item, response, mode)
