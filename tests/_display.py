@@ -429,3 +429,43 @@ def play(
             return expected
         else:  # instructions, feedback, break
             d.key("space")
+
+
+MATRICES_ONLY = """
+[bank.spec]
+seed = 4
+[bank.spec.families.matrices]
+n = {n}
+modes = ["select"]
+
+[[blocks]]
+name = "figures"
+families = ["matrices"]
+mode = "select"
+instructions = "instructions.txt"
+
+[forms]
+order = "fixed"
+break_between_blocks = false
+"""
+
+
+def timed_keys(d: Driver, bank: Any, n: int, *, seed: int = 0) -> list[tuple[int, float]]:
+    """Answer ``n`` select trials by key at random delays after each onset.
+
+    Returns ``(trial, expected_rt_ms)`` where the expected RT is the injection time minus the
+    onset, both on the system real-time clock (see the timing test's docstring).
+    """
+    import random
+
+    rng = random.Random(seed)
+    out = []
+    while len(out) < n:
+        s = d.wait(None)
+        if s["screen"] != "trial":
+            d.key("y" if s["screen"] == "consent" else "space")
+            continue
+        time.sleep(rng.uniform(0.03, 0.12))
+        t_inject = d.key(str(bank[s["item"]].answer_choice))
+        out.append((s["trial"], (t_inject - s["onset"]) * 1000.0))
+    return out
