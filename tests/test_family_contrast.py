@@ -10,7 +10,8 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from twofold.study import generate_bank, load_bank, parse_spec, write_bank
-from twofold.study.exceptions import ResponseError, SpecError
+from twofold.study.audit import audit_bank
+from twofold.study.exceptions import ItemError, ResponseError, SpecError
 from twofold.study.families import Rejected, get_family
 from twofold.study.families.contrast import (
     ATOM_NAME,
@@ -206,8 +207,8 @@ def test_generation_is_deterministic_valid_and_answer_follows_rule(params, seed,
     assert item.factors["rule_length"] == rule_length(rule) == params["length"]
     for k, pnl in enumerate(panels):
         assert 1 <= len(pnl) <= params["objects"], k
-    if "select" in modes:
-        assert item.choices == ("A", "B")
+    assert item.choices is None and item.answer_choice is None
+    assert item.distractor_scheme == ("per-panel" if "select" in modes else None)
 
 
 @FAST
@@ -404,6 +405,15 @@ def test_renderers_are_deterministic_and_answer_free():
 
 
 # -- banks --------------------------------------------------------------------------------------
+def test_schema_allows_no_choices_only_for_per_panel_classification():
+    rec = make(seed=3, modes=("select",)).to_record()
+    validate_record(rec)
+    with pytest.raises(ItemError, match="choices"):
+        validate_record({**rec, "distractor_scheme": "near-miss"})
+    with pytest.raises(ItemError, match="choices"):
+        validate_record({**rec, "choices": ["A", "B"]})
+
+
 def test_bank_round_trip(tmp_path):
     spec = parse_spec({"seed": 2, "families": {"contrast": {
         "n": 6, "modes": ["select", "generate"], "params": {"length": [2, 3]},
@@ -415,3 +425,5 @@ def test_bank_round_trip(tmp_path):
     assert sum(it.variant_of is None for it in again) == 6
     for it in again:
         assert FAM.check(it) == []
+    report = audit_bank(again)
+    assert report["uniqueness"] == [] and report["duplicates"]["same_content"] == []

@@ -44,8 +44,8 @@ as a rule (a participant's rule in words) is *not automatically scorable*: :meth
 :class:`~twofold.study.exceptions.ResponseError` (field ``response``), so runners log the trial
 as ``invalid`` with the verbatim text kept for hand coding, rather than counting it as wrong.
 
-Items offering select mode carry ``choices = ["A", "B"]``: the two labels every test panel is
-classified with (distractor scheme ``per-panel``). The answer is the mapping
+Select mode classifies every test panel, so items carry no whole-item ``choices`` (``None``); their
+distractor scheme ``per-panel`` tells the item schema so. The answer is the mapping
 ``{"rule": <canonical notation>, "labels": <one letter per test panel>}``; :meth:`normalize` also
 reads such a mapping for the part belonging to the mode.
 
@@ -1458,7 +1458,7 @@ class ContrastFamily(Family):
     )
     factors = ("rule_length", "attribute", "relational", "distractors", "objects")
     distractor_schemes = {
-        "per-panel": "each test panel is classified A or B; the choices are the two set labels",
+        "per-panel": "each test panel is classified A or B; no whole-item choices (null)",
     }
     variant_operators = {
         "swap-sets": "exchange sets A and B; the rule becomes its negation (validity is "
@@ -1617,7 +1617,7 @@ class ContrastFamily(Family):
             prefix=self.prefix, family=self.name, family_version=self.version,
             params=dict(params), factors=dict(factors), modes=list(modes), stimulus=stimulus,
             answer={"rule": text, "labels": labels}, accepted=accepted,
-            choices=["A", "B"] if select else None,
+            choices=None,
             distractor_scheme="per-panel" if select else None,
             variant_of=variant_of, variant_operator=variant_operator, seed=seed,
         )
@@ -1927,8 +1927,6 @@ class ContrastFamily(Family):
             "answer_format": (f"{len(st['test'])} letters A or B, one per test panel in order"
                               if mode == "select" else "a rule in the contrast notation"),
         }
-        if mode == "select":
-            view["choices"] = ["A", "B"]
         return view
 
     def _panel_words(self, objs: Sequence[Any]) -> str:
