@@ -583,7 +583,32 @@ def _lst(g: Grid) -> list[list[int]]:
 
 # -- the family ---------------------------------------------------------------------------------
 class GridsFamily(Family):
-    """Few-shot colour-grid transformations from a small grammar of grid operations."""
+    """Few-shot colour-grid transformations from a small grammar of grid operations.
+
+    Parameters (generation spec)
+    ----------------------------
+    depth : int, 1-3, default 2
+        Operations composed.
+    kinds : list of {"geometric", "colour", "object", "size"}, default all
+        Kinds the operations are drawn from.
+    size : int, 3-15, default 8
+        Largest side of an input grid; sides are drawn from ``size - 3`` to ``size`` (smaller
+        when a scale or tile step would make the output wider than 30).
+    objects : int, 1-8, default 3
+        Objects per input grid vary from ``objects - 1`` to ``objects + 1``.
+    demos : int, 2-4, default 3
+        Demonstration pairs.
+    resize : {"any", "same", "different"}, default "any"
+        Whether outputs must keep or must change the input size.
+
+    Notes
+    -----
+    Factors stored on every item: ``depth``, ``kinds`` (the kinds used, joined by ``+``),
+    ``size`` (largest side of the test input), ``n_objects`` (objects in the test input),
+    ``n_demos`` and ``size_change`` (some demonstration output differs in shape from its input).
+    The stimulus holds ``train`` (list of ``{"input", "output"}``), ``test`` and ``program``
+    (never shown). In select mode the choices come from the ``near-miss`` scheme.
+    """
 
     name = "grids"
     prefix = "grd"
@@ -611,9 +636,10 @@ class GridsFamily(Family):
     )
     factors = ("depth", "kinds", "size", "n_objects", "n_demos", "size_change")
     distractor_schemes = {
-        "near-miss": "outputs of related programs: a prefix of the composition, one operation "
-        "swapped for a sibling, the operations reordered, or the test input itself; padded with "
-        "a few recoloured cells of the answer when these run out"
+        "near-miss": "outputs of related programs: a prefix of the composition (the first is "
+        "the test input itself), one or two operations swapped for siblings, the operations "
+        "reversed; padded with a few recoloured cells when these run out; the set is drawn so "
+        "that the choices alone favour the answer only at chance"
     }
     variant_operators = {
         "permute_colours": "relabel the colours 1-9 by one permutation across the whole item",
@@ -705,14 +731,14 @@ class GridsFamily(Family):
                 raise Rejected("program not applicable")
             outs.append(y)
         demo_outputs, answer = outs[:-1], outs[-1]
-        problem = _validity(program, demo_inputs, demo_outputs, test_input, answer)
-        if problem:
-            raise Rejected(problem)
         change = any(x.shape != y.shape for x, y in zip(demo_inputs, demo_outputs, strict=True))
         if params["resize"] == "same" and (change or answer.shape != test_input.shape):
             raise Rejected("size changes")
         if params["resize"] == "different" and not change:
             raise Rejected("size kept")
+        problem = _validity(program, demo_inputs, demo_outputs, test_input, answer)
+        if problem:
+            raise Rejected(problem)
         stimulus = {
             "train": [
                 {"input": _lst(x), "output": _lst(y)}
@@ -947,7 +973,7 @@ class GridsFamily(Family):
 
 
 # -- generation helpers ---------------------------------------------------------------------------
-def _sample_op(kind: str, rng: np.random.Generator, palette_hint: list[int]) -> Op:
+def _sample_op(kind: str, rng: np.random.Generator) -> Op:
     def colour() -> int:
         return int(rng.integers(1, 10))
 
@@ -995,7 +1021,7 @@ def _sample_program(p: Mapping[str, Any], rng: np.random.Generator) -> list[Op]:
     for _ in range(50):
         prog: list[Op] = []
         for _j in range(p["depth"]):
-            prog.append(_sample_op(kinds[int(rng.integers(len(kinds)))], rng, []))
+            prog.append(_sample_op(kinds[int(rng.integers(len(kinds)))], rng))
         fams = [_FAMILY_OF.get(op[0], op[0]) for op in prog]
         if any(op[0] == "count_row" for op in prog[:-1]):
             continue
