@@ -86,7 +86,7 @@ def test_crash_hang_noise_and_errors_are_per_trial(tmp_path):
     counter = tmp_path / "count.txt"
     script = child(tmp_path, FAULTY)
     s = parse_solver_entry(
-        {"spec": f"command:{PY} {script} {counter}", "name": "faulty", "timeout": 1.0}
+        {"spec": f"command:{PY} {script} {counter}", "name": "faulty", "timeout": 2.0}
     )
     run_solvers(study, [s])
     df = read_trials(study.logs_dir / "machine" / "faulty-s0.csv").sort_values("effort")

@@ -73,15 +73,17 @@ class RateLimiter:
         self._next = 0.0
         self._lock = threading.Lock()
 
-    def wait(self) -> None:
+    def wait(self) -> float:
+        """Block until this caller's slot; return the slot (``time.monotonic()`` seconds)."""
+        now = time.monotonic()
         if not self.interval:
-            return
+            return now
         with self._lock:
-            now = time.monotonic()
             slot = max(now, self._next)
             self._next = slot + self.interval
         if slot > now:
             time.sleep(slot - now)
+        return slot
 
 
 class ChatSolver:
