@@ -207,6 +207,8 @@ def test_generation_is_deterministic_valid_and_answer_follows_rule(params, seed,
     assert item.factors["rule_length"] == rule_length(rule) == params["length"]
     for k, pnl in enumerate(panels):
         assert 1 <= len(pnl) <= params["objects"], k
+        hosts = [o[7] for o in pnl]
+        assert all(h < j for j, h in enumerate(hosts) if h >= 0)  # containers come first
     assert item.choices is None and item.answer_choice is None
     assert item.distractor_scheme == ("per-panel" if "select" in modes else None)
 

@@ -1585,6 +1585,7 @@ class ContrastFamily(Family):
                 variant_operator: str | None = None,
                 checked: dict[str, np.ndarray] | None = None,
                 truth: int | None = None) -> Item:
+        set_a, set_b, tests = ([_hosts_first(p) for p in group] for group in (set_a, set_b, tests))
         panels = [*set_a, *set_b, *tests]
         sep = checked
         if sep is None:
@@ -1927,6 +1928,8 @@ class ContrastFamily(Family):
             "answer_format": (f"{len(st['test'])} letters A or B, one per test panel in order"
                               if mode == "select" else "a rule in the contrast notation"),
         }
+        if mode == "select":
+            view["choices"] = ["A", "B"]  # the labels offered for every test panel
         return view
 
     def _panel_words(self, objs: Sequence[Any]) -> str:
@@ -2068,6 +2071,23 @@ class ContrastFamily(Family):
         else:
             ax.add_patch(patches.Polygon(xy, closed=True, facecolor=fill, edgecolor="#111111",
                                          lw=1.1))
+
+
+def _hosts_first(objs: list[list[int]]) -> list[list[int]]:
+    """The panel with un-nested objects listed before nested ones (so drawers meet every
+    container before what it holds); container indices are renumbered."""
+    if all(o[INSIDE] < 0 for o in objs):
+        return objs
+    order = [k for k, o in enumerate(objs) if o[INSIDE] < 0]
+    order += [k for k, o in enumerate(objs) if o[INSIDE] >= 0]
+    new = {old: k for k, old in enumerate(order)}
+    out = []
+    for k in order:
+        o = list(objs[k])
+        if o[INSIDE] >= 0:
+            o[INSIDE] = new[o[INSIDE]]
+        out.append(o)
+    return out
 
 
 def _check_length(rule: Rule, operator: str | None) -> int:
