@@ -37,7 +37,7 @@ from twofold.study._check import check_choice, fail
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError
 from twofold.study.families import get_family
-from twofold.study.logs import read_sidecar
+from twofold.study.logs import read_sidecar, table_schema, write_json_atomic
 from twofold.study.render import MEDIA, render, render_picture
 
 from ._core import FreeText, coerce_answer
@@ -295,8 +295,6 @@ def import_answers(
             )
         rebuild_session(csv_path, rows)
         units = sorted({r["effort_unit"] for r in rows if r.get("effort_unit")})
-        from twofold.study.logs import write_json_atomic
-
         write_json_atomic(
             side_path,
             {
@@ -321,11 +319,8 @@ def import_answers(
                 "columns": "trials.schema.json",
             },
         )
-        from twofold.study.logs import table_schema
-        from twofold.study.logs import write_json_atomic as _w
-
         if not (folder / "trials.schema.json").exists():
-            _w(folder / "trials.schema.json", table_schema())
+            write_json_atomic(folder / "trials.schema.json", table_schema())
         summaries.append(
             {
                 "session": session,
