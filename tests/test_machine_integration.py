@@ -5,7 +5,13 @@ from __future__ import annotations
 import json
 
 import pytest
-from twofold.experiments.machine import export_items, import_answers, run_solvers, study_solvers
+from twofold.experiments.machine import (
+    export_items,
+    import_answers,
+    parse_solver_entry,
+    run_solvers,
+    study_solvers,
+)
 from twofold.experiments.solvers import builtin_solvers, make_builtin
 from twofold.study import known_families, load_study, read_trials
 
@@ -98,3 +104,31 @@ def test_structured_export_and_import_round_trip(study, tmp_path):
         .astype(str)
         .equals(live[cols].sort_values(key).reset_index(drop=True).astype(str))
     )
+
+
+def test_digit_string_answers_keep_their_quotes_in_the_log(tmp_path):
+    import csv
+
+    (tmp_path / "study.toml").write_text(
+        """[study]
+name = "digits"
+seed = 1
+[bank]
+path = "bank"
+[bank.spec]
+seed = 4
+[bank.spec.families.strings]
+n = 3
+[bank.spec.families.strings.params]
+alphabet = "digits"
+""",
+        "utf-8",
+    )
+    study = load_study(tmp_path)
+    ref = parse_solver_entry({"spec": "strings-ref"})
+    run_solvers(study, [ref])
+    with open(study.logs_dir / "machine" / "strings-ref-s0.csv", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    assert len(rows) == 3 and all(r["correct"] == "true" for r in rows)
+    for r in rows:  # a JSON string, not a number: "2345" and never 2345
+        assert r["response"].startswith('"') and isinstance(json.loads(r["response"]), str)
