@@ -125,8 +125,8 @@ def _cell(col: Column, value: Any, *, where: str) -> str:
                 col.name, value, f"a {col.type} value (required)", where=where, error=LogError
             )
         return ""
-    if col.name == "response":
-        return value if isinstance(value, str) and _is_json(value) else canonical_json(value)
+    if col.name == "response":  # always the value itself, serialised here (never pre-encoded)
+        return canonical_json(value)
     if col.type == "boolean":
         if not isinstance(value, bool):
             raise fail(col.name, value, "true or false", where=where, error=LogError)
@@ -142,14 +142,6 @@ def _cell(col: Column, value: Any, *, where: str) -> str:
     if col.enum and value not in col.enum:
         raise fail(col.name, value, "one of " + ", ".join(col.enum), where=where, error=LogError)
     return str(value)
-
-
-def _is_json(text: str) -> bool:
-    try:
-        json.loads(text)
-    except ValueError:
-        return False
-    return True
 
 
 class TrialLogWriter:

@@ -35,7 +35,7 @@ from typing import Any, Protocol
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError, ResponseError, SolverError
 from twofold.study.families import get_family
-from twofold.study.item import Item, canonical_json
+from twofold.study.item import Item
 from twofold.study.logs import TrialLogWriter, read_sidecar
 from twofold.study.render import render
 
@@ -198,9 +198,7 @@ def run_trial(
         row.update(status="invalid", correct=False, detail=_clip(detail))
         return row
     row.update(
-        # serialised here: the log writer would take a string that parses as JSON ("123")
-        # for JSON already and lose its quotes
-        response=canonical_json(response),
+        response=response,  # the log writer serialises it
         correct=bool(score.correct),
         error_type=score.error_type,
         detail=_clip(ans.explanation),
