@@ -1011,9 +1011,8 @@ def _sample_op(kind: str, rng: np.random.Generator) -> Op:
 _FAMILY_OF = {n: "dihedral" for n in _DIHEDRAL} | {
     "keep_largest": "keep",
     "keep_smallest": "keep",
-    "scale": "grow",
-    "tile": "grow",
 }
+_OPPOSITE = {"down": "up", "up": "down", "left": "right", "right": "left"}
 
 
 def _sample_program(p: Mapping[str, Any], rng: np.random.Generator) -> list[Op]:
@@ -1025,8 +1024,12 @@ def _sample_program(p: Mapping[str, Any], rng: np.random.Generator) -> list[Op]:
         fams = [_FAMILY_OF.get(op[0], op[0]) for op in prog]
         if any(op[0] == "count_row" for op in prog[:-1]):
             continue
-        repeated = {f for f in fams if fams.count(f) > 1} - {"recolour", "swap"}
+        repeated = {f for f in fams if fams.count(f) > 1} - {"recolour", "swap", "translate"}
         if repeated:
+            continue
+        # two shifts make a diagonal one; the same or opposite shifts would be reducible
+        shifts = [op[1] for op in prog if op[0] == "translate"]
+        if len(shifts) > 2 or (len(shifts) == 2 and shifts[1] in (shifts[0], _OPPOSITE[shifts[0]])):
             continue
         sizey = any(op[0] in ("crop", "scale", "tile", "count_row") for op in prog)
         if p["resize"] == "same" and sizey:
