@@ -1,7 +1,9 @@
 """Tidy data: every session log of a study and its bank in one trials table.
 
 The trials table has one row per trial and these columns (in order), followed by one
-``factor_<name>`` column per difficulty factor found on the bank's items:
+``factor_<name>`` column per difficulty factor found on the bank's items (in the order the
+items store them; numeric factors as float64, others as text, ``"true"``/``"false"`` for
+booleans; missing for items of families without that factor):
 
 ============== ========= =====================================================================
 column         dtype     meaning
