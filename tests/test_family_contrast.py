@@ -378,6 +378,20 @@ def test_parse_text_generate(wrap):
     assert FAM.parse_text(item, wrap.format(rule), "generate") == rule
 
 
+@pytest.mark.parametrize(
+    ("reply", "rule"),
+    [
+        ("The rule is: every object is dark. In notation: every[dark] & n>=2.",
+         "every[dark] & n>=2"),
+        ("I believe it's `~(some[dome] & n=3)` because of B2.", "~(n=3 & some[dome])"),
+        ("Set A has above[dark,*] too, but the rule is leftof[dark,*].", "leftof[dark,*]"),
+        ("Answer = #[dome]=2", "#[dome]=2"),
+    ],
+)
+def test_parse_text_finds_the_rule_inside_prose(reply, rule):
+    assert FAM.parse_text(make(seed=4), reply, "generate") == rule
+
+
 def test_parse_text_errors():
     item = make(seed=4)
     with pytest.raises(ResponseError):

@@ -1907,11 +1907,9 @@ class ContrastFamily(Family):
         for line in reversed(lines):
             cand = re.sub(r"^(?:final\s+)?(?:rule|answer)\s*[:=]\s*", "", line, flags=re.I)
             cand = cand.strip().strip("\"'*.").strip()
-            for piece in (cand, *re.findall(r"[~(]*[a-z#][\w#\[\]+*,=>&~() :.]*", cand)):
-                try:
-                    return format_rule(parse_rule(piece.strip()))
-                except ResponseError:
-                    continue
+            found = _rule_in(cand)
+            if found is not None:
+                return found
         raise ResponseError(
             f"item {item.id}: no rule in the contrast notation found in reply.", field="response")
 
@@ -2071,6 +2069,32 @@ class ContrastFamily(Family):
         else:
             ax.add_patch(patches.Polygon(xy, closed=True, facecolor=fill, edgecolor="#111111",
                                          lw=1.1))
+
+
+_RULE_START = re.compile(
+    r"(?:~\s*|\(\s*|\bnot\s+)*(?:\b(?:every|some|no|all|none|n|count|above|leftof|bigger|"
+    r"inside)\s*(?:\[|>=|=)|#\s*\[)", re.I)
+
+
+def _rule_in(text: str) -> str | None:
+    """The last, longest rule in the notation inside ``text`` (canonical), or None."""
+    try:
+        return format_rule(parse_rule(text))
+    except ResponseError:
+        pass
+    spans: list[tuple[int, int, str]] = []
+    for m in _RULE_START.finditer(text):
+        rest = text[m.start():]
+        for e in reversed([x.end() for x in re.finditer(r"[\])\d]", rest)]):
+            try:
+                spans.append((m.start(), m.start() + e, format_rule(parse_rule(rest[:e]))))
+                break
+            except ResponseError:
+                continue
+    # keep maximal spans (not inside another), then take the last one
+    outer = [sp for sp in spans if not any(o[0] <= sp[0] and sp[1] <= o[1] and o != sp
+                                          for o in spans)]
+    return outer[-1][2] if outer else None
 
 
 def _hosts_first(objs: list[list[int]]) -> list[list[int]]:
