@@ -78,7 +78,7 @@ class GridsRefSolver:
         pairs, test = _view_parts(view)
         choices = _choices(view) if mode == "select" else []
         stats = SearchResult()
-        found = None
+        found: tuple[Any, np.ndarray, int | None] | None = None
         for prog, out in search(
             pairs,
             test,
@@ -103,12 +103,12 @@ class GridsRefSolver:
                     effort_unit="programs",
                     explanation=f"{why} after {stats.tried} programs; copied the test input",
                 )
-            k = int(np.random.default_rng(self.seed).integers(len(choices))) + 1
+            guess = int(np.random.default_rng(self.seed).integers(len(choices))) + 1
             return Answer(
-                answer=k,
+                answer=guess,
                 effort=float(stats.tried),
                 effort_unit="programs",
-                explanation=f"{why} after {stats.tried} programs; guessed choice {k}",
+                explanation=f"{why} after {stats.tried} programs; guessed choice {guess}",
             )
         prog, out, k = found
         words = describe_program([list(op) for op in prog])

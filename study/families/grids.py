@@ -259,11 +259,12 @@ def apply_op(g: Grid, op: Sequence[Any]) -> Grid | None:
 
 def apply_program(g: Grid, program: Sequence[Sequence[Any]]) -> Grid | None:
     """Apply a composition (first operation first); ``None`` when a step does not apply."""
+    out: Grid | None = g
     for op in program:
-        g = apply_op(g, op)
-        if g is None:
+        out = apply_op(out, op)  # type: ignore[arg-type]
+        if out is None:
             return None
-    return g
+    return out
 
 
 _WORDS = {
@@ -1191,6 +1192,10 @@ def _permute_op(op: list[Any], perm: np.ndarray) -> list[Any]:
 _PROBE = np.arange(1, 13, dtype=np.int8).reshape(3, 4) % 10
 
 
+def _equal(a: Grid, b: Grid) -> bool:
+    return a.shape == b.shape and bool(np.array_equal(a, b))
+
+
 def _conjugate_op(op: list[Any], t: str) -> list[Any]:
     """The operation ``op'`` with ``op'(T(g)) == T(op(g))`` for the dihedral map ``T``."""
     name = op[0]
@@ -1204,11 +1209,11 @@ def _conjugate_op(op: list[Any], t: str) -> list[Any]:
         probe = np.zeros((5, 6), np.int8)
         probe[1:4, 1:5] = _PROBE
         probe[1, 1] = 0
-        want = apply_op(apply_op(probe, op), (t,))  # type: ignore[arg-type]
+        want = apply_program(probe, [op, (t,)])
         src = apply_op(probe, (t,))
         for cand in cands:
             got = apply_op(src, cand)  # type: ignore[arg-type]
-            if got is not None and got.shape == want.shape and np.array_equal(got, want):
+            if got is not None and want is not None and _equal(got, want):
                 return cand
         raise Rejected("no conjugate operation")
     return list(op)
