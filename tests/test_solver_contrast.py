@@ -133,3 +133,57 @@ def test_bad_view_and_mode():
         ref.solve({"sets": {}}, "select")
     with pytest.raises(SolverError, match="mode"):
         ref.solve({}, "choose")
+
+
+def _brute_force_predictive(view, *, max_length, noise, prior):
+    """Posterior predictive by plain enumeration over Python ints (no grouping, no pruning)."""
+    from twofold.study.families.contrast import leaf_vectors, panels_from_stimulus
+
+    panels, n_a, n_b = panels_from_stimulus(view)
+    full = (1 << len(panels)) - 1
+    am, train = (1 << n_a) - 1, (1 << (n_a + n_b)) - 1
+    g = grammar()
+    vec = [int(v) for v in leaf_vectors(panels)]
+    lits = [(v, int(g.lengths[k])) for k, v in enumerate(vec)]
+    lits += [(~v & full, int(g.lengths[k]) + 1) for k, v in enumerate(vec)]
+    rules = [(v, ln) for v, ln in lits if ln <= max_length]
+    short = [(v, ln) for v, ln in lits if ln <= max_length - 2]
+    for a in range(len(short)):
+        for b in range(a + 1, len(short)):
+            (va, la), (vb, lb) = short[a], short[b]
+            if la + lb + 1 <= max_length:
+                rules.append((va & vb, la + lb + 1))
+            if la + lb + 2 <= max_length:
+                rules.append((~(va & vb) & full, la + lb + 2))
+
+    def weight(v, ln):
+        miss = bin((v ^ am) & train).count("1")
+        n = bin(train).count("1")
+        if noise == 0:
+            lik = 1.0 if miss == 0 else 0.0
+        else:
+            lik = noise**miss * (1 - noise) ** (n - miss)
+        return prior**ln * lik
+
+    ws = [(v, weight(v, ln), ln) for v, ln in rules]
+    if noise == 0:
+        l_min = min(ln for _, w, ln in ws if w > 0)
+        ws = [(v, w, ln) for v, w, ln in ws if ln <= min(max_length, l_min + 1)]
+    total = sum(w for _, w, _ in ws)
+    off = n_a + n_b
+    n_test = len(panels) - off
+    return [sum(w for v, w, _ in ws if v >> (off + k) & 1) / total for k in range(n_test)]
+
+
+@pytest.mark.parametrize(("budget", "noise"), [(8935, 0.0), (310, 0.1), (2295, 0.1)])
+def test_posterior_matches_plain_bayesian_model_averaging(default_items, budget, noise):
+    # reference: Bayesian model averaging over a finite hypothesis space, P(y | x, D) =
+    # sum_h P(y | x, h) P(h | D) (Tenenbaum & Griffiths 2001, eq. 2; from memory), computed
+    # by plain enumeration without the solver's grouping of equal truth vectors
+    ref = make_builtin("contrast-ref", budget=budget, noise=noise)
+    for it in default_items[:4]:
+        view = render(it, "structured", "select")
+        got = ref.solve(view, "select").raw["p_a"]
+        want = _brute_force_predictive(view, max_length=ref.max_length, noise=noise,
+                                       prior=ref.prior)
+        assert got == pytest.approx([round(p, 4) for p in want], abs=2e-4)

@@ -17,8 +17,9 @@ words. Effort is the number of rules in the space up to the depth reached (unit 
 
 When no rule within the budget is consistent (the budget is too small, or the sets are noisy), the
 solver falls back to ``noise = max(noise, 0.1)`` so that the best-fitting short rules decide.
-Conjunctions under noise are built only from literals that miss at most one panel of the set they
-must cover (an approximation that keeps the pair step small).
+Conjunctions under noise are built from every pair of short enough literals when there are at
+most 600 of them, else only from literals that miss at most one panel of the set they must cover
+(an approximation that keeps the pair step small).
 
 Longer hidden rules leave more consistent rules of nearby length, so the predictive is split more
 often; a budget that does not reach the hidden rule's length leaves only inconsistent rules, so at
@@ -135,7 +136,11 @@ class ContrastReference:
             if depth < extra + 2:
                 continue
             miss = _popcount((lits & cover) ^ cover)
-            cand = np.flatnonzero((miss <= allow) & (lens <= depth - extra - 1))
+            short = lens <= depth - extra - 1
+            if noise > 0 and short.sum() <= _MAX_CANDIDATES:
+                cand = np.flatnonzero(short)  # small enough: every pair, no approximation
+            else:
+                cand = np.flatnonzero((miss <= allow) & short)
             if cand.size == 0:
                 continue
             # group literals by (vector, length); the count multiplies the prior weight
