@@ -1467,7 +1467,9 @@ def _draw(item: Item, mode: str, fig: Figure, *, labels: bool) -> None:
     # one cell size for the whole picture, so sizes can be compared across grids
     every = [st["test"], *choices, *(p[k] for p in st["train"] for k in ("input", "output"))]
     side = (max(len(g) for g in every), max(len(g[0]) for g in every))
-    n_rows = len(rows) + (1 if choices else 0)
+    per_row = min(len(choices), 6) if choices else 1
+    choice_rows = -(-len(choices) // per_row)
+    n_rows = len(rows) + choice_rows
     cell_h = 0.96 / n_rows
     for i, (left, right) in enumerate(rows):
         y = 1 - (i + 1) * cell_h
@@ -1480,12 +1482,12 @@ def _draw(item: Item, mode: str, fig: Figure, *, labels: bool) -> None:
         else:
             _draw_grid(ax2, right[0], labels, right[1], side)
         fig.text(0.5, y + cell_h / 2, "\u2192", ha="center", va="center", fontsize=16)
-    if choices:
-        y = 1 - n_rows * cell_h
-        wdt = 0.96 / len(choices)
-        for k, ch in enumerate(choices):
-            ax = fig.add_axes((0.02 + k * wdt, y + 0.01, wdt - 0.02, cell_h - 0.03))
-            _draw_grid(ax, ch, labels, f"choice {k + 1}", side)
+    wdt = 0.96 / per_row
+    for k, ch in enumerate(choices):
+        r, c = divmod(k, per_row)
+        y = 1 - (len(rows) + r + 1) * cell_h
+        ax = fig.add_axes((0.02 + c * wdt, y + 0.01, wdt - 0.02, cell_h - 0.03))
+        _draw_grid(ax, ch, labels, f"choice {k + 1}", side)
 
 
 register(GridsFamily())
