@@ -620,7 +620,7 @@ class Grammar:
         # literals: the leaves, then their negations
         self.lit_lengths = np.concatenate([self.lengths, self.lengths + 1])
         self.n_leaves = len(leaves)
-        self._upto: dict[int, tuple[np.ndarray, ...]] = {}
+        self._upto: dict[int, tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = {}
 
     def upto(self, length: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """Literals of length <= ``length``: indices, their leaves, negation masks, lengths."""
@@ -1225,7 +1225,7 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
         used = _cells(objs, skip=(i, j))
         free = [c for c in range(9) if c not in used]
         ra, ca, rb, cb = fixed(a, ROW), fixed(a, COL), fixed(b, ROW), fixed(b, COL)
-        opts = []
+        cells: list[tuple[int, int]] = []
         for ci in free:
             if (ra is not None and ci // 3 != ra) or (ca is not None and ci % 3 != ca):
                 continue
@@ -1234,10 +1234,10 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
                         cb is not None and cj % 3 != cb):
                     continue
                 if (ci // 3 < cj // 3) if rel == "above" else (ci % 3 < cj % 3):
-                    opts.append((ci, cj))
-        if not opts:
+                    cells.append((ci, cj))
+        if not cells:
             raise _Fail("no cells for the relation")
-        ci, cj = ctx.pick(opts)
+        ci, cj = ctx.pick(cells)
         for k, c in ((i, ci), (j, cj)):
             objs[k][ROW], objs[k][COL] = c // 3, c % 3
             for inner in objs:
@@ -1246,11 +1246,11 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
         return
     sa, sb = fixed(a, SIZE), fixed(b, SIZE)
     sizes = ctx.allowed[SIZE]
-    opts = [(x, y) for x in sizes for y in sizes if (sa is None or x == sa)
-            and (sb is None or y == sb) and ((x > y) if rel == "bigger" else (x < y))]
-    if not opts:
+    pairs = [(x, y) for x in sizes for y in sizes if (sa is None or x == sa)
+             and (sb is None or y == sb) and ((x > y) if rel == "bigger" else (x < y))]
+    if not pairs:
         raise _Fail("no sizes for the relation")
-    objs[i][SIZE], objs[j][SIZE] = ctx.pick(opts)
+    objs[i][SIZE], objs[j][SIZE] = ctx.pick(pairs)
     if rel == "bigger":
         _sync(objs, ctx)
         return
@@ -1572,7 +1572,7 @@ class ContrastFamily(Family):
             kept.add((want, k))
             target[k] = panel
         if checked is None:
-            raise Rejected(reason)
+            raise Rejected(reason or "no valid item")
         factors = {"rule_length": rule_length(rule), "attribute": k_attr,
                    "relational": relational, "distractors": distractors,
                    "objects": int(p["objects"])}
@@ -2044,9 +2044,9 @@ class ContrastFamily(Family):
 
         ang = math.radians(45 if o["tilt"] == "tilted" else 0)
         shape = o["shape"]
+        pts: list[tuple[float, float]]
         if shape == "square":
-            pts = [(-1, -1), (1, -1), (1, 1), (-1, 1)]
-            pts = [(px * 0.8, py * 0.8) for px, py in pts]
+            pts = [(-0.8, -0.8), (0.8, -0.8), (0.8, 0.8), (-0.8, 0.8)]
         elif shape == "triangle":
             pts = [(-1, -0.8), (1, -0.8), (0, 1)]
         elif shape == "cross":
