@@ -9,6 +9,7 @@
     consent = "consent.txt"             # the lab's consent text (from the template, replaced)
     background = "#20242b"              # screen colour
     end_text = "Thank you. The session is over."
+    redraw = "on_change"                # or "every_frame" (flip on every refresh)
 """
 
 from __future__ import annotations
@@ -20,7 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from twofold.study import load_study
-from twofold.study._check import check_int, fail
+from twofold.study._check import check_choice, check_int, fail
 from twofold.study.exceptions import RunnerError, SpecError
 from twofold.study.forms import Form, form_for, parse_blocks, parse_forms
 from twofold.study.logs import read_sidecar, read_trials
@@ -53,6 +54,7 @@ _RUNNER_KEYS = (
     "background",
     "end_text",
     "allow_template_consent",
+    "redraw",
 )
 
 
@@ -67,6 +69,7 @@ class RunnerOptions:
     background: str = "#20242b"
     end_text: str = "Thank you. The session is over.\n\nPlease tell the experimenter."
     allow_template_consent: bool = False
+    redraw: str = "on_change"
 
 
 def parse_runner(study: Any) -> RunnerOptions:
@@ -110,7 +113,15 @@ def parse_runner(study: Any) -> RunnerOptions:
     bg = raw.get("background", d.background)
     if not re.fullmatch(r"#[0-9a-fA-F]{6}", bg):
         raise fail("runner.background", bg, "a colour like '#20242b'", where=where, error=SpecError)
+    redraw = check_choice(
+        "runner.redraw",
+        raw.get("redraw", d.redraw),
+        ("on_change", "every_frame"),
+        where=where,
+        error=SpecError,
+    )
     return RunnerOptions(
+        redraw=redraw,
         fullscreen=raw.get("fullscreen", d.fullscreen),
         size=(w, h),
         respondent_pattern=pattern,

@@ -3,8 +3,16 @@
 PsychoPy is imported inside :func:`run_session` only. Timing: an item's onset is the return
 value of the ``win.flip()`` that first showed it (PsychoPy's core clock); a key response's time
 is the psychtoolbox keyboard queue's own ``tDown`` on the same clock; a mouse press's time is
-PsychoPy's press-event time. Response time = event time - onset. Every frame's flip time is kept
-to count frame intervals and dropped frames per trial and per session.
+PsychoPy's press-event time. Response time = event time - onset.
+
+Redrawing: by default (``[runner] redraw = "on_change"``) a screen is drawn and flipped when it
+changes (onset, typing, painting...); in between, the loop takes in input events every half
+millisecond without flipping. ``redraw = "every_frame"`` flips on every refresh instead (useful
+on a vsync-locked display to watch every frame). Intervals between consecutive flips are kept;
+an interval over 1.5 refresh periods (refresh rate measured at start) counts as a dropped frame,
+per trial and per session. The screen of the next item is built right after the current item's
+onset (this takes 0.1-0.5 s in software rendering); key times are unaffected (they come from the
+keyboard queue), a mouse press during the build is time-stamped when the build ends.
 
 Every trial row is written and fsynced (TrialLogWriter) before the next item appears; the
 sidecar is rewritten atomically after each trial, so a crash loses at most the trial on screen.
@@ -156,6 +164,7 @@ class _Session:
         self.refresh_hz = float(rate) if rate else None
         self.period = 1.0 / self.refresh_hz if self.refresh_hz else None
         self.start = self.core.getTime()
+        self.every_frame = opts.redraw == "every_frame"
         self.frames = _Frames(self.period)
 
     # -- input -------------------------------------------------------------------------------
@@ -203,6 +212,16 @@ class _Session:
             json.dump(data, fh)
         os.replace(tmp, self.probe_path)
 
+    def idle(self, draw: Any) -> None:
+        """Wait a moment without redrawing (input events are still taken in), or redraw and
+        flip when the study asks for a flip on every frame."""
+        if self.every_frame and draw is not None:
+            draw()
+            self.win.flip()
+            return
+        self.win.backend.dispatchEvents()
+        time.sleep(0.0005)
+
     # -- generic screens -----------------------------------------------------------------------
     def text_screen(
         self,
@@ -236,8 +255,7 @@ class _Session:
                 else:
                     if max_s is not None and self.core.getTime() - onset > max_s:
                         return None
-                    stim.draw()
-                    self.win.flip()
+                    self.idle(lambda: stim.draw())
                     continue
                 break  # ESC not confirmed: show the screen again
 
@@ -308,20 +326,21 @@ class _Session:
             self.built = {(ahead[0].id, ahead[1].mode): self.screen(*ahead)}
             frames.prep_ms = (self.core.getTime() - t0) * 1000
             screen.draw()
-            last = self.win.flip()  # the screen was static meanwhile: not a frame interval
+            last: float | None = self.win.flip()  # static meanwhile: not a frame interval
         else:
             last = onset
         # the probe (tests only) goes out once the loop is ready to take input
         self.probe(
             "trial", onset, trial=trial, block=block, item=screen.item.id, targets=screen.targets
         )
-        answer, press_t = None, 0.0
+        answer, press_t, dirty = None, 0.0, False
         while answer is None:
             for k in self.keys(onset):
                 if k.name == "escape":
                     self.confirm_abort()
                     raise _Restart()
                 answer = screen.key(k.name, float(k.tDown))
+                dirty = True
                 if answer is not None:
                     break
             if answer is None:
@@ -331,6 +350,7 @@ class _Session:
                 if times[0] and times[0] != press_t:
                     press_t = times[0]
                     answer = screen.press(self.mouse.getPos(), reset_core + times[0])
+                    dirty = True
                     if answer is None:  # the screen may have changed (e.g. a resized grid)
                         self.probe(
                             "update",
@@ -342,15 +362,21 @@ class _Session:
                         )
                 elif buttons[0]:
                     screen.drag(self.mouse.getPos())
+                    dirty = True
             if answer is not None:
                 break
             now = self.core.getTime()
             if time_limit and now - onset >= time_limit:
                 return None, onset, None, "timeout", None, frames
-            screen.draw()
-            t = self.win.flip()
-            frames.add(t - last)
-            last = t
+            if dirty or self.every_frame:
+                screen.draw()
+                t = self.win.flip()
+                if last is not None:  # intervals between consecutive flips only
+                    frames.add(t - last)
+                last, dirty = t, False
+            else:
+                self.idle(None)
+                last = None
         return answer.value, onset, answer.t, "ok", answer.detail, frames
 
     # -- the session ---------------------------------------------------------------------------
