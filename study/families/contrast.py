@@ -1464,7 +1464,7 @@ class ContrastFamily(Family):
         "swap-sets": "exchange sets A and B; the rule becomes its negation (validity is "
                      "checked up to the shorter of the rule and its negation)",
         "change-irrelevant": "redraw the values of the attributes the rule does not use",
-        "change-surface": "swap the values of a nominal attribute the rule uses (e.g. two shapes)",
+        "change-surface": "swap two values of an attribute the rule names (e.g. two shapes)",
         "mirror": "mirror every panel left to right (left and right swap in the rule)",
     }
     error_types = {
@@ -1643,10 +1643,14 @@ class ContrastFamily(Family):
                 for o in pnl:
                     o[COL] = 2 - o[COL]
         elif operator == "change-surface":
-            nominal = [a for a in ("shape", "shade", "edge", "tilt") if a in used]
-            if not nominal:
-                raise Rejected("no nominal attribute in the rule")
-            ai = ATTRIBUTES.index(nominal[int(rng.integers(len(nominal)))])
+            # attributes whose values the rule names, unless a relation reads their order
+            rels = set(_relations_of(rule))
+            blocked = ({SIZE} if rels & {"bigger", "inside"} else set()) | (
+                {ROW} if "above" in rels else set()) | ({COL} if "leftof" in rels else set())
+            named = sorted({ATOMS[a][0] for a in _atoms_of(rule)} - blocked)
+            if not named:
+                raise Rejected("no attribute value in the rule can change")
+            ai = named[int(rng.integers(len(named)))]
             in_rule = sorted({ATOMS[a][1] for a in _atoms_of(rule) if ATOMS[a][0] == ai})
             outside = [v for v in range(CARD[ai]) if v not in in_rule]
             v1 = in_rule[int(rng.integers(len(in_rule)))]
@@ -1659,6 +1663,8 @@ class ContrastFamily(Family):
             for pnl in panels:
                 for o in pnl:
                     o[ai] = perm[o[ai]]
+                if any(o[INSIDE] >= 0 and pnl[o[INSIDE]][SIZE] <= o[SIZE] for o in pnl):
+                    raise Rejected("new sizes break a nesting")
         else:  # change-irrelevant
             free = [ATTRIBUTES.index(a) for a in OBJECT_ATTRS if a not in used]
             if not free:
