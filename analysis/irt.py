@@ -211,6 +211,13 @@ def _full(Mk: np.ndarray) -> bool:
     return Mk.ndim == 2 and Mk.strides == (0, 0)
 
 
+def _seen(Mk: np.ndarray, axis: int) -> np.ndarray:
+    """Mk.sum(axis) without a pass over a broadcast mask."""
+    if _full(Mk):
+        return np.full(Mk.shape[1 - axis], float(Mk.shape[axis]))
+    return Mk.sum(axis)
+
+
 # ---------------------------------------------------------------------------------- the result
 
 
@@ -377,7 +384,7 @@ class IRTResult:
 
 
 def _initial_phi(X: np.ndarray, Mk: np.ndarray, kind: str) -> np.ndarray:
-    n_seen = Mk.sum(0)
+    n_seen = _seen(Mk, 0)
     p = np.clip(X.sum(0) / n_seen, 0.01, 0.99)
     logit = np.log(p / (1 - p))
     if kind == "rasch":
@@ -387,7 +394,7 @@ def _initial_phi(X: np.ndarray, Mk: np.ndarray, kind: str) -> np.ndarray:
     # slopes from item-rest correlations (rest = proportion correct on the other seen items),
     # through the normal-ogive relation a ~ 1.7 r / sqrt(1 - r^2); moments by matrix products
     t = X.sum(1)
-    c = np.maximum(Mk.sum(1) - 1.0, 1.0)
+    c = np.maximum(_seen(Mk, 1) - 1.0, 1.0)
 
     def mt(v):
         return np.full(X.shape[1], v.sum()) if _full(Mk) else Mk.T @ v
@@ -566,8 +573,8 @@ def fit_irt(
             "a_se": a_se,
             "b_se": b_se,
             "d_se": d_se,
-            "n": Mk.sum(0).astype(np.int64),
-            "p_correct": X.sum(0) / Mk.sum(0),
+            "n": _seen(Mk, 0).astype(np.int64),
+            "p_correct": X.sum(0) / _seen(Mk, 0),
             "infit": np.nan,
             "outfit": np.nan,
         }
@@ -611,17 +618,24 @@ def _lz(X: np.ndarray, Mk: np.ndarray, theta: np.ndarray, a: np.ndarray, d: np.n
     l0 = np.empty(t.size)
     e = np.empty(t.size)
     v = np.empty(t.size)
+    full = _full(Mk)
     for rows in _q.chunks(X.shape[0], X.shape[1]):
         z = np.outer(t[rows], a)
         z += d
-        lq = -np.logaddexp(0.0, z)
+        lq = np.logaddexp(0.0, z)
+        lq *= -1.0
         p = expit(z)
-        m = Mk[rows]
-        l0[rows] = (X[rows] * z + m * lq).sum(1)
-        e[rows] = (m * (p * z + lq)).sum(1)
-        p *= 1.0 - p
-        p *= z * z
-        v[rows] = (m * p).sum(1)
+        pz = p * z
+        if full:
+            sum_lq = lq.sum(1)
+            l0[rows] = np.einsum("ij,ij->i", X[rows], z) + sum_lq
+            e[rows] = pz.sum(1) + sum_lq
+            v[rows] = np.einsum("ij,ij->i", pz * (1.0 - p), z)
+        else:
+            m = Mk[rows]
+            l0[rows] = np.einsum("ij,ij->i", X[rows], z) + np.einsum("ij,ij->i", m, lq)
+            e[rows] = np.einsum("ij,ij->i", m, pz + lq)
+            v[rows] = np.einsum("ij,ij->i", m, pz * (1.0 - p) * z)
     with np.errstate(invalid="ignore", divide="ignore"):
         out = (l0 - e) / np.sqrt(v)
     out[~np.isfinite(theta) | (v <= 0)] = np.nan
@@ -635,7 +649,7 @@ def _ability_table(index, theta, se, method, X, Mk, a, d) -> pd.DataFrame:
             "theta": theta,
             "se": se,
             "method": method,
-            "n_items": Mk.sum(1).astype(np.int64),
+            "n_items": _seen(Mk, 1).astype(np.int64),
             "n_correct": X.sum(1).astype(np.int64),
             "lz": _lz(X, Mk, theta, a, d),
         }
@@ -726,7 +740,7 @@ def _fit_rows(X, Mk, theta, exclude_extreme: bool) -> np.ndarray:
     keep = np.isfinite(theta)
     if exclude_extreme:
         n_cor = X.sum(1)
-        keep &= (n_cor > 0) & (n_cor < Mk.sum(1))
+        keep &= (n_cor > 0) & (n_cor < _seen(Mk, 1))
     return keep
 
 
@@ -1014,7 +1028,7 @@ def score_on_human_scale(
     skipped = tuple(c for c in machine.columns if c not in names)
     machine = machine.reindex(columns=cal.item_names)
     X, Mk = _split(machine.to_numpy(dtype=np.float64))
-    keep = Mk.sum(1) > 0
+    keep = _seen(Mk, 1) > 0
     if not keep.all():
         unscored = [str(r) for r in machine.index[~keep]]
         warnings.warn(
