@@ -54,9 +54,14 @@ def make(params=None, seed=0, modes=("select", "generate")):
     for attempt in range(60):
         s, rng = item_rng(seed, "test-contrast", attempt)
         try:
-            return FAM.generate(p, rng, seed=s, modes=list(modes),
-                                distractor_scheme="per-panel" if "select" in modes else None,
-                                n_choices=2)
+            return FAM.generate(
+                p,
+                rng,
+                seed=s,
+                modes=list(modes),
+                distractor_scheme="per-panel" if "select" in modes else None,
+                n_choices=2,
+            )
         except Rejected:
             continue
         except SpecError:
@@ -65,8 +70,16 @@ def make(params=None, seed=0, modes=("select", "generate")):
     raise AssertionError(f"no item for {p}")
 
 
-def obj(shape="square", size="medium", shade="mid", edge="solid", tilt="upright", row=0, col=0,
-        inside=-1):
+def obj(
+    shape="square",
+    size="medium",
+    shade="mid",
+    edge="solid",
+    tilt="upright",
+    row=0,
+    col=0,
+    inside=-1,
+):
     from twofold.study.families.contrast import VALUES
 
     vals = dict(shape=shape, size=size, shade=shade, edge=edge, tilt=tilt)
@@ -99,8 +112,17 @@ def test_parse_format_and_length(text, canonical, length):
 
 @pytest.mark.parametrize(
     "text",
-    ["", "every[]", "every[dome+square]", "some[purple]", "n>3", "above[dark]", "every dome",
-     "every[dome] &", "(n=2"],
+    [
+        "",
+        "every[]",
+        "every[dome+square]",
+        "some[purple]",
+        "n>3",
+        "above[dark]",
+        "every dome",
+        "every[dome] &",
+        "(n=2",
+    ],
 )
 def test_parser_rejects_malformed_rules(text):
     with pytest.raises(ResponseError, match="response"):
@@ -109,7 +131,8 @@ def test_parser_rejects_malformed_rules(text):
 
 def test_words_rendering():
     assert describe_rule("every[large] & some[dark+dome]") == (
-        "every object is large and there is a dark dome")
+        "every object is large and there is a dark dome"
+    )
     assert describe_rule("no[dashed]") == "there is no dashed-edged object"
     assert describe_rule("inside[small,*]") == "a small object is inside another object"
     assert describe_rule("~n>=3") == "it is not true that there are at least 3 objects"
@@ -117,8 +140,10 @@ def test_words_rendering():
 
 def test_evaluator_on_hand_built_panels():
     # panel 0: a large dark dome in the top-left cell holding a small light square
-    p0 = [obj("dome", "large", "dark", row=0, col=0), obj("square", "small", "light", row=0, col=0,
-                                                           inside=0)]
+    p0 = [
+        obj("dome", "large", "dark", row=0, col=0),
+        obj("square", "small", "light", row=0, col=0, inside=0),
+    ]
     # panel 1: a small square above-left of a medium dome
     p1 = [obj("square", "small", row=0, col=0), obj("dome", "medium", row=1, col=1)]
     panels = [p0, p1]
@@ -201,8 +226,8 @@ def test_generation_is_deterministic_valid_and_answer_follows_rule(params, seed,
     rule = parse_rule(item.answer["rule"])
     panels, n_a, n_b = panels_from_stimulus(item.stimulus)
     truth = evaluate_rule(rule, panels)
-    assert all(truth[:n_a]) and not any(truth[n_a:n_a + n_b])
-    assert "".join("A" if t else "B" for t in truth[n_a + n_b:]) == item.answer["labels"]
+    assert all(truth[:n_a]) and not any(truth[n_a : n_a + n_b])
+    assert "".join("A" if t else "B" for t in truth[n_a + n_b :]) == item.answer["labels"]
     assert n_a == n_b == params["per_set"] and len(item.answer["labels"]) == params["n_test"]
     assert item.factors["rule_length"] == rule_length(rule) == params["length"]
     for k, pnl in enumerate(panels):
@@ -235,17 +260,36 @@ def test_no_rule_as_short_separates_the_sets_and_disagrees_on_a_test_panel(param
 def test_impossible_levels_are_a_clear_spec_error():
     rng = np.random.default_rng(0)
     with pytest.raises(SpecError, match="length"):
-        FAM.generate({**FAM.default_params(), "length": 1, "kind": "relational"}, rng, seed=0,
-                     modes=["select"], distractor_scheme="per-panel", n_choices=2)
+        FAM.generate(
+            {**FAM.default_params(), "length": 1, "kind": "relational"},
+            rng,
+            seed=0,
+            modes=["select"],
+            distractor_scheme="per-panel",
+            n_choices=2,
+        )
     with pytest.raises(SpecError, match="objects"):
-        FAM.generate({**FAM.default_params(), "objects": 1, "kind": "relational"}, rng, seed=0,
-                     modes=["select"], distractor_scheme="per-panel", n_choices=2)
+        FAM.generate(
+            {**FAM.default_params(), "objects": 1, "kind": "relational"},
+            rng,
+            seed=0,
+            modes=["select"],
+            distractor_scheme="per-panel",
+            n_choices=2,
+        )
 
 
 def test_distractors_vary_and_the_rest_is_held_constant():
     item = make({"distractors": 0, "kind": "featural", "attribute": "shape", "length": 2}, seed=3)
-    objs = [o for pnl in [*item.stimulus["sets"]["A"], *item.stimulus["sets"]["B"],
-                          *item.stimulus["test"]] for o in pnl]
+    objs = [
+        o
+        for pnl in [
+            *item.stimulus["sets"]["A"],
+            *item.stimulus["sets"]["B"],
+            *item.stimulus["test"],
+        ]
+        for o in pnl
+    ]
     values = list(zip(*(o.split()[:5] for o in objs), strict=True))
     assert len(set(values[0])) > 1  # shape is the rule's attribute and varies
     assert all(len(set(v)) == 1 for v in values[1:])  # size, shade, edge, tilt are constant
@@ -277,7 +321,7 @@ def test_variants_keep_the_structure(seed, op):
     assert FAM.check(var) == []
     panels, n_a, n_b = panels_from_stimulus(var.stimulus)
     truth = evaluate_rule(var.answer["rule"], panels)
-    assert all(truth[:n_a]) and not any(truth[n_a:n_a + n_b])
+    assert all(truth[:n_a]) and not any(truth[n_a : n_a + n_b])
     labels = item.answer["labels"]
     if op == "swap-sets":
         assert var.answer["labels"] == labels.translate(str.maketrans("AB", "BA"))
@@ -356,10 +400,18 @@ def test_free_text_rule_is_not_automatically_scorable():
 
 # -- parse_text ---------------------------------------------------------------------------------
 @FAST
-@given(seed=st.integers(0, 10_000),
-       wrap=st.sampled_from(["Answer: {}", "```\n{}\n```", "I think the labels are '{}'.",
-                             "Let me look at panel A1 first.\nFinal answer: {}",
-                             "**{}**"]))
+@given(
+    seed=st.integers(0, 10_000),
+    wrap=st.sampled_from(
+        [
+            "Answer: {}",
+            "```\n{}\n```",
+            "I think the labels are '{}'.",
+            "Let me look at panel A1 first.\nFinal answer: {}",
+            "**{}**",
+        ]
+    ),
+)
 def test_parse_text_select(seed, wrap):
     item = make(seed=seed)
     labels = item.answer["labels"]
@@ -370,8 +422,10 @@ def test_parse_text_select(seed, wrap):
     assert FAM.parse_text(item, "A panel here is tricky.\n" + tagged, "select") == labels
 
 
-@pytest.mark.parametrize("wrap", ["Rule: {}", "```\n{}\n```", "The rule is:\n`{}`",
-                                  "Reasoning about set A...\nFinal rule: {}"])
+@pytest.mark.parametrize(
+    "wrap",
+    ["Rule: {}", "```\n{}\n```", "The rule is:\n`{}`", "Reasoning about set A...\nFinal rule: {}"],
+)
 def test_parse_text_generate(wrap):
     item = make(seed=4)
     rule = item.answer["rule"]
@@ -381,8 +435,10 @@ def test_parse_text_generate(wrap):
 @pytest.mark.parametrize(
     ("reply", "rule"),
     [
-        ("The rule is: every object is dark. In notation: every[dark] & n>=2.",
-         "every[dark] & n>=2"),
+        (
+            "The rule is: every object is dark. In notation: every[dark] & n>=2.",
+            "every[dark] & n>=2",
+        ),
         ("I believe it's `~(some[dome] & n=3)` because of B2.", "~(n=3 & some[dome])"),
         ("Set A has above[dark,*] too, but the rule is leftof[dark,*].", "leftof[dark,*]"),
         ("Answer = #[dome]=2", "#[dome]=2"),
@@ -412,8 +468,16 @@ def test_renderers_are_deterministic_and_answer_free():
         assert item.answer["rule"] not in dump and item.answer["rule"] not in text
         assert f"T{len(item.stimulus['test'])}:" in text
         assert len(view["sets"]["A"]) == len(item.stimulus["sets"]["A"])
-        assert set(view["sets"]["A"][0][0]) >= {"shape", "size", "shade", "edge", "tilt", "row",
-                                                "col", "inside"}
+        assert set(view["sets"]["A"][0][0]) >= {
+            "shape",
+            "size",
+            "shade",
+            "edge",
+            "tilt",
+            "row",
+            "col",
+            "inside",
+        }
     assert "letters" in render(item, "text", "select")
     assert "notation" in render(item, "text", "generate")
     png = render_picture(item, "select")
@@ -431,9 +495,19 @@ def test_schema_allows_no_choices_only_for_per_panel_classification():
 
 
 def test_bank_round_trip(tmp_path):
-    spec = parse_spec({"seed": 2, "families": {"contrast": {
-        "n": 6, "modes": ["select", "generate"], "params": {"length": [2, 3]},
-        "variants": {"operators": ["mirror", "swap-sets"], "per_item": 1}}}})
+    spec = parse_spec(
+        {
+            "seed": 2,
+            "families": {
+                "contrast": {
+                    "n": 6,
+                    "modes": ["select", "generate"],
+                    "params": {"length": [2, 3]},
+                    "variants": {"operators": ["mirror", "swap-sets"], "per_item": 1},
+                }
+            },
+        }
+    )
     bank = generate_bank(spec)
     written = write_bank(bank, tmp_path / "bank")
     again = load_bank(tmp_path / "bank")

@@ -22,8 +22,11 @@ def items(params, n, seed=17):
         s, rng = item_rng(seed, "solver", str(sorted(params.items())), i)
         i += 1
         try:
-            out.append(FAM.generate(p, rng, seed=s, modes=MODES, distractor_scheme="per-panel",
-                                    n_choices=2))
+            out.append(
+                FAM.generate(
+                    p, rng, seed=s, modes=MODES, distractor_scheme="per-panel", n_choices=2
+                )
+            )
         except Rejected:
             continue
     return out
@@ -117,8 +120,13 @@ def test_noise(default_items):
 
 @pytest.mark.parametrize(
     ("opts", "field"),
-    [({"budget": 0}, "budget"), ({"noise": 0.5}, "noise"), ({"seed": -1}, "seed"),
-     ({"prior": 1.0}, "prior"), ({"budget": True}, "budget")],
+    [
+        ({"budget": 0}, "budget"),
+        ({"noise": 0.5}, "noise"),
+        ({"seed": -1}, "seed"),
+        ({"prior": 1.0}, "prior"),
+        ({"budget": True}, "budget"),
+    ],
 )
 def test_bad_options_name_the_field(opts, field):
     with pytest.raises(SolverError, match=field):
@@ -184,6 +192,7 @@ def test_posterior_matches_plain_bayesian_model_averaging(default_items, budget,
     for it in default_items[:4]:
         view = render(it, "structured", "select")
         got = ref.solve(view, "select").raw["p_a"]
-        want = _brute_force_predictive(view, max_length=ref.max_length, noise=noise,
-                                       prior=ref.prior)
+        want = _brute_force_predictive(
+            view, max_length=ref.max_length, noise=noise, prior=ref.prior
+        )
         assert got == pytest.approx([round(p, 4) for p in want], abs=2e-4)

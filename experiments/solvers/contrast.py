@@ -75,13 +75,16 @@ class ContrastReference:
 
     medium = "structured"
 
-    def __init__(self, *, seed: int = 0, budget: int = 100_000, noise: float = 0.0,
-                 prior: float = 0.1):
+    def __init__(
+        self, *, seed: int = 0, budget: int = 100_000, noise: float = 0.0, prior: float = 0.1
+    ):
         if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
             raise SolverError(f"field 'seed': got {seed!r}; accepted: an integer >= 0.")
         if isinstance(budget, bool) or not isinstance(budget, int) or budget < 1:
-            raise SolverError(f"field 'budget': got {budget!r}; accepted: an integer >= 1 "
-                              "(the most rules enumerated).")
+            raise SolverError(
+                f"field 'budget': got {budget!r}; accepted: an integer >= 1 "
+                "(the most rules enumerated)."
+            )
         if isinstance(noise, bool) or not isinstance(noise, int | float) or not 0 <= noise < 0.5:
             raise SolverError(f"field 'noise': got {noise!r}; accepted: a number in [0, 0.5).")
         if isinstance(prior, bool) or not isinstance(prior, int | float) or not 0 < prior < 1:
@@ -89,23 +92,29 @@ class ContrastReference:
         self.seed, self.budget, self.noise, self.prior = seed, budget, float(noise), float(prior)
         g = grammar()
         #: the longest rule the budget lets the search reach
-        self.max_length = max([1] + [d for d in range(1, _MAX_LENGTH + 1)
-                                     if g.count_up_to(d) <= budget])
+        self.max_length = max(
+            [1] + [d for d in range(1, _MAX_LENGTH + 1) if g.count_up_to(d) <= budget]
+        )
 
     # ---------------------------------------------------------------------------------------
     def _read(self, view: Any) -> tuple[list, int, int, int]:
         if not isinstance(view, Mapping):
-            raise SolverError(f"field 'view': got {type(view).__name__}; accepted: the "
-                              "structured view of a contrast item (a dict).")
+            raise SolverError(
+                f"field 'view': got {type(view).__name__}; accepted: the "
+                "structured view of a contrast item (a dict)."
+            )
         try:
             panels, n_a, n_b = panels_from_stimulus(view)
         except (KeyError, TypeError, ValueError) as err:
-            raise SolverError("field 'view': not a contrast structured view (needs sets.A, "
-                              f"sets.B and test panels of objects): {err}") from err
+            raise SolverError(
+                "field 'view': not a contrast structured view (needs sets.A, "
+                f"sets.B and test panels of objects): {err}"
+            ) from err
         return panels, n_a, n_b, len(panels) - n_a - n_b
 
-    def _hypotheses(self, lits: np.ndarray, lens: np.ndarray, am: int, bm: int, depth: int,
-                    noise: float) -> tuple[np.ndarray, ...]:
+    def _hypotheses(
+        self, lits: np.ndarray, lens: np.ndarray, am: int, bm: int, depth: int, noise: float
+    ) -> tuple[np.ndarray, ...]:
         """Rules up to ``depth``: vectors, log weights, kind, literals i and j, multiplicity.
 
         ``kind`` is 0 for a literal, 1 for ``i & j``, 2 for ``~(i & j)``; a conjunction row
@@ -203,8 +212,10 @@ class ContrastReference:
         w = np.exp(logw - logw.max())
         total = w.sum()
         off = n_a + n_b
-        p_a = [float(w[((v >> np.uint64(off + k)) & np.uint64(1)) == 1].sum() / total)
-               for k in range(n_test)]
+        p_a = [
+            float(w[((v >> np.uint64(off + k)) & np.uint64(1)) == 1].sum() / total)
+            for k in range(n_test)
+        ]
         # MAP: the single most probable rule; a group's weight is shared by its members
         per_rule = logw - np.log(mult)
         best = np.flatnonzero(per_rule >= per_rule.max() - 1e-9)
@@ -213,14 +224,26 @@ class ContrastReference:
         rule = self._rule(int(kind[b]), int(ii[b]), int(jj[b]))
         text = format_rule(rule)
         post = float(w[b] / total / mult[b])
-        explanation = (f"most probable rule: {describe_rule(rule)} ({text}); posterior "
-                       f"{post:.2f}; rules up to length {depth} searched")
+        explanation = (
+            f"most probable rule: {describe_rule(rule)} ({text}); posterior "
+            f"{post:.2f}; rules up to length {depth} searched"
+        )
         if mode == "select":
             labels = "".join("A" if p >= 0.5 else "B" for p in p_a)
-            return Answer(labels, effort=effort, effort_unit="rules", explanation=explanation,
-                          raw={"p_a": [round(p, 4) for p in p_a], "map_rule": text})
-        return Answer(text, effort=effort, effort_unit="rules", explanation=explanation,
-                      raw={"p_a": [round(p, 4) for p in p_a], "map_rule": text})
+            return Answer(
+                labels,
+                effort=effort,
+                effort_unit="rules",
+                explanation=explanation,
+                raw={"p_a": [round(p, 4) for p in p_a], "map_rule": text},
+            )
+        return Answer(
+            text,
+            effort=effort,
+            effort_unit="rules",
+            explanation=explanation,
+            raw={"p_a": [round(p, 4) for p in p_a], "map_rule": text},
+        )
 
     @staticmethod
     def _lengths(hyp: tuple[np.ndarray, ...], lens: np.ndarray) -> np.ndarray:

@@ -143,6 +143,7 @@ def _example_labels(n: int) -> str:
     k = 5 if n != 5 else 3
     return f"'Answer: {'ABBAB'[:k]}' for {k} panels"
 
+
 RELATIONS = ("above", "leftof", "bigger", "inside")
 MAX_OBJECTS = 6
 
@@ -412,26 +413,36 @@ def _a(phrase: str) -> str:
 def _words(rule: Rule) -> str:
     kind = rule[0]
     if kind == "n":
-        return ("there are exactly {} objects" if rule[1] == "=" else
-                "there are at least {} objects").format(rule[2])
+        return (
+            "there are exactly {} objects" if rule[1] == "=" else "there are at least {} objects"
+        ).format(rule[2])
     if kind == "q":
         d = rule[2]
         if rule[1] == "every":
-            return f"every object is {_a(_np(d))}" if any(
-                ATOMS[a][0] == 0 for a in d) else "every object is " + _np(d).replace(
-                " object", "").replace("object ", "")
+            return (
+                f"every object is {_a(_np(d))}"
+                if any(ATOMS[a][0] == 0 for a in d)
+                else "every object is " + _np(d).replace(" object", "").replace("object ", "")
+            )
         if rule[1] == "some":
             return f"there is {_a(_np(d))}"
         return f"there is no {_np(d)}"
     if kind == "#":
         k = rule[2]
-        return f"exactly {k} {_np([rule[1]], plural=k != 1)}" + (" are" if k != 1 else " is") + \
-            " present"
+        return (
+            f"exactly {k} {_np([rule[1]], plural=k != 1)}"
+            + (" are" if k != 1 else " is")
+            + " present"
+        )
     if kind == "r":
         a = _a(_np(None if rule[2] is None else [rule[2]]))
         b = "another object" if rule[3] is None else _a(_np([rule[3]]))
-        verb = {"above": "is above", "leftof": "is left of", "bigger": "is larger than",
-                "inside": "is inside"}[rule[1]]
+        verb = {
+            "above": "is above",
+            "leftof": "is left of",
+            "bigger": "is larger than",
+            "inside": "is inside",
+        }[rule[1]]
         return f"{a} {verb} {b}"
     if kind == "not":
         return f"it is not true that {_words(rule[1])}"
@@ -491,7 +502,10 @@ def _obj_from_record(rec: str | Mapping[str, Any]) -> list[int]:
             pass
         raise ResponseError(
             f"field 'object': got {rec!r}; accepted: values in the order "
-            + ", ".join(ATTRIBUTES) + ", then optionally in<k>.", field="object")
+            + ", ".join(ATTRIBUTES)
+            + ", then optionally in<k>.",
+            field="object",
+        )
     try:
         o = [VALUES[a].index(rec[a]) for a in ATTRIBUTES]
     except (KeyError, ValueError, TypeError):
@@ -566,8 +580,11 @@ def _ev(rule: Rule, objs: Sequence[Sequence[int]]) -> bool:
             if a is not None and oi[ATOMS[a][0]] != ATOMS[a][1]:
                 continue
             for j, oj in enumerate(objs):
-                if i != j and (b is None or oj[ATOMS[b][0]] == ATOMS[b][1]) and _rel(
-                        rel, objs, i, j):
+                if (
+                    i != j
+                    and (b is None or oj[ATOMS[b][0]] == ATOMS[b][1])
+                    and _rel(rel, objs, i, j)
+                ):
                     return True
         return False
     if kind == "not":
@@ -603,8 +620,12 @@ class Grammar:
         for k in (1, 2, 3):
             for a in range(N_ATOMS):
                 leaves.append(("#", a, k))
-        pairs = [(a, b) for a in range(N_ATOMS) for b in range(a + 1, N_ATOMS)
-                 if ATOMS[a][0] != ATOMS[b][0]]
+        pairs = [
+            (a, b)
+            for a in range(N_ATOMS)
+            for b in range(a + 1, N_ATOMS)
+            if ATOMS[a][0] != ATOMS[b][0]
+        ]
         self.pair_a = np.array([p[0] for p in pairs])
         self.pair_b = np.array([p[1] for p in pairs])
         for q in QUANTS:
@@ -644,8 +665,11 @@ class Grammar:
         # conjunctions of two literals (unordered) and their negations
         for la in range(1, length + 1):
             for lb in range(la, length + 1):
-                c = int(hist[la]) * int(hist[lb]) if la != lb else int(hist[la]) * (
-                    int(hist[la]) - 1) // 2
+                c = (
+                    int(hist[la]) * int(hist[lb])
+                    if la != lb
+                    else int(hist[la]) * (int(hist[la]) - 1) // 2
+                )
                 if la + lb + 1 <= length:
                     n += c
                 if la + lb + 2 <= length:
@@ -709,9 +733,20 @@ def leaf_vectors(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
     truth = np.empty((p, g.n_leaves), dtype=bool)
     nn = n[:, None]
     k = 0
-    for arr in (nn == _K1, nn >= _K2, c1 == nn, c1 > 0, c1 == 0, c1 == 1, c1 == 2, c1 == 3,
-                cp == nn, cp > 0, cp == 0):
-        truth[:, k:k + arr.shape[1]] = arr
+    for arr in (
+        nn == _K1,
+        nn >= _K2,
+        c1 == nn,
+        c1 > 0,
+        c1 == 0,
+        c1 == 1,
+        c1 == 2,
+        c1 == 3,
+        cp == nn,
+        cp > 0,
+        cp == 0,
+    ):
+        truth[:, k : k + arr.shape[1]] = arr
         k += arr.shape[1]
     np.greater(res.reshape(p, -1), 0, out=truth[:, k:])
     return (_WEIGHTS[:p] @ truth).astype(np.uint64)
@@ -727,8 +762,11 @@ def rule_vector(rule: Rule, panels: Sequence[Sequence[Sequence[int]]]) -> int:
 
 
 def _popcount(x: np.ndarray) -> np.ndarray:
-    return np.bitwise_count(x) if hasattr(np, "bitwise_count") else np.array(
-        [bin(int(v)).count("1") for v in x])
+    return (
+        np.bitwise_count(x)
+        if hasattr(np, "bitwise_count")
+        else np.array([bin(int(v)).count("1") for v in x])
+    )
 
 
 def separating(
@@ -800,18 +838,24 @@ def _lit_rule(k: int) -> Rule:
 def separating_rules(sep: Mapping[str, np.ndarray], which: np.ndarray | None = None) -> list[Rule]:
     """Syntax trees of the rules in a :func:`separating` result (optionally a boolean subset)."""
     rules: list[Rule] = [_lit_rule(k) for k in sep["single"]]
-    rules += [_canon(("and", (_lit_rule(i), _lit_rule(j))))
-              for i, j in zip(sep["pair_i"], sep["pair_j"], strict=True)]
-    rules += [_canon(("not", ("and", (_lit_rule(i), _lit_rule(j)))))
-              for i, j in zip(sep["neg_i"], sep["neg_j"], strict=True)]
+    rules += [
+        _canon(("and", (_lit_rule(i), _lit_rule(j))))
+        for i, j in zip(sep["pair_i"], sep["pair_j"], strict=True)
+    ]
+    rules += [
+        _canon(("not", ("and", (_lit_rule(i), _lit_rule(j)))))
+        for i, j in zip(sep["neg_i"], sep["neg_j"], strict=True)
+    ]
     if which is not None:
         rules = [r for r, w in zip(rules, which, strict=True) if w]
     return rules
 
 
 def _all_sep(sep: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
-    return (np.concatenate([sep["single_vec"], sep["pair_vec"], sep["neg_vec"]]),
-            np.concatenate([sep["single_len"], sep["pair_len"], sep["neg_len"]]))
+    return (
+        np.concatenate([sep["single_vec"], sep["pair_vec"], sep["neg_vec"]]),
+        np.concatenate([sep["single_len"], sep["pair_len"], sep["neg_len"]]),
+    )
 
 
 # ------------------------------------------------------------------------------------------------
@@ -855,8 +899,9 @@ class _FastRng:
 class _Ctx:
     """Per-item generation context: the random generator and the allowed values."""
 
-    def __init__(self, rng: np.random.Generator, allowed: list[list[int]], lo: int, hi: int,
-                 nest: bool):
+    def __init__(
+        self, rng: np.random.Generator, allowed: list[list[int]], lo: int, hi: int, nest: bool
+    ):
         self.rng = _FastRng(rng)
         self.rnd = self.rng.r.random
         self._np = rng
@@ -941,19 +986,26 @@ def _feasible_rel(rel: str, a: int | None, b: int | None) -> bool:
     if rel in ("above", "leftof"):
         attr = ROW if rel == "above" else COL
         va, vb = val(a, attr), val(b, attr)
-        return (va is None or va < 2) and (vb is None or vb > 0) and (
-            va is None or vb is None or va < vb)
+        return (
+            (va is None or va < 2)
+            and (vb is None or vb > 0)
+            and (va is None or vb is None or va < vb)
+        )
     va, vb = val(a, SIZE), val(b, SIZE)
     if rel == "bigger":
-        return (va is None or va > 0) and (vb is None or vb < 2) and (
-            va is None or vb is None or va > vb)
+        return (
+            (va is None or va > 0)
+            and (vb is None or vb < 2)
+            and (va is None or vb is None or va > vb)
+        )
     # inside: a inside b, same cell, a smaller than b
     pa, pb = [val(a, ROW), val(a, COL)], [val(b, ROW), val(b, COL)]
     for x, y in zip(pa, pb, strict=True):
         if x is not None and y is not None and x != y:
             return False
-    return (va is None or va < 2) and (vb is None or vb > 0) and (
-        va is None or vb is None or va < vb)
+    return (
+        (va is None or va < 2) and (vb is None or vb > 0) and (va is None or vb is None or va < vb)
+    )
 
 
 def _binary(attr: str) -> bool:
@@ -981,8 +1033,13 @@ def _make_rule(kind: str, attr: str, length: int, ctx: _Ctx) -> Rule:
         return pick(_attr_atoms(a))
 
     def other(exclude: set[str], *, no_position: bool = False, many: bool = False) -> str:
-        opts = [a for a in RULE_ATTRS if a not in exclude
-                and not (no_position and a == "position") and not (many and _binary(a))]
+        opts = [
+            a
+            for a in RULE_ATTRS
+            if a not in exclude
+            and not (no_position and a == "position")
+            and not (many and _binary(a))
+        ]
         return pick(opts)
 
     def quant(a: int, *, position_ok: bool = True) -> Rule:
@@ -1020,8 +1077,11 @@ def _make_rule(kind: str, attr: str, length: int, ctx: _Ctx) -> Rule:
         if length == 3:
             return rel(x, y)
         if length == 4:
-            return ("not", rel(x, y)) if ctx.rng.random() < 0.5 else ("and", (rel(x, None),
-                                                                             at_least()))
+            return (
+                ("not", rel(x, y))
+                if ctx.rng.random() < 0.5
+                else ("and", (rel(x, None), at_least()))
+            )
         z = atom(other({attr}))
         if length == 5:
             if ctx.rng.random() < 0.5:
@@ -1078,14 +1138,18 @@ def _sync(objs: list[list[int]], ctx: _Ctx) -> None:
             o[ROW], o[COL] = host[ROW], host[COL]
 
 
-def _place(objs: list[list[int]], k: int, ctx: _Ctx, row: int | None = None,
-           col: int | None = None) -> None:
+def _place(
+    objs: list[list[int]], k: int, ctx: _Ctx, row: int | None = None, col: int | None = None
+) -> None:
     """Move object ``k`` (un-nested) to a free cell, optionally in a given row/column."""
     o = objs[k]
     o[INSIDE] = -1
     used = _cells(objs, skip=(k,))
-    free = [c for c in range(9) if c not in used and (row is None or c // 3 == row)
-            and (col is None or c % 3 == col)]
+    free = [
+        c
+        for c in range(9)
+        if c not in used and (row is None or c // 3 == row) and (col is None or c % 3 == col)
+    ]
     if not free:
         raise _Fail("no free cell")
     c = ctx.pick(free)
@@ -1101,11 +1165,21 @@ def _set_atom(objs: list[list[int]], k: int, atom: int, ctx: _Ctx) -> None:
     if o[attr] == val:
         return
     if attr == ROW:
-        _place(objs, k, ctx, row=val, col=o[COL] if (val * 3 + o[COL]) not in _cells(
-            objs, skip=(k,)) else None)
+        _place(
+            objs,
+            k,
+            ctx,
+            row=val,
+            col=o[COL] if (val * 3 + o[COL]) not in _cells(objs, skip=(k,)) else None,
+        )
     elif attr == COL:
-        _place(objs, k, ctx, col=val, row=o[ROW] if (o[ROW] * 3 + val) not in _cells(
-            objs, skip=(k,)) else None)
+        _place(
+            objs,
+            k,
+            ctx,
+            col=val,
+            row=o[ROW] if (o[ROW] * 3 + val) not in _cells(objs, skip=(k,)) else None,
+        )
     else:
         if val not in ctx.allowed[attr]:
             raise _Fail("value held constant")
@@ -1189,8 +1263,11 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
             if not pairs:
                 return
             for i, j in pairs:
-                opts = (["move"] if rel == "inside" else []) + (["a"] if a is not None else []) \
+                opts = (
+                    (["move"] if rel == "inside" else [])
+                    + (["a"] if a is not None else [])
                     + (["b"] if b is not None else [])
+                )
                 if not opts:
                     raise _Fail("cannot break a relation between any objects")
                 how = ctx.pick(opts)
@@ -1230,8 +1307,11 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
             if (ra is not None and ci // 3 != ra) or (ca is not None and ci % 3 != ca):
                 continue
             for cj in free:
-                if cj == ci or (rb is not None and cj // 3 != rb) or (
-                        cb is not None and cj % 3 != cb):
+                if (
+                    cj == ci
+                    or (rb is not None and cj // 3 != rb)
+                    or (cb is not None and cj % 3 != cb)
+                ):
                     continue
                 if (ci // 3 < cj // 3) if rel == "above" else (ci % 3 < cj % 3):
                     cells.append((ci, cj))
@@ -1246,8 +1326,14 @@ def _force_rel(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None
         return
     sa, sb = fixed(a, SIZE), fixed(b, SIZE)
     sizes = ctx.allowed[SIZE]
-    pairs = [(x, y) for x in sizes for y in sizes if (sa is None or x == sa)
-             and (sb is None or y == sb) and ((x > y) if rel == "bigger" else (x < y))]
+    pairs = [
+        (x, y)
+        for x in sizes
+        for y in sizes
+        if (sa is None or x == sa)
+        and (sb is None or y == sb)
+        and ((x > y) if rel == "bigger" else (x < y))
+    ]
     if not pairs:
         raise _Fail("no sizes for the relation")
     objs[i][SIZE], objs[j][SIZE] = ctx.pick(pairs)
@@ -1285,8 +1371,11 @@ def _force(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None:
     elif kind == "n":
         k, n = rule[2], len(objs)
         if rule[1] == "=":
-            target = k if want else ctx.pick(
-                [v for v in range(max(1, ctx.lo - 1), ctx.hi + 1) if v != k] or [0])
+            target = (
+                k
+                if want
+                else ctx.pick([v for v in range(max(1, ctx.lo - 1), ctx.hi + 1) if v != k] or [0])
+            )
         elif want:
             target = int(rng.integers(k, max(k, ctx.hi) + 1))
         else:
@@ -1329,8 +1418,9 @@ def _force(rule: Rule, objs: list[list[int]], want: bool, ctx: _Ctx) -> None:
         _force_rel(rule, objs, want, ctx)
 
 
-def _build_panel(rule: Rule, want: bool, ctx: _Ctx, *, base: list[list[int]] | None = None
-                 ) -> list[list[int]]:
+def _build_panel(
+    rule: Rule, want: bool, ctx: _Ctx, *, base: list[list[int]] | None = None
+) -> list[list[int]]:
     for _ in range(6):
         objs = [list(o) for o in base] if base is not None else _random_panel(ctx)
         try:
@@ -1366,8 +1456,14 @@ def _labels(vec: int, n_a: int, n_b: int, n_test: int) -> str:
 
 
 def _validity(
-    panels: list[list[list[int]]], rule: Rule, n_a: int, n_b: int, *, minimal: bool,
-    length: int | None = None, truth: int | None = None,
+    panels: list[list[list[int]]],
+    rule: Rule,
+    n_a: int,
+    n_b: int,
+    *,
+    minimal: bool,
+    length: int | None = None,
+    truth: int | None = None,
 ) -> tuple[str | None, Rule | None, dict[str, np.ndarray]]:
     """Reason to reject (or None), one offending rule and the separating rules.
 
@@ -1387,8 +1483,11 @@ def _validity(
     vv, ll = _all_sep(sep)
     bad = (vv & np.uint64(tm)) != np.uint64(h & tm)
     if np.any(bad):
-        return ("another rule as short separates the sets but classifies a test panel "
-                "otherwise"), _first_rule(sep, bad), sep
+        return (
+            ("another rule as short separates the sets but classifies a test panel otherwise"),
+            _first_rule(sep, bad),
+            sep,
+        )
     if minimal:
         bad = ll < length
         if np.any(bad):
@@ -1409,7 +1508,7 @@ def _first_rule(sep: Mapping[str, np.ndarray], bad: np.ndarray) -> Rule:
 
 def _discriminating(rule: Rule, other: Rule, ctx: _Ctx) -> tuple[bool, list[list[int]]] | None:
     """A panel on which ``rule`` and ``other`` disagree, and the truth of ``rule`` on it."""
-    for want in ((True, False) if ctx.rnd() < 0.5 else (False, True)):
+    for want in (True, False) if ctx.rnd() < 0.5 else (False, True):
         for _ in range(3):
             objs = _random_panel(ctx)
             try:
@@ -1443,18 +1542,37 @@ class ContrastFamily(Family):
     modes = ("select", "generate")
     params = (
         ParamSpec("length", "int", 3, "description length of the hidden rule", low=1, high=6),
-        ParamSpec("kind", "choice", "any", "featural or relational rule",
-                  options=("any", "featural", "relational")),
-        ParamSpec("attribute", "choice", "any", "attribute the rule is about",
-                  options=("any", *RULE_ATTRS, "count")),
-        ParamSpec("distractors", "int", 2, "irrelevant object attributes that vary",
-                  low=0, high=4),
-        ParamSpec("objects", "int", 4, "most objects per panel (panels hold objects-2..objects)",
-                  low=1, high=6),
+        ParamSpec(
+            "kind",
+            "choice",
+            "any",
+            "featural or relational rule",
+            options=("any", "featural", "relational"),
+        ),
+        ParamSpec(
+            "attribute",
+            "choice",
+            "any",
+            "attribute the rule is about",
+            options=("any", *RULE_ATTRS, "count"),
+        ),
+        ParamSpec("distractors", "int", 2, "irrelevant object attributes that vary", low=0, high=4),
+        ParamSpec(
+            "objects",
+            "int",
+            4,
+            "most objects per panel (panels hold objects-2..objects)",
+            low=1,
+            high=6,
+        ),
         ParamSpec("per_set", "int", 6, "panels in each of set A and set B", low=2, high=12),
         ParamSpec("n_test", "int", 4, "test panels to classify", low=2, high=10),
-        ParamSpec("minimal", "bool", True,
-                  "reject items where a shorter rule than the hidden one separates the sets"),
+        ParamSpec(
+            "minimal",
+            "bool",
+            True,
+            "reject items where a shorter rule than the hidden one separates the sets",
+        ),
     )
     factors = ("rule_length", "attribute", "relational", "distractors", "objects")
     distractor_schemes = {
@@ -1462,7 +1580,7 @@ class ContrastFamily(Family):
     }
     variant_operators = {
         "swap-sets": "exchange sets A and B; the rule becomes its negation (validity is "
-                     "checked up to the shorter of the rule and its negation)",
+        "checked up to the shorter of the rule and its negation)",
         "change-irrelevant": "redraw the values of the attributes the rule does not use",
         "change-surface": "swap two values of an attribute the rule names (e.g. two shapes)",
         "mirror": "mirror every panel left to right (left and right swap in the rule)",
@@ -1471,9 +1589,9 @@ class ContrastFamily(Family):
         "reversed-sets": "classified every test panel the other way (the negated rule)",
         "over-general": "applied a shorter, more general rule that also admits panels of set B",
         "over-specific": "applied a narrower rule that fits both sets but rejects some panels "
-                         "the hidden rule admits",
+        "the hidden rule admits",
         "irrelevant-attribute": "followed a rule about a salient attribute the hidden rule "
-                                "does not use",
+        "does not use",
         "other": "any other wrong response",
     }
     default_choices = 2
@@ -1499,17 +1617,25 @@ class ContrastFamily(Family):
         kinds = ["featural", "relational"] if kind == "any" else [kind]
         if objects < 2 and "relational" in kinds:
             if kind == "relational":
-                raise SpecError(f"field 'objects': got {objects}; accepted: at least 2 for "
-                                "relational rules.", field="objects")
+                raise SpecError(
+                    f"field 'objects': got {objects}; accepted: at least 2 for relational rules.",
+                    field="objects",
+                )
             kinds = ["featural"]
         attrs = [*RULE_ATTRS, "count"] if attr == "any" else [attr]
-        combos = [(k, a) for k in kinds for a in attrs if _template_ok(k, a, length)
-                  and not (a == "count" and objects < 2)]
+        combos = [
+            (k, a)
+            for k in kinds
+            for a in attrs
+            if _template_ok(k, a, length) and not (a == "count" and objects < 2)
+        ]
         if not combos:
             raise SpecError(
                 f"field 'length': got {length}; accepted: a length with a rule template for kind "
                 f"{kind} and attribute {attr} (featural 2-6, count 1-6, relational 2-6; not 3 "
-                "for two-valued edge/tilt; count needs objects >= 2).", field="length")
+                "for two-valued edge/tilt; count needs objects >= 2).",
+                field="length",
+            )
         k_kind, k_attr = combos[int(rng.integers(len(combos)))]
         hi = objects
         lo = max(1, objects - 2)
@@ -1523,26 +1649,48 @@ class ContrastFamily(Family):
         free = [a for a in OBJECT_ATTRS if a not in used]
         order = list(rng.permutation(len(free)))
         varied = set(used) | {free[int(i)] for i in order[: int(p["distractors"])]}
-        allowed = [list(range(c)) if (ATTRIBUTES[ai] in varied or ai >= ROW)
-                   else [int(rng.integers(c))] for ai, c in enumerate(CARD)]
+        allowed = [
+            list(range(c)) if (ATTRIBUTES[ai] in varied or ai >= ROW) else [int(rng.integers(c))]
+            for ai, c in enumerate(CARD)
+        ]
         ctx = _Ctx(rng, allowed, lo, hi, "size" in varied)
         return self._assemble(
-            rule, ctx, p, seed=seed, modes=modes, k_attr=k_attr,
+            rule,
+            ctx,
+            p,
+            seed=seed,
+            modes=modes,
+            k_attr=k_attr,
             relational=k_kind == "relational",
-            distractors=len(varied - used - {"position"}), minimal=bool(p["minimal"]),
+            distractors=len(varied - used - {"position"}),
+            minimal=bool(p["minimal"]),
         )
 
-    def _assemble(self, rule: Rule, ctx: _Ctx, p: Mapping[str, Any], *, seed: int,
-                  modes: Sequence[str], k_attr: str, relational: bool, distractors: int,
-                  minimal: bool) -> Item:
+    def _assemble(
+        self,
+        rule: Rule,
+        ctx: _Ctx,
+        p: Mapping[str, Any],
+        *,
+        seed: int,
+        modes: Sequence[str],
+        k_attr: str,
+        relational: bool,
+        distractors: int,
+        minimal: bool,
+    ) -> Item:
         per, n_test = int(p["per_set"]), int(p["n_test"])
         set_a = [_build_panel(rule, True, ctx) for _ in range(per)]
-        set_b = [(_near_miss(rule, ctx) if k % 2 == 0 else _build_panel(rule, False, ctx))
-                 for k in range(per)]
+        set_b = [
+            (_near_miss(rule, ctx) if k % 2 == 0 else _build_panel(rule, False, ctx))
+            for k in range(per)
+        ]
         n_a_test = int(ctx.rng.integers(1, n_test))
         tests = [_build_panel(rule, True, ctx) for _ in range(n_a_test)]
-        tests += [(_near_miss(rule, ctx) if k % 2 == 0 else _build_panel(rule, False, ctx))
-                  for k in range(n_test - n_a_test)]
+        tests += [
+            (_near_miss(rule, ctx) if k % 2 == 0 else _build_panel(rule, False, ctx))
+            for k in range(n_test - n_a_test)
+        ]
         order = ctx.rng.permutation(n_test)
         tests = [tests[int(i)] for i in order]
         # every panel was built and checked to be `want`: the rule's truth vector is known
@@ -1555,8 +1703,9 @@ class ContrastFamily(Family):
         checked = None
         kept: set[tuple[bool, int]] = set()  # panels swapped in by earlier repairs stay
         for _ in range(_REPAIRS + 2 * rule_length(rule) + 1):
-            reason, other, sep = _validity([*set_a, *set_b, *tests], rule, per, per,
-                                           minimal=minimal, truth=truth)
+            reason, other, sep = _validity(
+                [*set_a, *set_b, *tests], rule, per, per, minimal=minimal, truth=truth
+            )
             if reason is None:
                 checked = sep
                 break
@@ -1573,24 +1722,56 @@ class ContrastFamily(Family):
             target[k] = panel
         if checked is None:
             raise Rejected(reason or "no valid item")
-        factors = {"rule_length": rule_length(rule), "attribute": k_attr,
-                   "relational": relational, "distractors": distractors,
-                   "objects": int(p["objects"])}
-        return self._finish(rule, set_a, set_b, tests, params=p, factors=factors, seed=seed,
-                            modes=modes, minimal=minimal, checked=checked, truth=truth)
+        factors = {
+            "rule_length": rule_length(rule),
+            "attribute": k_attr,
+            "relational": relational,
+            "distractors": distractors,
+            "objects": int(p["objects"]),
+        }
+        return self._finish(
+            rule,
+            set_a,
+            set_b,
+            tests,
+            params=p,
+            factors=factors,
+            seed=seed,
+            modes=modes,
+            minimal=minimal,
+            checked=checked,
+            truth=truth,
+        )
 
-    def _finish(self, rule: Rule, set_a: list, set_b: list, tests: list, *,
-                params: Mapping[str, Any], factors: Mapping[str, Any], seed: int,
-                modes: Sequence[str], minimal: bool, variant_of: str | None = None,
-                variant_operator: str | None = None,
-                checked: dict[str, np.ndarray] | None = None,
-                truth: int | None = None) -> Item:
+    def _finish(
+        self,
+        rule: Rule,
+        set_a: list,
+        set_b: list,
+        tests: list,
+        *,
+        params: Mapping[str, Any],
+        factors: Mapping[str, Any],
+        seed: int,
+        modes: Sequence[str],
+        minimal: bool,
+        variant_of: str | None = None,
+        variant_operator: str | None = None,
+        checked: dict[str, np.ndarray] | None = None,
+        truth: int | None = None,
+    ) -> Item:
         set_a, set_b, tests = ([_hosts_first(p) for p in group] for group in (set_a, set_b, tests))
         panels = [*set_a, *set_b, *tests]
         sep = checked
         if sep is None:
-            reason, _, sep = _validity(panels, rule, len(set_a), len(set_b), minimal=minimal,
-                                       length=_check_length(rule, variant_operator))
+            reason, _, sep = _validity(
+                panels,
+                rule,
+                len(set_a),
+                len(set_b),
+                minimal=minimal,
+                length=_check_length(rule, variant_operator),
+            )
             if reason:
                 raise Rejected(reason)
         text = format_rule(rule)
@@ -1609,28 +1790,42 @@ class ContrastFamily(Family):
                 break
         labels = _labels(h, len(set_a), len(set_b), len(tests))
         stimulus = {
-            "sets": {"A": [[_obj_code(o) for o in pnl] for pnl in set_a],
-                     "B": [[_obj_code(o) for o in pnl] for pnl in set_b]},
+            "sets": {
+                "A": [[_obj_code(o) for o in pnl] for pnl in set_a],
+                "B": [[_obj_code(o) for o in pnl] for pnl in set_b],
+            },
             "test": [[_obj_code(o) for o in pnl] for pnl in tests],
         }
         select = "select" in modes
         return Item.create(
-            prefix=self.prefix, family=self.name, family_version=self.version,
-            params=dict(params), factors=dict(factors), modes=list(modes), stimulus=stimulus,
-            answer={"rule": text, "labels": labels}, accepted=accepted,
+            prefix=self.prefix,
+            family=self.name,
+            family_version=self.version,
+            params=dict(params),
+            factors=dict(factors),
+            modes=list(modes),
+            stimulus=stimulus,
+            answer={"rule": text, "labels": labels},
+            accepted=accepted,
             choices=None,
             distractor_scheme="per-panel" if select else None,
-            variant_of=variant_of, variant_operator=variant_operator, seed=seed,
+            variant_of=variant_of,
+            variant_operator=variant_operator,
+            seed=seed,
         )
 
     # -- variants --------------------------------------------------------------------------------
     def vary(self, item: Item, operator: str, rng: np.random.Generator) -> Item:
         if operator not in self.variant_operators:
-            raise SpecError(f"field 'operator': got {operator!r}; accepted: one of "
-                            + ", ".join(self.variant_operators) + ".", field="operator")
+            raise SpecError(
+                f"field 'operator': got {operator!r}; accepted: one of "
+                + ", ".join(self.variant_operators)
+                + ".",
+                field="operator",
+            )
         rule = parse_rule(item.answer["rule"])
         panels, n_a, n_b = panels_from_stimulus(item.stimulus)
-        set_a, set_b, tests = panels[:n_a], panels[n_a:n_a + n_b], panels[n_a + n_b:]
+        set_a, set_b, tests = panels[:n_a], panels[n_a : n_a + n_b], panels[n_a + n_b :]
         used = relevant_attributes(rule)
         factors = dict(item.factors)
         if operator == "swap-sets":
@@ -1645,8 +1840,11 @@ class ContrastFamily(Family):
         elif operator == "change-surface":
             # attributes whose values the rule names, unless a relation reads their order
             rels = set(_relations_of(rule))
-            blocked = ({SIZE} if rels & {"bigger", "inside"} else set()) | (
-                {ROW} if "above" in rels else set()) | ({COL} if "leftof" in rels else set())
+            blocked = (
+                ({SIZE} if rels & {"bigger", "inside"} else set())
+                | ({ROW} if "above" in rels else set())
+                | ({COL} if "leftof" in rels else set())
+            )
             named = sorted({ATOMS[a][0] for a in _atoms_of(rule)} - blocked)
             if not named:
                 raise Rejected("no attribute value in the rule can change")
@@ -1658,8 +1856,14 @@ class ContrastFamily(Family):
             v2 = pool[int(rng.integers(len(pool)))]
             perm = list(range(CARD[ai]))
             perm[v1], perm[v2] = v2, v1
-            rule = _map_atoms(rule, lambda a: ATOM_INDEX[VALUES[ATTRIBUTES[ai]][perm[
-                ATOMS[a][1]]]] if ATOMS[a][0] == ai else a)
+            rule = _map_atoms(
+                rule,
+                lambda a: (
+                    ATOM_INDEX[VALUES[ATTRIBUTES[ai]][perm[ATOMS[a][1]]]]
+                    if ATOMS[a][0] == ai
+                    else a
+                ),
+            )
             for pnl in panels:
                 for o in pnl:
                     o[ai] = perm[o[ai]]
@@ -1689,8 +1893,16 @@ class ContrastFamily(Family):
                         if pnl[c][SIZE] == 0:
                             raise Rejected("nesting broken by new sizes")
         return self._finish(
-            _canon(rule), set_a, set_b, tests, params=item.params, factors=factors,
-            seed=item.seed, modes=item.modes, minimal=False, variant_of=item.id,
+            _canon(rule),
+            set_a,
+            set_b,
+            tests,
+            params=item.params,
+            factors=factors,
+            seed=item.seed,
+            modes=item.modes,
+            minimal=False,
+            variant_of=item.id,
             variant_operator=operator,
         )
 
@@ -1705,8 +1917,9 @@ class ContrastFamily(Family):
         h = rule_vector(rule, panels)
         if _labels(h, n_a, n_b, n_test) != item.answer["labels"]:
             problems.append("stored labels differ from the rule's classification")
-        reason, _, _ = _validity(panels, rule, n_a, n_b, minimal=False,
-                                 length=_check_length(rule, item.variant_operator))
+        reason, _, _ = _validity(
+            panels, rule, n_a, n_b, minimal=False, length=_check_length(rule, item.variant_operator)
+        )
         if reason:
             problems.append(reason)
         for k, pnl in enumerate(panels):
@@ -1717,8 +1930,13 @@ class ContrastFamily(Family):
                 problems.append(f"panel {k}: two objects share a cell")
             for o in pnl:
                 c = o[INSIDE]
-                if c >= 0 and (c >= len(pnl) or pnl[c][INSIDE] >= 0 or pnl[c][SIZE] <= o[SIZE]
-                               or pnl[c][ROW] != o[ROW] or pnl[c][COL] != o[COL]):
+                if c >= 0 and (
+                    c >= len(pnl)
+                    or pnl[c][INSIDE] >= 0
+                    or pnl[c][SIZE] <= o[SIZE]
+                    or pnl[c][ROW] != o[ROW]
+                    or pnl[c][COL] != o[COL]
+                ):
                     problems.append(f"panel {k}: an object is nested in an invalid container")
         return problems
 
@@ -1738,7 +1956,9 @@ class ContrastFamily(Family):
             if key not in response:
                 raise ResponseError(
                     f"item {item.id}: field 'response': got {response!r}; accepted: a str, or a "
-                    f"mapping with '{key}'.", field="response")
+                    f"mapping with '{key}'.",
+                    field="response",
+                )
             response = response[key]
         if mode == "select":
             if isinstance(response, list | tuple):
@@ -1755,14 +1975,17 @@ class ContrastFamily(Family):
         if not isinstance(response, str):
             raise ResponseError(
                 f"item {item.id}: field 'response': got {response!r}; accepted: a rule in the "
-                "contrast notation (a str).", field="response")
+                "contrast notation (a str).",
+                field="response",
+            )
         try:
             return format_rule(parse_rule(response))
         except ResponseError as err:
             raise ResponseError(
                 f"item {item.id}: the response is not a rule in the contrast notation, so it is "
                 f"not automatically scorable (keep it for hand coding). {err}",
-                field="response") from None
+                field="response",
+            ) from None
 
     def score(self, item: Item, response: Any, mode: str) -> Score:
         resp = self.normalize(item, response, mode)
@@ -1774,7 +1997,8 @@ class ContrastFamily(Family):
             return Score(True, None, "intended")
         panels, _, _ = panels_from_stimulus(item.stimulus)
         if rule_vector(parse_rule(resp), panels) == rule_vector(
-                parse_rule(item.answer["rule"]), panels):
+            parse_rule(item.answer["rule"]), panels
+        ):
             for acc in item.accepted:
                 if acc["answer"] == resp:
                     return Score(True, None, acc["label"])
@@ -1799,12 +2023,16 @@ class ContrastFamily(Family):
         gen = ((lits & hu) == hu) & (lens < length) & ((lits & np.uint64(bm)) != 0)
         # over-specific: the rule narrowed by a literal true of all A panels
         spec_ok = ((lits & np.uint64(am)) == np.uint64(am)) & (
-            (lits & hu & np.uint64(tm)) != (hu & np.uint64(tm)))
+            (lits & hu & np.uint64(tm)) != (hu & np.uint64(tm))
+        )
         spec_vecs = lits[spec_ok] & hu
         # irrelevant: short literals about attributes the rule does not use, best fit to training
         used = relevant_attributes(rule)
-        irr_idx = [k for k in range(len(lits)) if lens[k] <= 3
-                   and _lit_uses_only_irrelevant(g.literal(k), used)]
+        irr_idx = [
+            k
+            for k in range(len(lits))
+            if lens[k] <= 3 and _lit_uses_only_irrelevant(g.literal(k), used)
+        ]
         labels: dict[str, set[str]] = {}
 
         def lab(vs: np.ndarray) -> set[str]:
@@ -1823,10 +2051,20 @@ class ContrastFamily(Family):
         else:
             labels["irrelevant-attribute"] = set()
             irr_best = np.zeros(0, dtype=np.int64)
-        return {"labels": labels, "h": h, "panels": panels, "used": used, "length": length,
-                "general": np.flatnonzero(gen), "specific": np.flatnonzero(spec_ok),
-                "irrelevant": irr_best, "rule": rule,
-                "masks": (am, bm, tm), "sizes": (n_a, n_b, n_test), "full": full}
+        return {
+            "labels": labels,
+            "h": h,
+            "panels": panels,
+            "used": used,
+            "length": length,
+            "general": np.flatnonzero(gen),
+            "specific": np.flatnonzero(spec_ok),
+            "irrelevant": irr_best,
+            "rule": rule,
+            "masks": (am, bm, tm),
+            "sizes": (n_a, n_b, n_test),
+            "full": full,
+        }
 
     _PRIORITY = ("reversed-sets", "over-general", "over-specific", "irrelevant-attribute")
 
@@ -1871,18 +2109,24 @@ class ContrastFamily(Family):
         rule = rel["rule"]
         g = grammar()
         kinds: dict[str, list[str]] = {"reversed-sets": [format_rule(_negate(rule))]}
-        for name, idx in (("over-general", rel["general"]), ("irrelevant-attribute",
-                                                               rel["irrelevant"])):
+        for name, idx in (
+            ("over-general", rel["general"]),
+            ("irrelevant-attribute", rel["irrelevant"]),
+        ):
             if len(idx):
-                kinds[name] = [format_rule(_canon(g.literal(int(k))))
-                               for k in rng.choice(idx, min(3, len(idx)), replace=False)]
+                kinds[name] = [
+                    format_rule(_canon(g.literal(int(k))))
+                    for k in rng.choice(idx, min(3, len(idx)), replace=False)
+                ]
         if len(rel["specific"]):
             kinds["over-specific"] = [
                 format_rule(_canon(("and", (rule, g.literal(int(k))))))
-                for k in rng.choice(rel["specific"], min(3, len(rel["specific"])), replace=False)]
+                for k in rng.choice(rel["specific"], min(3, len(rel["specific"])), replace=False)
+            ]
         for name in list(kinds):  # a rule equivalent on every panel would be correct
-            kinds[name] = [r for r in kinds[name]
-                           if rule_vector(parse_rule(r), rel["panels"]) != rel["h"]]
+            kinds[name] = [
+                r for r in kinds[name] if rule_vector(parse_rule(r), rel["panels"]) != rel["h"]
+            ]
             if not kinds[name]:
                 del kinds[name]
         names = sorted(kinds)
@@ -1894,8 +2138,13 @@ class ContrastFamily(Family):
         body = re.sub(r"```[a-zA-Z]*", "\n", text).replace("`", " ")
         if mode == "select":
             n = self._n_test(item)
-            tagged = dict(re.findall(r"\bT\s*(\d+)\s*(?:[:=)\-]|is|->|→)?\s*(?:set\s*)?([AB])\b",
-                                     body, flags=re.IGNORECASE))
+            tagged = dict(
+                re.findall(
+                    r"\bT\s*(\d+)\s*(?:[:=)\-]|is|->|→)?\s*(?:set\s*)?([AB])\b",
+                    body,
+                    flags=re.IGNORECASE,
+                )
+            )
             if all(str(k) in tagged for k in range(1, n + 1)):
                 return "".join(tagged[str(k)].upper() for k in range(1, n + 1))
             runs = re.findall(r"(?<![A-Za-z])([AB](?:[ \t,;/|-]*[AB])*)(?![A-Za-z])", body)
@@ -1908,7 +2157,8 @@ class ContrastFamily(Family):
                 return hits[-1]
             raise ResponseError(
                 f"item {item.id}: no run of {n} letters A/B (one per test panel) found in reply.",
-                field="response")
+                field="response",
+            )
         lines = [ln.strip().strip("\"'*") for ln in body.splitlines() if ln.strip()]
         for line in reversed(lines):
             cand = re.sub(r"^(?:final\s+)?(?:rule|answer)\s*[:=]\s*", "", line, flags=re.I)
@@ -1917,20 +2167,26 @@ class ContrastFamily(Family):
             if found is not None:
                 return found
         raise ResponseError(
-            f"item {item.id}: no rule in the contrast notation found in reply.", field="response")
+            f"item {item.id}: no rule in the contrast notation found in reply.", field="response"
+        )
 
     # -- rendering -------------------------------------------------------------------------------
     def render_structured(self, item: Item, mode: str) -> dict[str, Any]:
         st = item.stimulus
         view: dict[str, Any] = {
-            "item": item.id, "family": self.name, "mode": mode,
+            "item": item.id,
+            "family": self.name,
+            "mode": mode,
             "sets": {s: [[_obj_dict(o) for o in pnl] for pnl in st["sets"][s]] for s in "AB"},
             "test": [[_obj_dict(o) for o in pnl] for pnl in st["test"]],
             "grid": {"rows": list(VALUES["row"]), "cols": list(VALUES["col"])},
             "attributes": {a: list(VALUES[a]) for a in ATTRIBUTES},
             "labels": ["A", "B"],
-            "answer_format": (f"{len(st['test'])} letters A or B, one per test panel in order"
-                              if mode == "select" else "a rule in the contrast notation"),
+            "answer_format": (
+                f"{len(st['test'])} letters A or B, one per test panel in order"
+                if mode == "select"
+                else "a rule in the contrast notation"
+            ),
         }
         if mode == "select":
             view["choices"] = ["A", "B"]  # the labels offered for every test panel
@@ -1939,10 +2195,15 @@ class ContrastFamily(Family):
     def _panel_words(self, objs: Sequence[Any]) -> str:
         parts = []
         for k, o in enumerate((_obj_dict(x) for x in objs), start=1):
-            where = (f"inside object {o['inside'] + 1}" if o["inside"] is not None
-                     else f"cell {o['row']}-{o['col']}")
-            parts.append(f"({k}) {o['size']} {o['shade']} {o['shape']}, {o['edge']} edge, "
-                         f"{o['tilt']}, {where}")
+            where = (
+                f"inside object {o['inside'] + 1}"
+                if o["inside"] is not None
+                else f"cell {o['row']}-{o['col']}"
+            )
+            parts.append(
+                f"({k}) {o['size']} {o['shade']} {o['shape']}, {o['edge']} edge, "
+                f"{o['tilt']}, {where}"
+            )
         return "; ".join(parts)
 
     def render_text(self, item: Item, mode: str) -> str:
@@ -1965,7 +2226,8 @@ class ContrastFamily(Family):
             lines.append(
                 f"Classify each test panel T1..T{n} as A (follows the rule) or B (does not). "
                 f"Answer with exactly {n} letters in order on the last line, as in "
-                f"{_example_labels(n)}.")
+                f"{_example_labels(n)}."
+            )
         else:
             lines += [
                 "State the hidden rule in this notation:",
@@ -1998,10 +2260,26 @@ class ContrastFamily(Family):
         ax.set_axis_off()
         top_h = 0.62 if rows_t == 1 else 0.5
         cell = min(0.45 / cols_set, (top_h - 0.06) / rows_set)
-        ax.text(0.25, 0.975, "Set A", ha="center", va="top", fontsize=11, weight="bold",
-                color=_SET_COLOUR["A"])
-        ax.text(0.75, 0.975, "Set B", ha="center", va="top", fontsize=11, weight="bold",
-                color=_SET_COLOUR["B"])
+        ax.text(
+            0.25,
+            0.975,
+            "Set A",
+            ha="center",
+            va="top",
+            fontsize=11,
+            weight="bold",
+            color=_SET_COLOUR["A"],
+        )
+        ax.text(
+            0.75,
+            0.975,
+            "Set B",
+            ha="center",
+            va="top",
+            fontsize=11,
+            weight="bold",
+            color=_SET_COLOUR["B"],
+        )
         boxes = []
         for gi, (name, pnls) in enumerate(groups[:2]):
             x0 = 0.03 + 0.5 * gi
@@ -2009,8 +2287,16 @@ class ContrastFamily(Family):
                 r, c = divmod(k, cols_set)
                 boxes.append((name, k, x0 + c * cell, 0.93 - (r + 1) * cell, cell))
         y_test = 0.93 - rows_set * cell - 0.06
-        ax.text(0.5, y_test + 0.035, "Test panels: A or B?", ha="center", va="center",
-                fontsize=11, weight="bold", color=_SET_COLOUR["T"])
+        ax.text(
+            0.5,
+            y_test + 0.035,
+            "Test panels: A or B?",
+            ha="center",
+            va="center",
+            fontsize=11,
+            weight="bold",
+            color=_SET_COLOUR["T"],
+        )
         t_cell = min(0.94 / cols_t, (y_test - 0.02) / rows_t)
         for k in range(n_t):
             r, c = divmod(k, cols_t)
@@ -2018,18 +2304,41 @@ class ContrastFamily(Family):
             boxes.append(("T", k, x0, y_test - (r + 1) * t_cell, t_cell))
         for name, k, x, y, s in boxes:
             pnls = dict(groups)[name]
-            self._draw_panel(ax, patches, pnls[k], x, y, s, f"{name}{k + 1}",
-                             _SET_COLOUR[name])
+            self._draw_panel(ax, patches, pnls[k], x, y, s, f"{name}{k + 1}", _SET_COLOUR[name])
 
-    def _draw_panel(self, ax: Any, patches: Any, objs: Sequence[Mapping[str, Any]], x: float,
-                    y: float, s: float, label: str, colour: str) -> None:
+    def _draw_panel(
+        self,
+        ax: Any,
+        patches: Any,
+        objs: Sequence[Mapping[str, Any]],
+        x: float,
+        y: float,
+        s: float,
+        label: str,
+        colour: str,
+    ) -> None:
         pad = s * 0.06
         w = s - 2 * pad
-        ax.add_patch(patches.Rectangle((x + pad, y + pad), w, w, fill=False, lw=1.4,
-                                       edgecolor=colour, linestyle="-" if label[0] != "B"
-                                       else (0, (4, 1.5))))
-        ax.text(x + pad + w * 0.03, y + pad + w * 0.97, label, fontsize=6, va="top", ha="left",
-                color=colour)
+        ax.add_patch(
+            patches.Rectangle(
+                (x + pad, y + pad),
+                w,
+                w,
+                fill=False,
+                lw=1.4,
+                edgecolor=colour,
+                linestyle="-" if label[0] != "B" else (0, (4, 1.5)),
+            )
+        )
+        ax.text(
+            x + pad + w * 0.03,
+            y + pad + w * 0.97,
+            label,
+            fontsize=6,
+            va="top",
+            ha="left",
+            color=colour,
+        )
         c = w / 3
         scale = {"small": 0.2, "medium": 0.3, "large": 0.42}
         dicts = [_obj_dict(x) for x in objs]
@@ -2044,8 +2353,9 @@ class ContrastFamily(Family):
                 rad = min(rad, scale[host["size"]] * c * 0.45)
             self._shape(ax, patches, o, cx, cy, rad)
 
-    def _shape(self, ax: Any, patches: Any, o: Mapping[str, Any], cx: float, cy: float,
-               r: float) -> None:
+    def _shape(
+        self, ax: Any, patches: Any, o: Mapping[str, Any], cx: float, cy: float, r: float
+    ) -> None:
         import math
 
         ang = math.radians(45 if o["tilt"] == "tilted" else 0)
@@ -2057,29 +2367,56 @@ class ContrastFamily(Family):
             pts = [(-1, -0.8), (1, -0.8), (0, 1)]
         elif shape == "cross":
             t = 0.35
-            pts = [(-t, 1), (t, 1), (t, t), (1, t), (1, -t), (t, -t), (t, -1), (-t, -1),
-                   (-t, -t), (-1, -t), (-1, t), (-t, t)]
+            pts = [
+                (-t, 1),
+                (t, 1),
+                (t, t),
+                (1, t),
+                (1, -t),
+                (t, -t),
+                (t, -1),
+                (-t, -1),
+                (-t, -t),
+                (-1, -t),
+                (-1, t),
+                (-t, t),
+            ]
         else:  # dome: a half disc on a flat base
-            pts = [(math.cos(math.pi * k / 16), math.sin(math.pi * k / 16) * 1.0 - 0.4)
-                   for k in range(17)]
-        rot = [(px * math.cos(ang) - py * math.sin(ang), px * math.sin(ang) + py * math.cos(ang))
-               for px, py in pts]
+            pts = [
+                (math.cos(math.pi * k / 16), math.sin(math.pi * k / 16) * 1.0 - 0.4)
+                for k in range(17)
+            ]
+        rot = [
+            (px * math.cos(ang) - py * math.sin(ang), px * math.sin(ang) + py * math.cos(ang))
+            for px, py in pts
+        ]
         xy = [(cx + px * r, cy + py * r) for px, py in rot]
         fill = _FILL[VALUES["shade"].index(o["shade"])]
         if o["edge"] == "dashed":
             # a dashed outline set slightly outside the shape reads on light and dark fills alike
             ax.add_patch(patches.Polygon(xy, closed=True, facecolor=fill, edgecolor="none"))
             halo = [(cx + px * r * 1.22, cy + py * r * 1.22) for px, py in rot]
-            ax.add_patch(patches.Polygon(halo, closed=True, fill=False, edgecolor="#111111",
-                                         lw=1.0, linestyle=(0, (2.5, 1.5))))
+            ax.add_patch(
+                patches.Polygon(
+                    halo,
+                    closed=True,
+                    fill=False,
+                    edgecolor="#111111",
+                    lw=1.0,
+                    linestyle=(0, (2.5, 1.5)),
+                )
+            )
         else:
-            ax.add_patch(patches.Polygon(xy, closed=True, facecolor=fill, edgecolor="#111111",
-                                         lw=1.1))
+            ax.add_patch(
+                patches.Polygon(xy, closed=True, facecolor=fill, edgecolor="#111111", lw=1.1)
+            )
 
 
 _RULE_START = re.compile(
     r"(?:~\s*|\(\s*|\bnot\s+)*(?:\b(?:every|some|no|all|none|n|count|above|leftof|bigger|"
-    r"inside)\s*(?:\[|>=|=)|#\s*\[)", re.I)
+    r"inside)\s*(?:\[|>=|=)|#\s*\[)",
+    re.I,
+)
 
 
 def _rule_in(text: str) -> str | None:
@@ -2090,7 +2427,7 @@ def _rule_in(text: str) -> str | None:
         pass
     spans: list[tuple[int, int, str]] = []
     for m in _RULE_START.finditer(text):
-        rest = text[m.start():]
+        rest = text[m.start() :]
         for e in reversed([x.end() for x in re.finditer(r"[\])\d]", rest)]):
             try:
                 spans.append((m.start(), m.start() + e, format_rule(parse_rule(rest[:e]))))
@@ -2098,8 +2435,9 @@ def _rule_in(text: str) -> str | None:
             except ResponseError:
                 continue
     # keep maximal spans (not inside another), then take the last one
-    outer = [sp for sp in spans if not any(o[0] <= sp[0] and sp[1] <= o[1] and o != sp
-                                          for o in spans)]
+    outer = [
+        sp for sp in spans if not any(o[0] <= sp[0] and sp[1] <= o[1] and o != sp for o in spans)
+    ]
     return outer[-1][2] if outer else None
 
 
@@ -2149,8 +2487,12 @@ def _map_atoms(rule: Rule, f: Any) -> Rule:
     if kind == "#":
         return ("#", f(rule[1]), rule[2])
     if kind == "r":
-        return ("r", rule[1], None if rule[2] is None else f(rule[2]),
-                None if rule[3] is None else f(rule[3]))
+        return (
+            "r",
+            rule[1],
+            None if rule[2] is None else f(rule[2]),
+            None if rule[3] is None else f(rule[3]),
+        )
     if kind == "not":
         return ("not", _map_atoms(rule[1], f))
     if kind == "and":
@@ -2176,4 +2518,3 @@ def _mirror_rule(rule: Rule) -> Rule:
 
 
 register(ContrastFamily())
-
