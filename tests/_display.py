@@ -340,6 +340,11 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
         else:
             d.key(str(k))
         return {"response": k, "correct": True}
+    if fam == "matrices":  # generate: pick every attribute of the missing panel
+        for attr, val in item.answer.items():
+            d.click(f"attr:{attr}={val}")
+        d.click("submit")
+        return {"response": item.answer, "correct": True}
     if fam == "strings":
         text = item.answer
         if all(ch.isascii() and ch.isalnum() for ch in text):
@@ -399,14 +404,20 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
 
 
 def play(
-    d: Driver, bank: Any, *, consent: str = "y", stop_after: int | None = None
+    d: Driver,
+    bank: Any,
+    *,
+    consent: str = "y",
+    stop_after: int | None = None,
+    feedback: list[str] | None = None,
 ) -> list[dict[str, Any]]:
     """Go through a session answering every item correctly; return the expected trial rows.
 
     Practice items are answered too (their rows are not logged). Stops (without ending the
-    session) after ``stop_after`` logged trials when given.
+    session) after ``stop_after`` logged trials when given. Feedback lines go to ``feedback``.
     """
     expected: list[dict[str, Any]] = []
+    feedback = [] if feedback is None else feedback
     step = 0
     while True:
         s = d.wait(None)
@@ -418,8 +429,7 @@ def play(
             if stop_after is not None and len(expected) >= stop_after:
                 return expected
             item = bank[s["item"]]
-            mode = "select" if s["block"] in ("figures", "sets") else "generate"
-            exp = answer(d, item, mode, step=step)
+            exp = answer(d, item, s["mode"], step=step)
             step += 1
             if s["trial"] is not None:
                 exp.update(trial=s["trial"], item=item.id)
@@ -427,6 +437,9 @@ def play(
         elif s["screen"] == "end":
             d.key("space")
             return expected
+        elif s["screen"] == "feedback":
+            feedback.append(s["text"].split("\n")[0])
+            d.key("space")
         else:  # instructions, feedback, break
             d.key("space")
 

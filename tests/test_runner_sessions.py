@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 
 import pytest
-from _display import Driver, make_runner_study, play, x_display  # noqa: F401
+from _display import Driver, answer, make_runner_study, play, x_display  # noqa: F401
 from twofold.study import load_study, read_sidecar, read_trials
 
 pytestmark = pytest.mark.display
@@ -28,10 +28,12 @@ def study(tmp_path_factory):
 def test_full_session_every_family_screen(x_display, study, tmp_path):  # noqa: F811
     st, bank = study
     d = Driver(x_display, st.file, "P001", tmp_path)
-    expected = play(d, bank)
+    feedback: list[str] = []
+    expected = play(d, bank, feedback=feedback)
     rc, err = d.finish()
     assert rc == 0, err
     assert "ethics board" in err and "data-protection law" in err  # the start banner
+    assert feedback == ["Correct."]  # the practice item, answered correctly
     df = read_trials(st.logs_dir / "human" / "P001.csv")
     assert list(df["trial"]) == list(range(len(expected))) == list(range(9))
     families = set(df["family"])
@@ -97,3 +99,94 @@ def test_escape_confirm_then_resume(x_display, study, tmp_path):  # noqa: F811
     assert side["status"] == "complete"
     assert side["interruptions"][0]["previous_status"] == "aborted"
     assert side["interruptions"][0]["next_trial"] == len(first)
+
+
+OTHER_BANK = """
+[bank.spec]
+seed = 5
+[bank.spec.families.matrices]
+n = 2
+modes = ["generate", "select"]
+[bank.spec.families.strings]
+n = 3
+modes = ["select", "generate"]
+[bank.spec.families.grids]
+n = 2
+modes = ["select", "generate"]
+[bank.spec.families.grids.params]
+size = 4
+"""
+
+OTHER_BLOCKS = """
+[[blocks]]
+name = "panels"
+families = ["matrices"]
+mode = "generate"
+instructions = "instructions.txt"
+
+[[blocks]]
+name = "mixed"
+items = {mixed}
+mode = "select"
+instructions = "instructions.txt"
+
+[[blocks]]
+name = "quick"
+items = {late}
+mode = "select"
+instructions = "instructions.txt"
+time_limit_s = 0.5
+
+[forms]
+order = "fixed"
+break_every = 2
+break_between_blocks = false
+"""
+
+
+def test_other_modes_time_limit_and_breaks(x_display, tmp_path):  # noqa: F811
+    """Matrices panel builder, strings and grids choices, a timed-out item, breaks."""
+    from twofold.study.forms import build_forms, write_forms
+
+    first = '[[blocks]]\nname = "x"\nfamilies = ["matrices"]\ninstructions = "instructions.txt"\n'
+    path = make_runner_study(tmp_path / "o", OTHER_BANK + first, n_forms=1)
+    bank = load_study(path).bank()
+    strings = [it.id for it in bank if it.family == "strings"]
+    mixed = strings[:2] + [it.id for it in bank if it.family == "grids"]
+    late = strings[2]
+    text = path.read_text("utf-8").replace(
+        first, OTHER_BLOCKS.format(mixed=json.dumps(mixed), late=json.dumps([late]))
+    )
+    path.write_text(text, "utf-8")
+    st = load_study(path)
+    write_forms(st, build_forms(st, 1))
+    d = Driver(x_display, st.file, "P001", tmp_path)
+    breaks, expected = 0, []
+    while True:
+        s = d.wait(None)
+        if s["screen"] == "trial" and s["block"] == "quick":
+            continue  # no answer: the item times out
+        if s["screen"] == "trial":
+            exp = answer(d, bank[s["item"]], s["mode"], step=len(expected))
+            exp.update(trial=s["trial"], item=s["item"])
+            expected.append(exp)
+        elif s["screen"] == "end":
+            d.key("space")
+            break
+        else:
+            breaks += s["screen"] == "break"
+            d.key("y" if s["screen"] == "consent" else "space")
+    rc, err = d.finish()
+    assert rc == 0, err
+    df = read_trials(st.logs_dir / "human" / "P001.csv")
+    ok, late_row = df.iloc[:-1], df.iloc[-1]
+    assert list(ok["mode"]) == ["generate"] * 2 + ["select"] * 4
+    assert set(ok["family"]) == {"matrices", "strings", "grids"}
+    assert ok["correct"].all() and (ok["status"] == "ok").all()
+    for row, exp in zip(ok.to_dict("records"), expected, strict=True):
+        assert json.loads(row["response"]) == exp["response"]
+    assert late_row["status"] == "timeout" and late_row["item"] == late
+    assert late_row["rt_ms"] != late_row["rt_ms"]  # NaN: no response
+    assert late_row["response"] is None
+    # break_every = 2 within a block: after the 2nd item of "mixed" (4 items)
+    assert breaks == 1

@@ -244,7 +244,7 @@ class _Session:
         while True:
             stim.draw()
             onset = self.win.flip()
-            self.probe(name, onset)
+            self.probe(name, onset, text=text[:200])
             while True:
                 for k in self.keys(onset):
                     if k.name == "escape" and escape:
@@ -331,7 +331,13 @@ class _Session:
             last = onset
         # the probe (tests only) goes out once the loop is ready to take input
         self.probe(
-            "trial", onset, trial=trial, block=block, item=screen.item.id, targets=screen.targets
+            "trial",
+            onset,
+            trial=trial,
+            block=block,
+            item=screen.item.id,
+            mode=screen.mode,
+            targets=screen.targets,
         )
         answer, press_t, dirty = None, 0.0, False
         while answer is None:

@@ -482,11 +482,13 @@ class MatricesScreen(Screen, ChoiceMixin):
         self.pick: dict[str, Any] = {}
         self.opt_buttons: dict[tuple[str, Any], Button] = {}
         x_left, y = self.w * 0.02, self.h / 2 - 70
+        most = max((len(v) for v in self.attrs.values()), default=1)
+        step = min(80.0, (self.w / 2 - x_left - 125) / most)  # option buttons fit the half
         for a, vals in self.attrs.items():
-            static.append(_text(self.ctx, a, (x_left + 55, y), height=20, color=DIM))
+            static.append(_text(self.ctx, a, (x_left + 50, y), height=18, color=DIM))
             for j, val in enumerate(vals):
-                pos = (x_left + 140 + j * 78, y)
-                b = Button(self.ctx, str(val), pos, (74, 36), height=15)
+                pos = (x_left + 105 + step / 2 + j * step, y)
+                b = Button(self.ctx, str(val), pos, (step - 5, 36), height=min(15, step / 5.2))
                 self.opt_buttons[(a, val)] = b
                 static += b.stims()
                 self.targets[f"attr:{a}={val}"] = pos
