@@ -70,7 +70,7 @@ class Button:
         size: tuple[float, float],
         *,
         height: float = 22,
-        fill: str = PANEL,
+        fill: str | None = PANEL,
         edge: str = ACCENT,
     ):
         v = ctx.visual
@@ -441,7 +441,7 @@ class MatricesScreen(Screen, ChoiceMixin):
         maxc = max([int(p.get("count", 1)) for p in pool] + [1])
         self.maxc = maxc
         select = self.mode == "select"
-        side = min(self.h * (0.17 if select else 0.2), self.w * 0.16)
+        side = min(self.h * (0.15 if select else 0.2), self.w * (0.14 if select else 0.16))
         top = self.h / 2 - side * 0.75 - 10
         x0 = -side * 1.05 if select else -self.w * 0.22 - side * 1.05
         static: list[Any] = []
@@ -458,20 +458,20 @@ class MatricesScreen(Screen, ChoiceMixin):
             ytop = top - 3 * side * 1.05 - cs * 0.2
             for k, ch in enumerate(choices):
                 rr, cc = divmod(k, per_row)
-                cx = (cc - (per_row - 1) / 2) * cs * 1.12
+                cx = (cc - (per_row - 1) / 2) * cs * 1.2
                 cy = ytop - rr * cs * 1.2
                 static += _panel_stims(self.ctx, ch, (cx, cy), cs, maxc)
                 static.append(
                     _text(
                         self.ctx,
                         str(k + 1),
-                        (cx - cs / 2 + 12, cy + cs / 2 - 14),
+                        (cx - cs / 2 - 12, cy + cs / 2 - 10),  # outside, by the top left
                         height=18,
-                        color="#20242b",
+                        color=TEXT,
                         bold=True,
                     )
                 )
-                b = Button(self.ctx, "", (cx, cy), (cs, cs))
+                b = Button(self.ctx, "", (cx, cy), (cs + 6, cs + 6), fill=None)  # a frame only
                 self.buttons[f"choice:{k + 1}"] = b
                 self.targets[f"choice:{k + 1}"] = (cx, cy)
             return static
@@ -586,7 +586,9 @@ class GridsScreen(Screen, ChoiceMixin):
                 if gv.stim is not None:
                     static.append(gv.stim)
                 static.append(_text(ctx, str(k + 1), (cx, cy + cb * 0.5), height=16, color=TEXT))
-                self.buttons[f"choice:{k + 1}"] = Button(ctx, "", (cx, cy), (cb * 0.95, cb * 0.95))
+                self.buttons[f"choice:{k + 1}"] = Button(
+                    ctx, "", (cx, cy), (cb * 0.95, cb * 0.95), fill=None
+                )
                 self.targets[f"choice:{k + 1}"] = (cx, cy)
             return static
         self.help_text = (
