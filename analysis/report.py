@@ -148,8 +148,15 @@ def build_report(
     groups = sorted(machines["group"].unique()) if len(machines) else []
 
     # -- bank audit ------
-    audit = audit_bank(bank, picture_sample=3)
-    write_json_atomic(out / "audit.json", json.loads(json.dumps(audit, default=str)))
+    audit_path = results / "audit.json"
+    if (
+        audit_path.exists()
+        and json.loads(audit_path.read_text("utf-8")).get("bank_hash") == bank.hash
+    ):
+        audit = json.loads(audit_path.read_text("utf-8"))
+    else:
+        audit = audit_bank(bank, picture_sample=3)
+        write_json_atomic(audit_path, json.loads(json.dumps(audit, default=str)))
     fam_rows = [
         {
             "family": f,

@@ -51,7 +51,7 @@ def example(
 ) -> None:
     """Copy the example study, then: bank, audit, forms, simulated people, machines, analysis,
     figures and the report."""
-    from twofold.experiments.pipeline import run_example
+    from ._pipeline import run_example
 
     t0 = time.monotonic()
     study_dir = copy_example(out)
