@@ -1464,8 +1464,8 @@ def _validity(
     minimal: bool,
     length: int | None = None,
     truth: int | None = None,
-) -> tuple[str | None, Rule | None, dict[str, np.ndarray]]:
-    """Reason to reject (or None), one offending rule and the separating rules.
+) -> tuple[str | None, list[Rule], dict[str, np.ndarray]]:
+    """Reason to reject (or None), up to three offending rules and the separating rules.
 
     Valid means: the hidden rule separates the training sets, and no enumerated rule of equal or
     shorter description length (``length``, default the hidden rule's) separates them but
@@ -1479,24 +1479,31 @@ def _validity(
     sep = separating(vec, a_mask=am, b_mask=bm, max_length=length)
     h = rule_vector(rule, panels) if truth is None else truth  # truth: known by construction
     if (h & (am | bm)) != am:
-        return "hidden rule does not separate the sets", None, sep
+        return "hidden rule does not separate the sets", [], sep
     vv, ll = _all_sep(sep)
     bad = (vv & np.uint64(tm)) != np.uint64(h & tm)
+    reason = None
     if np.any(bad):
-        return (
-            ("another rule as short separates the sets but classifies a test panel otherwise"),
-            _first_rule(sep, bad),
-            sep,
-        )
+        reason = "another rule as short separates the sets but classifies a test panel otherwise"
     if minimal:
-        bad = ll < length
-        if np.any(bad):
-            return "a shorter rule separates the sets", _first_rule(sep, bad), sep
-    return None, None, sep
+        short = ll < length
+        if reason is None and np.any(short):
+            reason = "a shorter rule separates the sets"
+        bad |= short
+    if reason is None:
+        return None, [], sep
+    return reason, _offenders(sep, bad, 3), sep
 
 
-def _first_rule(sep: Mapping[str, np.ndarray], bad: np.ndarray) -> Rule:
-    k = int(np.flatnonzero(bad)[0])
+def _offenders(sep: Mapping[str, np.ndarray], bad: np.ndarray, most: int) -> list[Rule]:
+    """Up to ``most`` offending rules with distinct truth vectors."""
+    vv, _ = _all_sep(sep)
+    idx = np.flatnonzero(bad)
+    _, first = np.unique(vv[idx], return_index=True)
+    return [_rule_at(sep, int(idx[k])) for k in sorted(first)[:most]]
+
+
+def _rule_at(sep: Mapping[str, np.ndarray], k: int) -> Rule:
     n1, n2 = len(sep["single"]), len(sep["pair_i"])
     if k < n1:
         return _lit_rule(sep["single"][k])
@@ -1703,23 +1710,28 @@ class ContrastFamily(Family):
         checked = None
         kept: set[tuple[bool, int]] = set()  # panels swapped in by earlier repairs stay
         for _ in range(_REPAIRS + 2 * rule_length(rule) + 1):
-            reason, other, sep = _validity(
+            reason, others, sep = _validity(
                 [*set_a, *set_b, *tests], rule, per, per, minimal=minimal, truth=truth
             )
             if reason is None:
                 checked = sep
                 break
-            if other is None:
+            if not others:
                 raise Rejected(reason)
-            found = _discriminating(rule, other, ctx)
-            if found is None:
+            repaired = False
+            for other in others:
+                found = _discriminating(rule, other, ctx)
+                if found is None:
+                    continue
+                want, panel = found
+                target = set_a if want else set_b
+                free = [k for k in range(per) if (want, k) not in kept] or list(range(per))
+                k = ctx.pick(free)
+                kept.add((want, k))
+                target[k] = panel
+                repaired = True
+            if not repaired:
                 break
-            want, panel = found
-            target = set_a if want else set_b
-            free = [k for k in range(per) if (want, k) not in kept] or list(range(per))
-            k = ctx.pick(free)
-            kept.add((want, k))
-            target[k] = panel
         if checked is None:
             raise Rejected(reason or "no valid item")
         factors = {
