@@ -48,8 +48,9 @@ spec = {"seed": 2, "families": {"grids": {"n": 6, "modes": ["generate"],
 items = [it for it in generate_bank(parse_spec(spec))
          if len(it.stimulus["test"]) >= 15 or len(it.stimulus["test"][0]) >= 15]
 item = items[0]
-win = visual.Window(size=[1280, 1024], units="pix", color="#20242b", checkTiming=False)
-ctx = Ctx(win=win, visual=visual, size=(1280, 1024), background="#20242b")
+W, H = int(sys.argv[1]), int(sys.argv[2])
+win = visual.Window(size=[W, H], units="pix", color="#20242b", checkTiming=False)
+ctx = Ctx(win=win, visual=visual, size=(W, H), background="#20242b")
 t0 = time.perf_counter()
 screen = make_screen(ctx, item, render(item, "structured", "generate"), "generate")
 build = time.perf_counter() - t0
@@ -71,13 +72,23 @@ win.close()
 """
 
 
-def heavy_screen(display: str, home: Path) -> dict:
+def heavy_screen(display: str, home: Path, size: tuple[int, int]) -> dict:
     import json
 
-    env = dict(os.environ, DISPLAY=display, HOME=str(home), MPLCONFIGDIR=str(home / "mpl"),
-               PSYCHOPYNOPACKAGES="1")
-    out = subprocess.run([sys.executable, "-c", HEAVY], env=env, capture_output=True,
-                         text=True, check=True)
+    env = dict(
+        os.environ,
+        DISPLAY=display,
+        HOME=str(home),
+        MPLCONFIGDIR=str(home / "mpl"),
+        PSYCHOPYNOPACKAGES="1",
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", HEAVY, *map(str, size)],
+        env=env,
+        capture_output=True,
+        text=True,
+        check=True,
+    )
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
@@ -99,12 +110,15 @@ def main() -> None:
     load = os.getloadavg()[0]
     print(f"load average at start: {load:.1f} on {os.cpu_count()} cores")
 
-    h = heavy_screen(display, tmp / "home")
-    f = np.array(h["frame_ms"])
-    print(f"heaviest screen (grid editor, test {h['test'][0]}x{h['test'][1]}, "
-          f"{h['demos']} demonstrations, 1280x1024 window): draw+flip per frame median "
-          f"{np.median(f):.2f} ms, p95 {np.percentile(f, 95):.2f} ms, max {f.max():.2f} ms "
-          f"(target < 8 ms); screen built in {h['build_ms']:.0f} ms")
+    for size in ((1280, 1024), (1024, 768)):
+        h = heavy_screen(display, tmp / "home", size)
+        f = np.array(h["frame_ms"])
+        print(
+            f"heaviest screen (grid editor, test {h['test'][0]}x{h['test'][1]}, "
+            f"{h['demos']} demonstrations, {size[0]}x{size[1]} window): draw+flip per frame "
+            f"median {np.median(f):.2f} ms, p95 {np.percentile(f, 95):.2f} ms, max "
+            f"{f.max():.2f} ms (target < 8 ms); screen built in {h['build_ms']:.0f} ms"
+        )
 
     n = args.responses
     st = load_study(make_runner_study(tmp / "study", MATRICES_ONLY.format(n=n + 1), n_forms=1))
@@ -120,14 +134,18 @@ def main() -> None:
     df = df[df["trial"].isin(list(expected))]
     err = np.array([r.rt_ms - expected[r.trial] for r in df.itertuples()])
     a = np.abs(err)
-    print(f"RT error over {len(err)} injected key presses (logged - injected): median "
-          f"{np.median(err):+.2f} ms, median |error| {np.median(a):.2f} ms, p95 |error| "
-          f"{np.percentile(a, 95):.2f} ms, max |error| {a.max():.2f} ms "
-          f"(targets: median <= 2 ms, max <= 16.7 ms)")
+    print(
+        f"RT error over {len(err)} injected key presses (logged - injected): median "
+        f"{np.median(err):+.2f} ms, median |error| {np.median(a):.2f} ms, p95 |error| "
+        f"{np.percentile(a, 95):.2f} ms, max |error| {a.max():.2f} ms "
+        f"(targets: median <= 2 ms, max <= 16.7 ms)"
+    )
     gap = (df["onset_s"].to_numpy()[1:] - df["response_s"].to_numpy()[:-1]) * 1000
-    print(f"submit to next onset (score, fsynced row, sidecar, draw, flip) over {len(gap)} "
-          f"trials: median {np.median(gap):.1f} ms, p95 {np.percentile(gap, 95):.1f} ms, "
-          f"max {gap.max():.1f} ms (target < 50 ms)")
+    print(
+        f"submit to next onset (score, fsynced row, sidecar, draw, flip) over {len(gap)} "
+        f"trials: median {np.median(gap):.1f} ms, p95 {np.percentile(gap, 95):.1f} ms, "
+        f"max {gap.max():.1f} ms (target < 50 ms)"
+    )
     print(f"session process peak memory (VmHWM): {rss:.0f} MB; {n} trials in {elapsed:.0f} s")
 
 
