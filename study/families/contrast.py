@@ -687,11 +687,12 @@ _PAD = (-1,) * 8
 
 
 def _panel_array(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
-    rows: list[Sequence[int]] = []
+    flat: list[int] = []
     for objs in panels:
-        rows.extend(objs)
-        rows.extend([_PAD] * (MAX_OBJECTS - len(objs)))
-    return np.array(rows, dtype=np.int64).reshape(len(panels), MAX_OBJECTS, 8)
+        for o in objs:
+            flat.extend(o)
+        flat.extend(_PAD * (MAX_OBJECTS - len(objs)))
+    return np.array(flat, dtype=np.int64).reshape(len(panels), MAX_OBJECTS, 8)
 
 
 _WEIGHTS = 2.0 ** np.arange(53)
