@@ -385,6 +385,7 @@ def parse_rule(text: str) -> Rule:
 
 _NOUN = {"square": "square", "triangle": "triangle", "dome": "dome", "cross": "cross"}
 _POS = {"row": "in the {} row", "col": "in the {} column"}
+_ADJ = {"solid": "solid-edged", "dashed": "dashed-edged", "mid": "mid-toned"}
 
 
 def _np(atoms: Sequence[int] | None, *, plural: bool = False) -> str:
@@ -397,10 +398,8 @@ def _np(atoms: Sequence[int] | None, *, plural: bool = False) -> str:
             noun = _NOUN[name]
         elif attr in ("row", "col"):
             loc.append(_POS[attr].format(name))
-        elif attr == "edge":
-            adjs.append(f"{name}-edged")
         else:
-            adjs.append(name)
+            adjs.append(_ADJ.get(name, name))
     if plural:
         noun = noun + ("es" if noun.endswith(("s", "x")) else "s")
     return " ".join([*adjs, noun, *loc])
@@ -419,11 +418,15 @@ def _words(rule: Rule) -> str:
     if kind == "q":
         d = rule[2]
         if rule[1] == "every":
-            return (
-                f"every object is {_a(_np(d))}"
-                if any(ATOMS[a][0] == 0 for a in d)
-                else "every object is " + _np(d).replace(" object", "").replace("object ", "")
-            )
+            if any(ATOMS[a][0] == 0 for a in d):  # a shape: "every object is a large dome"
+                return f"every object is {_a(_np(d))}"
+            parts = [
+                _POS[ATTRIBUTES[ATOMS[a][0]]].format(ATOM_NAME[a])
+                if ATTRIBUTES[ATOMS[a][0]] in _POS
+                else _ADJ.get(ATOM_NAME[a], ATOM_NAME[a])
+                for a in d
+            ]
+            return "every object is " + " and ".join(parts)
         if rule[1] == "some":
             return f"there is {_a(_np(d))}"
         return f"there is no {_np(d)}"
