@@ -496,11 +496,12 @@ def fit_irt(
     check_int("max_iter", max_iter, low=1)
     check_number("tol", tol, low=0.0)
     frame = _as_matrix(data, kind=kind)
-    seen = frame.notna()
-    n_seen = seen.sum(axis=0)
-    n_cor = frame.sum(axis=0, skipna=True)
+    values = frame.to_numpy(dtype=np.float64)
+    nan = np.isnan(values)
+    n_seen = values.shape[0] - nan.sum(axis=0)
+    n_cor = np.nansum(values, axis=0) if nan.any() else values.sum(axis=0)
     bad_items = (n_seen == 0) | (n_cor == 0) | (n_cor == n_seen)
-    dropped_items = tuple(frame.columns[bad_items.to_numpy()])
+    dropped_items = tuple(str(c) for c in frame.columns[bad_items])
     if dropped_items:
         warnings.warn(
             f"dropped {len(dropped_items)} item(s) that nobody answered or everybody answered "
@@ -508,22 +509,23 @@ def fit_irt(
             DegenerateWarning,
             stacklevel=2,
         )
-        frame = frame.loc[:, ~bad_items.to_numpy()]
-    empty = frame.notna().sum(axis=1) == 0
-    dropped_persons = tuple(frame.index[empty.to_numpy()])
+    empty = (~nan[:, ~bad_items]).sum(axis=1) == 0
+    dropped_persons = tuple(str(r) for r in frame.index[empty])
     if dropped_persons:
         warnings.warn(
             f"dropped {len(dropped_persons)} respondent(s) without any answer",
             DegenerateWarning,
             stacklevel=2,
         )
-        frame = frame.loc[~empty.to_numpy()]
+    del nan
+    if dropped_items or dropped_persons:
+        frame = frame.loc[~empty, ~bad_items]
+        values = frame.to_numpy(dtype=np.float64)
     n_items = frame.shape[1]
     min_items = 1 if model == "rasch" else 2
     if n_items < min_items or frame.shape[0] < 2:
         raise fail("data", f"{frame.shape[0]} respondents x {n_items} usable items",
                    f"at least 2 respondents and {min_items} item(s) with variation")
-    values = frame.to_numpy(dtype=np.float64)
     X, Mk = _split(values)
     M = None if _full(Mk) else Mk
     design = _q.Design(_DESIGN[model], n_items)
