@@ -359,6 +359,10 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
                 d.click(f"symbol:{ch}")
             d.click("done")
         return {"response": text, "correct": True}
+    if fam == "contrast" and mode == "generate":  # a rule in own words: kept, not scored
+        d.type("dark ones")
+        d.key("Return")
+        return {"response": "dark ones", "correct": None, "status": "invalid"}
     if fam == "contrast":
         labels = item.answer["labels"]
         for j, lab in enumerate(labels):

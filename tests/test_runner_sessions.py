@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 
+import pandas as pd
 import pytest
 from _display import Driver, answer, make_runner_study, play, x_display  # noqa: F401
 from twofold.study import load_study, read_sidecar, read_trials
@@ -115,9 +116,18 @@ n = 2
 modes = ["select", "generate"]
 [bank.spec.families.grids.params]
 size = 4
+[bank.spec.families.contrast]
+n = 1
+modes = ["generate"]
 """
 
 OTHER_BLOCKS = """
+[[blocks]]
+name = "rules"
+families = ["contrast"]
+mode = "generate"
+instructions = "instructions.txt"
+
 [[blocks]]
 name = "panels"
 families = ["matrices"]
@@ -179,11 +189,15 @@ def test_other_modes_time_limit_and_breaks(x_display, tmp_path):  # noqa: F811
     rc, err = d.finish()
     assert rc == 0, err
     df = read_trials(st.logs_dir / "human" / "P001.csv")
-    ok, late_row = df.iloc[:-1], df.iloc[-1]
+    rule, ok, late_row = df.iloc[0], df.iloc[1:-1], df.iloc[-1]
+    # the typed rule is kept verbatim; it is not in the scorable notation, so status invalid
+    assert rule["family"] == "contrast" and rule["mode"] == "generate"
+    assert json.loads(rule["response"]) == "dark ones" and rule["status"] == "invalid"
+    assert pd.isna(rule["correct"]) and "not automatically scorable" in rule["detail"]
     assert list(ok["mode"]) == ["generate"] * 2 + ["select"] * 4
     assert set(ok["family"]) == {"matrices", "strings", "grids"}
     assert ok["correct"].all() and (ok["status"] == "ok").all()
-    for row, exp in zip(ok.to_dict("records"), expected, strict=True):
+    for row, exp in zip(ok.to_dict("records"), expected[1:], strict=True):
         assert json.loads(row["response"]) == exp["response"]
     assert late_row["status"] == "timeout" and late_row["item"] == late
     assert late_row["rt_ms"] != late_row["rt_ms"]  # NaN: no response
