@@ -303,3 +303,15 @@ def test_cli_build_and_error(study3, tmp_path, capsys):
     # rich wraps at the console width (80 columns without a terminal): join the lines back
     err = " ".join(capsys.readouterr().err.split())
     assert err.startswith("error: ") and "study.toml: not valid TOML" in err
+
+
+def test_templates_command_writes_files_to_replace(tmp_path, capsys):
+    path = make_study(tmp_path / "t", blocks=THREE_BLOCKS.replace("instr.txt", "texts/a.txt"))
+    assert main(["forms", "templates", str(path)]) == 0
+    consent = (tmp_path / "t" / "consent.txt").read_text("utf-8")
+    assert consent.startswith("TEMPLATE - REPLACE THIS TEXT")
+    assert "ethics board" in consent
+    assert (tmp_path / "t" / "texts" / "a.txt").read_text("utf-8").strip()
+    (tmp_path / "t" / "consent.txt").write_text("our approved text", "utf-8")
+    assert main(["forms", "templates", str(path)]) == 0  # existing files are kept
+    assert (tmp_path / "t" / "consent.txt").read_text("utf-8") == "our approved text"
