@@ -3,7 +3,8 @@
 Run: ``python bench/contrast.py [n]``. Prints items per second with validity checks on (target
 1,000 items/s) for several parameter settings, through the bank machinery (rejections included),
 as wall-clock and per CPU-second rates (best of three runs; the per-CPU rate is steadier on a
-shared, loaded machine), then the reference solver's time per item.
+shared, loaded machine), then the reference solver's time per item, then the time to sample
+and score one error for a simulated respondent (target < 2 ms per trial).
 """
 
 from __future__ import annotations
@@ -11,11 +12,14 @@ from __future__ import annotations
 import sys
 import time
 
+import numpy as np
 from twofold.experiments.solvers import make_builtin
 from twofold.study import generate_bank, parse_spec
+from twofold.study.families import get_family
 from twofold.study.render import render
 
 TARGET = 1000
+ERROR_TARGET_MS = 2.0
 
 
 def rate(body: dict, n: int) -> tuple[float, float, int, int]:
@@ -59,6 +63,18 @@ def main() -> None:
         for v in views:
             ref.solve(v, mode)
         print(f"contrast-ref {mode}: {(time.perf_counter() - t0) / len(views) * 1000:.1f} ms/item")
+    # simulated respondents: one sampled error and its scoring per trial, three trials per item
+    fam = get_family("contrast")
+    rng = np.random.default_rng(0)
+    for mode in ("select", "generate"):
+        t0 = time.perf_counter()
+        for it in bank:
+            for _ in range(3):
+                resp, _ = fam.sample_error(it, mode, rng)
+                fam.score(it, resp, mode)
+        ms = (time.perf_counter() - t0) / (len(bank) * 3) * 1000
+        verdict = "ok" if ms < ERROR_TARGET_MS else "ABOVE"
+        print(f"sample_error+score {mode}: {ms:.2f} ms/trial (target {ERROR_TARGET_MS}) {verdict}")
 
 
 if __name__ == "__main__":

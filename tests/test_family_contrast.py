@@ -388,6 +388,161 @@ def test_error_types_come_from_related_rules():
                 assert FAM._PRIORITY.index(got) <= FAM._PRIORITY.index(name)
 
 
+# A slow reference copy of the error classifier as first written (one pass over every literal,
+# recomputing attributes each time); the cached, vectorised classifier must agree with it.
+def _related_reference(item):
+    from twofold.study.families.contrast import (
+        _labels,
+        _masks,
+        _popcount,
+        relevant_attributes,
+    )
+
+    rule = parse_rule(item.answer["rule"])
+    panels, n_a, n_b = panels_from_stimulus(item.stimulus)
+    n_test = len(panels) - n_a - n_b
+    am, bm, tm = _masks(n_a, n_b, n_test)
+    full = (1 << len(panels)) - 1
+    g = grammar()
+    h = rule_vector(rule, panels)
+    length = rule_length(rule)
+    vec = leaf_vectors(panels)
+    lits = np.concatenate([vec, ~vec & np.uint64(full)])
+    lens = g.lit_lengths
+    hu = np.uint64(h)
+    gen = ((lits & hu) == hu) & (lens < length) & ((lits & np.uint64(bm)) != 0)
+    spec_ok = ((lits & np.uint64(am)) == np.uint64(am)) & (
+        (lits & hu & np.uint64(tm)) != (hu & np.uint64(tm))
+    )
+    spec_vecs = lits[spec_ok] & hu
+    used = relevant_attributes(rule)
+
+    def only_irrelevant(lit):
+        attrs = relevant_attributes(lit)
+        return bool(attrs) and not (attrs & used)
+
+    irr_idx = [k for k in range(len(lits)) if lens[k] <= 3 and only_irrelevant(g.literal(k))]
+
+    def lab(vs):
+        return {_labels(int(v), n_a, n_b, n_test) for v in np.unique(vs)}
+
+    labels = {
+        "reversed-sets": {_labels(~h & full, n_a, n_b, n_test)},
+        "over-general": lab(lits[gen]),
+        "over-specific": lab(spec_vecs),
+    }
+    if irr_idx:
+        iv = lits[np.array(irr_idx)]
+        fit = _popcount((iv ^ np.uint64(am)) & np.uint64(am | bm))
+        keep = fit == fit.min() if fit.min() <= (n_a + n_b) // 3 else np.zeros_like(fit, bool)
+        labels["irrelevant-attribute"] = lab(iv[keep])
+        irr_best = np.array(irr_idx)[keep]
+    else:
+        labels["irrelevant-attribute"] = set()
+        irr_best = np.zeros(0, dtype=np.int64)
+    return {
+        "labels": labels,
+        "h": h,
+        "used": used,
+        "length": length,
+        "general": np.flatnonzero(gen),
+        "specific": np.flatnonzero(spec_ok),
+        "irrelevant": irr_best,
+        "masks": (am, bm, tm),
+        "full": full,
+    }
+
+
+def _classify_reference(item, rel, response, mode):
+    from twofold.study.families.contrast import relevant_attributes
+
+    if mode == "select":
+        for name in FAM._PRIORITY:
+            if response != item.answer["labels"] and response in rel["labels"][name]:
+                return name
+        return "other"
+    rule = parse_rule(response)
+    panels, _, _ = panels_from_stimulus(item.stimulus)
+    v = rule_vector(rule, panels)
+    h, full = rel["h"], rel["full"]
+    if v == h:
+        return "other"
+    if v == (~h & full):
+        return "reversed-sets"
+    if (v & h) == h and rule_length(rule) < rel["length"]:
+        return "over-general"
+    if (v & h) == v and (v & rel["masks"][0]) == rel["masks"][0]:
+        return "over-specific"
+    if relevant_attributes(rule) and not (relevant_attributes(rule) & rel["used"]):
+        return "irrelevant-attribute"
+    return "other"
+
+
+_REF_ITEMS = [
+    ({}, 3),
+    ({"kind": "relational"}, 5),
+    ({"attribute": "count", "length": 1}, 8),
+    ({"kind": "featural", "attribute": "size", "length": 2}, 2),
+    ({"length": 4, "objects": 6, "distractors": 4}, 13),
+    ({"length": 5, "n_test": 6}, 21),
+    ({"attribute": "position", "length": 3, "distractors": 0}, 34),
+    ({"attribute": "shade", "n_test": 5, "per_set": 8}, 55),
+]
+
+
+def _ref_items():
+    items = [make(params, seed=seed) for params, seed in _REF_ITEMS]
+    bank = generate_bank(
+        parse_spec({"seed": 17, "families": {"contrast": {"n": 12, "modes": ["select"]}}})
+    )
+    return items + list(bank)
+
+
+def test_fast_error_classifier_matches_the_slow_reference():
+    items = _ref_items()
+    rng = np.random.default_rng(5)
+    n_pairs = 0
+    for i, item in enumerate(items):
+        ref = _related_reference(item)
+        fast = FAM._related(item)
+        assert fast["labels"] == ref["labels"]
+        for key in ("general", "specific", "irrelevant"):
+            assert np.array_equal(fast[key], ref[key]), key
+        assert (fast["h"], fast["used"], fast["length"]) == (ref["h"], ref["used"], ref["length"])
+        n = len(item.answer["labels"])
+        correct = item.answer["labels"]
+        if i < 6:  # every label string for a few items
+            wrong = ["".join(t) for t in itertools.product("AB", repeat=n)]
+        else:
+            wrong = ["".join("AB"[int(b)] for b in rng.integers(0, 2, n)) for _ in range(12)]
+            wrong += sorted(set().union(*ref["labels"].values()))
+        for resp in wrong:
+            if resp == correct:
+                continue
+            want = _classify_reference(item, ref, resp, "select")
+            assert FAM.classify_error(item, resp, "select") == want, (item.id, resp)
+            assert FAM.score(item, resp, "select").error_type == want
+            n_pairs += 1
+        for k in range(6):
+            resp, etype = FAM.sample_error(item, "generate", np.random.default_rng(k))
+            assert etype == _classify_reference(item, ref, resp, "generate"), (item.id, resp)
+            assert FAM.classify_error(item, resp, "generate") == etype
+            n_pairs += 1
+    assert n_pairs >= 200
+
+
+def test_error_classifier_cache_follows_the_item_content():
+    # two items sharing an id but differing in content must not share cached related rules
+    import dataclasses
+
+    item = make(seed=3)
+    other = make({"kind": "relational"}, seed=5)
+    twin = dataclasses.replace(other, id=item.id)
+    FAM._related(item)
+    assert FAM._related(twin)["labels"] == _related_reference(other)["labels"]
+    assert FAM._related(item)["labels"] == _related_reference(item)["labels"]
+
+
 def test_free_text_rule_is_not_automatically_scorable():
     item = make(seed=1)
     with pytest.raises(ResponseError, match="not automatically scorable"):

@@ -71,8 +71,10 @@ which the hidden rule and a competing rule disagree.
 
 from __future__ import annotations
 
+import copy
 import random
 import re
+from collections import OrderedDict
 from collections.abc import Mapping, Sequence
 from functools import lru_cache
 from typing import TYPE_CHECKING, Any
@@ -2022,7 +2024,25 @@ class ContrastFamily(Family):
         return Score(False, self.classify_error(item, resp, mode), None)
 
     def _related(self, item: Item) -> dict[str, Any]:
-        """Label strings (test panels) of related rules, by error type, plus context."""
+        """Label strings (test panels) of related rules, by error type, plus context.
+
+        Cached per item (scoring a respondent asks for the same item many times); a cached
+        entry is used only while the item's id, answer and stimulus are unchanged. The result
+        is shared: callers must not modify it.
+        """
+        key = item.id
+        hit = _RELATED_CACHE.get(key)
+        if hit is not None and hit[0] == item.answer and hit[1] == item.stimulus:
+            _RELATED_CACHE.move_to_end(key)
+            return hit[2]
+        rel = self._compute_related(item)
+        _RELATED_CACHE[key] = (copy.deepcopy(item.answer), copy.deepcopy(item.stimulus), rel)
+        _RELATED_CACHE.move_to_end(key)
+        while len(_RELATED_CACHE) > _RELATED_CACHE_SIZE:
+            _RELATED_CACHE.popitem(last=False)
+        return rel
+
+    def _compute_related(self, item: Item) -> dict[str, Any]:
         rule = parse_rule(item.answer["rule"])
         panels, n_a, n_b = panels_from_stimulus(item.stimulus)
         n_test = len(panels) - n_a - n_b
@@ -2044,11 +2064,11 @@ class ContrastFamily(Family):
         spec_vecs = lits[spec_ok] & hu
         # irrelevant: short literals about attributes the rule does not use, best fit to training
         used = relevant_attributes(rule)
-        irr_idx = [
-            k
-            for k in range(len(lits))
-            if lens[k] <= 3 and _lit_uses_only_irrelevant(g.literal(k), used)
-        ]
+        lit_attrs, attr_bit = _literal_attribute_bits()
+        used_bits = np.int64(sum(attr_bit.get(a, 0) for a in used))
+        irr_idx = np.flatnonzero(
+            (lens <= 3) & (lit_attrs != 0) & ((lit_attrs & used_bits) == 0)
+        ).tolist()
         labels: dict[str, set[str]] = {}
 
         def lab(vs: np.ndarray) -> set[str]:
@@ -2482,9 +2502,21 @@ def _check_length(rule: Rule, operator: str | None) -> int:
     return rule_length(rule)
 
 
-def _lit_uses_only_irrelevant(lit: Rule, used: set[str]) -> bool:
-    attrs = relevant_attributes(lit)
-    return bool(attrs) and not (attrs & used)
+@lru_cache(maxsize=1)
+def _literal_attribute_bits() -> tuple[np.ndarray, dict[str, int]]:
+    """Per literal of :func:`grammar`, the attributes it uses as a bit set, and the bit of each
+    attribute name (a literal and its negation use the same attributes)."""
+    g = grammar()
+    per_leaf = [relevant_attributes(leaf) for leaf in g.leaves]
+    names = sorted(set().union(*per_leaf))
+    bit = {a: 1 << k for k, a in enumerate(names)}
+    leaf_bits = np.array([sum(bit[a] for a in attrs) for attrs in per_leaf], dtype=np.int64)
+    return np.concatenate([leaf_bits, leaf_bits]), bit
+
+
+# the related-rule tables of recently scored items (see ContrastFamily._related)
+_RELATED_CACHE: OrderedDict[str, tuple[Any, Any, dict[str, Any]]] = OrderedDict()
+_RELATED_CACHE_SIZE = 512
 
 
 def _negate(rule: Rule) -> Rule:
