@@ -9,10 +9,13 @@ Redrawing: by default (``[runner] redraw = "on_change"``) a screen is drawn and 
 changes (onset, typing, painting...); in between, the loop takes in input events every half
 millisecond without flipping. ``redraw = "every_frame"`` flips on every refresh instead (useful
 on a vsync-locked display to watch every frame). Intervals between consecutive flips are kept;
-an interval over 1.5 refresh periods (refresh rate measured at start) counts as a dropped frame,
-per trial and per session. The screen of the next item is built right after the current item's
-onset (this takes 0.1-0.5 s in software rendering); key times are unaffected (they come from the
-keyboard queue), a mouse press during the build is time-stamped when the build ends.
+an interval over 1.5 refresh periods (refresh rate measured at start) counts as a dropped frame.
+Per trial they go to ``<session>.frames.csv`` beside the log (see :data:`FRAMES_HEADER`); the
+session totals go to the sidecar (``frames``, ``dropped_frames``).
+
+The screen of the next item is built right after the current item's onset (0.1-0.5 s in
+software rendering); key times are unaffected (they come from the keyboard queue), a mouse press
+during the build is time-stamped when the build ends.
 
 Every trial row is written and fsynced (TrialLogWriter) before the next item appears; the
 sidecar is rewritten atomically after each trial, so a crash loses at most the trial on screen.
@@ -39,7 +42,12 @@ from twofold.study.exceptions import ResponseError, RunnerError
 
 from .prepare import SessionPlan
 
-__all__ = ["SessionResult", "run_session"]
+__all__ = ["FRAMES_HEADER", "SessionResult", "run_session"]
+
+#: columns of ``<session>.frames.csv``: one row per trial; intervals between consecutive flips
+#: (ms, space separated), dropped = intervals over 1.5 refresh periods, prep = time spent
+#: building the next item's screen after this onset (the screen stood still meanwhile)
+FRAMES_HEADER = "trial,n_intervals,mean_interval_ms,max_interval_ms,dropped,prep_ms,intervals_ms"
 
 
 class Aborted(Exception):  # noqa: N818 - control flow
@@ -88,10 +96,12 @@ class _Frames:
         self.dropped = 0
         self.max_ms = 0.0
         self.sum_ms = 0.0
+        self.intervals: list[float] = []
 
     def add(self, interval: float) -> None:
         self.n += 1
         ms = interval * 1000
+        self.intervals.append(ms)
         self.sum_ms += ms
         self.max_ms = max(self.max_ms, ms)
         if self.period is not None and interval > 1.5 * self.period:
@@ -433,13 +443,21 @@ class _Session:
         )
         n_done = len(plan.done)
         session_frames = _Frames(self.period)
+        # per-trial frame intervals beside the log (auxiliary: flushed, not fsynced)
+        frames_path = plan.csv_path.with_suffix(".frames.csv")
+        new_frames = not frames_path.exists()
+        self.frames_log = open(frames_path, "a", encoding="utf-8")  # noqa: SIM115
+        if new_frames:
+            self.frames_log.write(FRAMES_HEADER + "\n")
         prior = prev.get("frames") or {}
         try:
             if not meta.get("consent"):
                 key = self.text_screen(plan.consent_text, ("y", "n"), "consent")
                 if key != "y":
                     writer.close()
+                    self.frames_log.close()
                     plan.csv_path.unlink(missing_ok=True)
+                    frames_path.unlink(missing_ok=True)
                     meta = writer.update_sidecar(
                         status="declined", ended=_now(), n_trials=0, consent=False
                     )
@@ -506,6 +524,7 @@ class _Session:
             raise
         finally:
             writer.close()
+            self.frames_log.close()
 
     def next_of(self, bi: int, pos: int) -> tuple[Any, Any] | None:
         """The item shown after position ``pos`` of block ``bi`` (and its block)."""
@@ -535,10 +554,13 @@ class _Session:
             except ResponseError as err:
                 status, detail = "invalid", str(err)
         st = frames.stats()
-        frame_note = (
-            f"frames {st['n_intervals']}, max {st['max_interval_ms']} ms, "
-            f"dropped {st['dropped']}; next screen built in {frames.prep_ms:.0f} ms"
+        self.frames_log.write(
+            f"{k},{st['n_intervals']},{st['mean_interval_ms'] or ''},{st['max_interval_ms']},"
+            f"{st['dropped']},{frames.prep_ms:.1f},"
+            + " ".join(f"{ms:.2f}" for ms in frames.intervals)
+            + "\n"
         )
+        self.frames_log.flush()
         row = {
             "study": plan.study.name,
             "bank_hash": plan.bank.hash,
@@ -559,7 +581,7 @@ class _Session:
             "rt_ms": None if t_resp is None else (t_resp - onset) * 1000.0,
             "onset_s": onset - self.start,
             "response_s": None if t_resp is None else t_resp - self.start,
-            "detail": "; ".join(x for x in (detail, frame_note) if x),
+            "detail": detail,
         }
         return row, frames
 
