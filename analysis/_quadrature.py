@@ -136,6 +136,11 @@ def mstep(
     """
     phi = phi.copy()
     t = nodes
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return _newton(design, r, n, phi, t, newton_steps, tol)
+
+
+def _newton(design, r, n, phi, t, newton_steps, tol):
     for _ in range(newton_steps):
         a, d = design.unpack(phi)
         p = expit(np.outer(a, t) + d[:, None])

@@ -66,6 +66,8 @@ __all__ = [
 ]
 
 MODELS = ("1pl", "2pl", "rasch")
+#: slopes beyond this are reported as not identified by the data (DegenerateWarning)
+MAX_SLOPE = 10.0
 _DESIGN = {"2pl": "2pl", "rasch": "rasch", "1pl": "rasch_common"}
 
 #: columns of :attr:`IRTResult.items`
@@ -541,13 +543,26 @@ def fit_irt(
             stacklevel=2,
         )
     a, d = design.unpack(out.phi)
+    steep = np.abs(a) > MAX_SLOPE
+    if steep.any():
+        names = [str(c) for c in frame.columns[steep]]
+        warnings.warn(
+            f"{len(names)} item(s) have |slope| > {MAX_SLOPE:g}, a step the data cannot pin down "
+            f"(usually too few respondents for this model; try model='1pl' or 'rasch'): "
+            f"{', '.join(names[:10])}",
+            DegenerateWarning,
+            stacklevel=2,
+        )
     A = design.jacobian()
     grad = A.T @ _q.score_vector(X, M, out.W, a, d, nodes)
     cov = None
     a_se = d_se = b_se = np.full(n_items, np.nan)
     if se:
-        info = A.T @ _q.louis_information(X, M, out.W, a, d, nodes) @ A
+        with np.errstate(all="ignore"):
+            info = A.T @ _q.louis_information(X, M, out.W, a, d, nodes) @ A
         try:
+            if not np.isfinite(info).all():
+                raise np.linalg.LinAlgError("non-finite information")
             cov = np.linalg.inv(info)
         except np.linalg.LinAlgError:
             warnings.warn("observed information is singular; standard errors are NaN",
@@ -559,11 +574,11 @@ def fit_irt(
             var_d = np.diag(full)[J:]
             cov_ad = np.diag(full[:J, J:])
             # delta method for b = -d / a
-            var_b = var_d / a**2 + d**2 * var_a / a**4 - 2 * d * cov_ad / a**3
-            with np.errstate(invalid="ignore"):
+            with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+                var_b = var_d / a**2 + d**2 * var_a / a**4 - 2 * d * cov_ad / a**3
                 a_se = np.sqrt(var_a) if model != "rasch" else np.full(J, np.nan)
                 d_se = np.sqrt(var_d)
-                b_se = np.sqrt(np.maximum(var_b, 0.0))
+                b_se = np.where(var_b >= 0, np.sqrt(np.abs(var_b)), np.nan)
     theta, theta_sd = _scores(X, Mk, a, d, "eap")
     abilities = _ability_table(frame.index, theta, theta_sd, "eap", X, Mk, a, d)
     items = pd.DataFrame(

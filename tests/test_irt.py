@@ -477,6 +477,19 @@ def test_input_errors_and_warnings():
         simulate_responses([1.0], [0.0], [0.0], rng, missing=1.5)
 
 
+def test_small_sample_2pl_warns_about_unidentified_slopes():
+    rng = np.random.default_rng(12)
+    theta = rng.normal(size=16)
+    x = simulate_responses(np.ones(20), np.linspace(-1.5, 1.5, 20), theta, rng)
+    x[:, 0] = (x[:, 1:].sum(1) > np.median(x[:, 1:].sum(1))).astype(float)  # a perfect step
+    # numpy RuntimeWarnings are errors in the test configuration: none may escape
+    with pytest.warns(DegenerateWarning, match=r"\|slope\| > 10.*item1\b"):
+        res = fit_irt(x, model="2pl")
+    assert abs(res.a[0]) > 10
+    assert np.isnan(res.items["b_se"].iloc[0]) or res.items["b_se"].iloc[0] > 0
+    assert res.n_items == 20
+
+
 def test_simulator_probabilities_and_missing_mask():
     rng = np.random.default_rng(4)
     x = simulate_responses([1.5, 1.5], [-1.0, 1.0], np.zeros(40000), rng, missing=0.25)
