@@ -112,15 +112,21 @@ class Driver:
         *,
         resume: bool = False,
         imports: tuple[str, ...] = (),
+        cli: bool = False,
     ):
         from Xlib import display as xdisplay
 
         self.probe_path = tmp / f"probe-{respondent}-{time.monotonic_ns()}.json"
         env = session_env(display, tmp / "home", self.probe_path)
+        # the session module, or the `twofold run human` command itself
+        head = (
+            ["-c", "from twofold.experiments.cli import _entry; _entry()", "run", "human"]
+            if cli
+            else ["-m", "twofold.experiments.human"]
+        )
         cmd = [
             sys.executable,
-            "-m",
-            "twofold.experiments.human",
+            *head,
             str(study),
             "--respondent",
             respondent,

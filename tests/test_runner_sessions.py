@@ -62,10 +62,11 @@ def test_full_session_every_family_screen(x_display, study, tmp_path):  # noqa: 
 
 def test_declining_consent_keeps_no_trial_data(x_display, study, tmp_path):  # noqa: F811
     st, bank = study
-    d = Driver(x_display, st.file, "P002", tmp_path)
+    d = Driver(x_display, st.file, "P002", tmp_path, cli=True)  # through `twofold run human`
     assert play(d, bank, consent="n") == []
-    rc, _ = d.finish()
+    rc, err = d.finish()
     assert rc == 4
+    assert "ethics board" in " ".join(err.split())  # the banner of the command
     assert not (st.logs_dir / "human" / "P002.csv").exists()
     assert read_sidecar(st.logs_dir / "human" / "P002.json")["status"] == "declined"
 

@@ -48,7 +48,8 @@ def main(argv: list[str] | None = None) -> int:
     if debug:
         args.remove("--debug")
     try:
-        app(args=args, prog_name="twofold", standalone_mode=False)
+        # without standalone mode, click returns (not raises) the code of typer.Exit(n)
+        code = app(args=args, prog_name="twofold", standalone_mode=False)
     except TwofoldError as err:
         if debug:
             raise
@@ -71,7 +72,7 @@ def main(argv: list[str] | None = None) -> int:
             error("aborted.")
             return 1
         raise
-    return 0
+    return code if isinstance(code, int) else 0
 
 
 def _entry() -> None:  # pragma: no cover - console script
