@@ -74,7 +74,6 @@ from __future__ import annotations
 import copy
 import random
 import re
-from collections import OrderedDict
 from collections.abc import Mapping, Sequence
 from functools import lru_cache
 from typing import TYPE_CHECKING, Any
@@ -2033,13 +2032,12 @@ class ContrastFamily(Family):
         key = item.id
         hit = _RELATED_CACHE.get(key)
         if hit is not None and hit[0] == item.answer and hit[1] == item.stimulus:
-            _RELATED_CACHE.move_to_end(key)
             return hit[2]
         rel = self._compute_related(item)
+        _RELATED_CACHE.pop(key, None)  # (re)inserted last: the oldest entries go first
         _RELATED_CACHE[key] = (copy.deepcopy(item.answer), copy.deepcopy(item.stimulus), rel)
-        _RELATED_CACHE.move_to_end(key)
         while len(_RELATED_CACHE) > _RELATED_CACHE_SIZE:
-            _RELATED_CACHE.popitem(last=False)
+            _RELATED_CACHE.pop(next(iter(_RELATED_CACHE)), None)
         return rel
 
     def _compute_related(self, item: Item) -> dict[str, Any]:
@@ -2515,7 +2513,7 @@ def _literal_attribute_bits() -> tuple[np.ndarray, dict[str, int]]:
 
 
 # the related-rule tables of recently scored items (see ContrastFamily._related)
-_RELATED_CACHE: OrderedDict[str, tuple[Any, Any, dict[str, Any]]] = OrderedDict()
+_RELATED_CACHE: dict[str, tuple[Any, Any, dict[str, Any]]] = {}
 _RELATED_CACHE_SIZE = 512
 
 
