@@ -58,11 +58,11 @@ from .item import MODES, Item
 from .logs import write_json_atomic
 
 __all__ = [
-    "ORDERS",
     "BlockSpec",
     "Form",
     "FormBlock",
     "FormsSpec",
+    "ORDERS",
     "assignment",
     "build_forms",
     "form_for",

@@ -28,9 +28,9 @@ from twofold.study.logs import read_sidecar, read_trials
 
 __all__ = [
     "BANNER",
-    "TEMPLATE_MARK",
     "RunnerOptions",
     "SessionPlan",
+    "TEMPLATE_MARK",
     "check_respondent",
     "parse_runner",
     "prepare_session",

@@ -18,7 +18,14 @@ import math
 from collections.abc import Callable, Sequence
 from typing import Any
 
-__all__ = ["SCREENS", "Answer", "Ctx", "Screen", "make_screen", "register_screen"]
+__all__ = [
+    "Answer",
+    "Ctx",
+    "SCREENS",
+    "Screen",
+    "make_screen",
+    "register_screen",
+]
 
 TEXT = "#e8e4da"
 DIM = "#9aa0a8"
