@@ -181,9 +181,9 @@ class EMOutcome:
     n_estep: int
     converged: bool
     max_change: float
+    W: np.ndarray
+    person_ll: np.ndarray
     history: list[float] = field(default_factory=list)
-    W: np.ndarray | None = None
-    person_ll: np.ndarray | None = None
 
 
 def _expected_counts(
