@@ -527,6 +527,8 @@ def test_fast_error_classifier_matches_the_slow_reference():
             resp, etype = FAM.sample_error(item, "generate", np.random.default_rng(k))
             assert etype == _classify_reference(item, ref, resp, "generate"), (item.id, resp)
             assert FAM.classify_error(item, resp, "generate") == etype
+            sc = FAM.score(item, resp, "generate")
+            assert (sc.correct, sc.error_type) == (False, etype)
             n_pairs += 1
     assert n_pairs >= 200
 
@@ -541,6 +543,11 @@ def test_error_classifier_cache_follows_the_item_content():
     FAM._related(item)
     assert FAM._related(twin)["labels"] == _related_reference(other)["labels"]
     assert FAM._related(item)["labels"] == _related_reference(item)["labels"]
+    FAM.score(item, f"({item.answer['rule']}) & n>=1", "generate")
+    panels, _, _ = panels_from_stimulus(other.stimulus)
+    assert FAM._truth(twin) == (panels, rule_vector(parse_rule(other.answer["rule"]), panels))
+    # the twin's own rule written differently is still an equivalent (correct) answer
+    assert FAM.score(twin, f"({other.answer['rule']}) & n>=1", "generate").correct
 
 
 def test_free_text_rule_is_not_automatically_scorable():

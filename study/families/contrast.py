@@ -2012,10 +2012,8 @@ class ContrastFamily(Family):
             return Score(False, self.classify_error(item, resp, mode), None)
         if resp == item.answer["rule"]:
             return Score(True, None, "intended")
-        panels, _, _ = panels_from_stimulus(item.stimulus)
-        if rule_vector(parse_rule(resp), panels) == rule_vector(
-            parse_rule(item.answer["rule"]), panels
-        ):
+        panels, h = self._truth(item)
+        if rule_vector(parse_rule(resp), panels) == h:
             for acc in item.accepted:
                 if acc["answer"] == resp:
                     return Score(True, None, acc["label"])
@@ -2029,20 +2027,20 @@ class ContrastFamily(Family):
         entry is used only while the item's id, answer and stimulus are unchanged. The result
         is shared: callers must not modify it.
         """
-        key = item.id
-        hit = _RELATED_CACHE.get(key)
-        if hit is not None and hit[0] == item.answer and hit[1] == item.stimulus:
-            return hit[2]
-        rel = self._compute_related(item)
-        _RELATED_CACHE.pop(key, None)  # (re)inserted last: the oldest entries go first
-        _RELATED_CACHE[key] = (copy.deepcopy(item.answer), copy.deepcopy(item.stimulus), rel)
-        while len(_RELATED_CACHE) > _RELATED_CACHE_SIZE:
-            _RELATED_CACHE.pop(next(iter(_RELATED_CACHE)), None)
-        return rel
+        return _per_item(_RELATED_CACHE, item, self._compute_related)
+
+    def _truth(self, item: Item) -> tuple[list[list[list[int]]], int]:
+        """The item's panels and the hidden rule's truth vector on them (cached per item)."""
+
+        def compute(it: Item) -> tuple[list[list[list[int]]], int]:
+            panels, _, _ = panels_from_stimulus(it.stimulus)
+            return panels, rule_vector(parse_rule(it.answer["rule"]), panels)
+
+        return _per_item(_TRUTH_CACHE, item, compute)
 
     def _compute_related(self, item: Item) -> dict[str, Any]:
-        rule = parse_rule(item.answer["rule"])
         panels, n_a, n_b = panels_from_stimulus(item.stimulus)
+        rule = parse_rule(item.answer["rule"])
         n_test = len(panels) - n_a - n_b
         am, bm, tm = _masks(n_a, n_b, n_test)
         full = (1 << len(panels)) - 1
@@ -2512,9 +2510,26 @@ def _literal_attribute_bits() -> tuple[np.ndarray, dict[str, int]]:
     return np.concatenate([leaf_bits, leaf_bits]), bit
 
 
-# the related-rule tables of recently scored items (see ContrastFamily._related)
-_RELATED_CACHE: dict[str, tuple[Any, Any, dict[str, Any]]] = {}
-_RELATED_CACHE_SIZE = 512
+# per-item results of recently scored items (see ContrastFamily._related and _truth)
+_RELATED_CACHE: dict[str, tuple[Any, Any, Any]] = {}
+_TRUTH_CACHE: dict[str, tuple[Any, Any, Any]] = {}
+_CACHE_SIZE = 512
+
+
+def _per_item(store: dict[str, tuple[Any, Any, Any]], item: Item, compute: Any) -> Any:
+    """``compute(item)``, kept in ``store`` under the item id while the item's answer and
+    stimulus are unchanged (the oldest entries are dropped first). The result is shared:
+    callers must not modify it."""
+    key = item.id
+    hit = store.get(key)
+    if hit is not None and hit[0] == item.answer and hit[1] == item.stimulus:
+        return hit[2]
+    value = compute(item)
+    store.pop(key, None)  # (re)inserted last
+    store[key] = (copy.deepcopy(item.answer), copy.deepcopy(item.stimulus), value)
+    while len(store) > _CACHE_SIZE:
+        store.pop(next(iter(store)), None)
+    return value
 
 
 def _negate(rule: Rule) -> Rule:
