@@ -61,8 +61,25 @@ def _new(nrows: int = 1, ncols: int = 1, *, width: float = 6.4, height: float = 
 
 
 def _caption(fig: Figure, text: str) -> None:
-    fig.get_layout_engine().set(h_pad=0.12)  # type: ignore[union-attr]
     fig.supxlabel(text, fontsize=8, color="#444444", style="italic")
+
+
+def _target(
+    ax: Axes | None, *, width: float = 6.4, height: float = 4.2
+) -> tuple[Figure | None, Axes]:
+    """A new figure and its axes when ``ax`` is None, else no figure and the given axes."""
+    if ax is not None:
+        return None, ax
+    fig = _new(width=width, height=height)
+    return fig, fig.axes[0]
+
+
+def _finish(fig: Figure | None, ax: Axes, caption: str) -> Figure | Axes:
+    """Caption and return the new figure, or return the caller's axes untouched."""
+    if fig is None:
+        return ax
+    _caption(fig, caption)
+    return fig
 
 
 def save_figure(fig: Figure, stem: str | Path) -> tuple[Path, Path]:
@@ -167,9 +184,7 @@ def item_curves(
     machines : DataFrame, optional
         Columns ``group`` and ``theta`` (ability on the human scale); drawn as marked verticals.
     """
-    own = ax is None
-    fig = _new() if own else None
-    ax = fig.axes[0] if own else ax  # type: ignore[union-attr]
+    fig, ax = _target(ax)
     grid = np.linspace(*theta, 200)
     for k, row in enumerate(items.itertuples(index=False)):
         p = 1 / (1 + np.exp(-row.a * (grid - row.b)))
@@ -198,14 +213,12 @@ def item_curves(
     ax.set_ylabel("probability correct")
     ax.set_ylim(0, 1.06)
     ax.legend(fontsize=6.5, frameon=False, loc="lower right")
-    if own:
-        _caption(
-            fig,
-            f"2PL item response curves from the human calibration; {len(items)} items; "
-            "machines placed at their ability estimate.",
-        )
-        return fig
-    return ax
+    return _finish(
+        fig,
+        ax,
+        f"2PL item response curves from the human calibration; {len(items)} items; "
+        "machines placed at their ability estimate.",
+    )
 
 
 def error_type_composition(counts: pd.DataFrame) -> Figure:
@@ -328,9 +341,7 @@ def robustness(table: pd.DataFrame, *, ax: Axes | None = None) -> Figure | Axes:
     table : DataFrame
         Columns ``group``, ``parent_accuracy``, ``variant_accuracy`` and optionally ``n_pairs``.
     """
-    own = ax is None
-    fig = _new(width=5.6, height=0.6 + 0.45 * max(len(table), 2)) if own else None
-    ax = fig.axes[0] if own else ax  # type: ignore[union-attr]
+    fig, ax = _target(ax, width=5.6, height=0.6 + 0.45 * max(len(table), 2))
     machines = _machines(table["group"])
     order = [g for g in [HUMAN, *machines] if g in set(table["group"])]
     for y, g in enumerate(order):
@@ -356,11 +367,10 @@ def robustness(table: pd.DataFrame, *, ax: Axes | None = None) -> Figure | Axes:
     ax.set_xlim(-0.02, 1.02)
     ax.set_xlabel("accuracy (proportion correct): open = parents, filled = isomorphs")
     ax.invert_yaxis()
-    if own:
-        n = int(table["n_pairs"].max()) if "n_pairs" in table else 0
-        _caption(fig, f"Accuracy on parent items and their isomorphs; {n} parent–isomorph pairs.")
-        return fig
-    return ax
+    n = int(table["n_pairs"].max()) if "n_pairs" in table else 0
+    return _finish(
+        fig, ax, f"Accuracy on parent items and their isomorphs; {n} parent–isomorph pairs."
+    )
 
 
 def factor_effects(table: pd.DataFrame) -> Figure:
@@ -411,9 +421,7 @@ def effort_vs_time(points: pd.DataFrame, *, ax: Axes | None = None) -> Figure | 
         Columns ``item``, ``group`` (machine), ``effort`` (mean effort on the item),
         ``effort_unit``, ``human_rt_ms`` (median human response time on the item).
     """
-    own = ax is None
-    fig = _new() if own else None
-    ax = fig.axes[0] if own else ax  # type: ignore[union-attr]
+    fig, ax = _target(ax)
     machines = _machines(points["group"].unique())
     for g in machines:
         d = points[(points["group"] == g) & (points["effort"] > 0) & (points["human_rt_ms"] > 0)]
@@ -436,10 +444,8 @@ def effort_vs_time(points: pd.DataFrame, *, ax: Axes | None = None) -> Figure | 
     ax.set_xlabel("human median response time (s)")
     ax.set_ylabel("machine effort (log scale; unit per solver)")
     ax.legend(fontsize=7, frameon=False)
-    if own:
-        _caption(
-            fig,
-            f"Per-item machine effort vs human response time; {points['item'].nunique()} items.",
-        )
-        return fig
-    return ax
+    return _finish(
+        fig,
+        ax,
+        f"Per-item machine effort vs human response time; {points['item'].nunique()} items.",
+    )

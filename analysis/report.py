@@ -19,6 +19,8 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
 from twofold.study.audit import audit_bank
 from twofold.study.logs import write_json_atomic
 from twofold.study.studyfile import Study, load_study
@@ -82,10 +84,13 @@ def _read(results: Path, name: str) -> pd.DataFrame | None:
     return df if len(df) else None
 
 
-def _img(fig: Any, stem: Path) -> dict[str, str]:
+def _img(fig: Figure | Axes, stem: Path) -> dict[str, str]:
+    if not isinstance(fig, Figure):  # the figure functions return a Figure when given no axes
+        raise TypeError("expected a Figure")
     svg, _ = F.save_figure(fig, stem)
     data = base64.b64encode(svg.read_bytes()).decode("ascii")
-    caption = fig._supxlabel.get_text() if getattr(fig, "_supxlabel", None) else ""
+    label = getattr(fig, "_supxlabel", None)
+    caption = label.get_text() if label is not None else ""
     return {
         "src": f"data:image/svg+xml;base64,{data}",
         "alt": stem.name.replace("_", " "),
@@ -141,6 +146,7 @@ def build_report(
     done = progress or (lambda name: None)
 
     sections: list[dict[str, Any]] = []
+    fig: Figure | Axes
     synthetic = bool(summary.get("synthetic_respondents"))
     humans = trials[trials["kind"] == "human"] if trials is not None else pd.DataFrame()
     machines = trials[trials["kind"] == "machine"] if trials is not None else pd.DataFrame()
