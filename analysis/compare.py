@@ -397,7 +397,7 @@ def difficulty_agreement(
                     ci = bootstrap_ci(
                         x,
                         y,
-                        statistic=s,
+                        statistic="kendall" if s == "kendall" else "spearman",
                         n_boot=n_boot,
                         conf_level=conf_level,
                         seed=np.random.default_rng(child),

@@ -74,7 +74,7 @@ def check_solver(solver: Any, bank: Bank, *, n_items: int = 5, seed: int = 0) ->
             continue
         per_family[item.family] = per_family.get(item.family, 0) + 1
         for mode in item.modes:
-            row = run_trial(solver, item, mode, medium=medium)
+            row = run_trial(solver, item, mode, medium=str(medium))
             rows.append({c: row.get(c) for c in CHECK_COLUMNS})
     table = pd.DataFrame(rows, columns=list(CHECK_COLUMNS))
     if len(table) and not table["status"].isin(["ok", "invalid"]).any():

@@ -244,7 +244,7 @@ def import_answers(
         effort = rec.get("effort")
         if effort is not None and (isinstance(effort, bool) or not isinstance(effort, int | float)):
             raise fail("effort", effort, "a number", where=where)
-        key = (seed, item_id, mode)
+        key = (seed, str(item_id), str(mode))
         if key in seen:
             raise InputError(
                 f"{where}: duplicate answer for item {item_id}, mode {mode}, seed {seed} (first "

@@ -99,7 +99,7 @@ def plan_trials(bank: Bank, spec: SolverSpec) -> list[tuple[Item, str]]:
     With ``spec.modes`` set, only those modes (and only items offering them) are planned; with
     ``spec.families`` set, only items of those families.
     """
-    out = []
+    out: list[tuple[Item, str]] = []
     for item in bank:
         if spec.families is not None and item.family not in spec.families:
             continue

@@ -515,7 +515,9 @@ class MatricesFamily(Family):
         variant_operator: str | None = None,
     ) -> Item:
         answer = panel_from_index(grid[8])
-        panels = [[panel_from_index(grid[3 * r + c]) for c in range(3)] for r in range(3)]
+        panels: list[list[dict[str, Any] | None]] = [
+            [panel_from_index(grid[3 * r + c]) for c in range(3)] for r in range(3)
+        ]
         panels[2][2] = None
         ruled = [a for a in ATTRIBUTES if rules[a] not in ("fixed", "irrelevant")]
         irr = [a for a in ATTRIBUTES if rules[a] == "irrelevant"]
@@ -961,6 +963,7 @@ class MatricesFamily(Family):
             cx = x + side / 2 - width / 2 + slot * (i + 0.5)
             kw = {"facecolor": (grey, grey, grey), "edgecolor": "black", "lw": 1.0}
             shape = p["shape"]
+            patch: Circle | RegularPolygon
             if shape == "circle":
                 patch = Circle((cx, cy), r, **kw)
             else:

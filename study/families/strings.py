@@ -352,7 +352,7 @@ def consistent_programs(src: Sequence[int], chg: Sequence[int], n: int) -> list[
                     first = new[idx[0]]
                     if all(new[i] == first for i in idx):
                         out.append(("map", level, sel, ("set", first)))
-            prog = ("swap", level)
+            prog: Program = ("swap", level)
             if apply_program(prog, src, n) == chg:
                 out.append(prog)
         elif lc > ls:
@@ -711,6 +711,8 @@ class StringsFamily(Family):
     ) -> Item:
         symbols = built["symbols"]
         an: _Analysis = built["analysis"]
+        if an.answer is None:  # the analysis of a valid item always has an answer
+            raise Rejected("no answer")
         answer = _decode(an.answer, symbols)
         accepted = [
             {"answer": _decode(out, symbols), "label": label} for out, label in an.accepted.items()
@@ -979,7 +981,7 @@ class StringsFamily(Family):
         rule = item.factors.get("rule")
         if rule not in RULES:
             return [f"factors.rule: unknown rule {rule!r}"]
-        symbols = ALPHABETS.get(st.get("alphabet"))
+        symbols = ALPHABETS.get(str(st.get("alphabet")))
         if symbols is None or st.get("symbols") != symbols:
             return ["stimulus.symbols: does not match the named alphabet"]
         try:
