@@ -49,8 +49,7 @@ def example(
     ] = False,
     workers: Annotated[int, typer.Option(help="Processes for the machine sessions.")] = 2,
 ) -> None:
-    """Copy the example study, then: bank, audit, forms, simulated people, machines, analysis,
-    figures and the report."""
+    """Run the bundled example study end to end in a fresh folder, report included."""
     from ._pipeline import run_example
 
     t0 = time.monotonic()

@@ -36,8 +36,7 @@ def scaffold(folder: Path) -> list[Path]:
 
 
 def new(folder: Annotated[Path, typer.Argument(help="A new folder for the study.")]) -> None:
-    """Scaffold a study: study.toml (every option commented), a generation spec, and the
-    consent and instruction templates to edit."""
+    """Scaffold a study folder: study.toml, generation spec, consent and instruction templates."""
     for path in scaffold(folder):
         console.print(f"wrote {path}")
     stdout.print(
