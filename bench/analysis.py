@@ -20,13 +20,22 @@ agreement
 
 mixed
     Mixed models with crossed random intercepts (respondents x items) on simulated trials:
-    ``fit_glmm`` (logistic, statsmodels ``fit_vb``) and ``fit_lmm`` (log response time,
-    statsmodels ``MixedLM`` with variance components) at 20,000 trials (200 respondents x 100
-    items); 100,000 trials (500 x 200) only with ``--mixed-large`` (several minutes for the
-    GLMM, more than ten for the LMM). Reported: wall time, convergence, recovery of the two
+    ``fit_glmm`` (logistic, statsmodels ``fit_vb``) and ``fit_lmm`` (log response time; since
+    the ``engine`` option its default is penalised least squares, see ``lmm``) at 20,000 trials
+    (200 respondents x 100 items); 100,000 trials (500 x 200) only with ``--mixed-large``
+    (several minutes for the GLMM). Reported: wall time, convergence, recovery of the two
     random-effect SDs and of the slope. Reference times for statsmodels alone: fit_vb about
     4.5 s at 20,000 and 170 s at 100,000; MixedLM about 16 s at 20,000 and over 10 min at
     100,000.
+
+lmm
+    Linear mixed model ``log_rt ~ factor_width + (1|respondent) + (1|item)`` with 200
+    respondents x 200 items crossed (each trial a random cell): ``fit_lmm(engine="pls")``
+    (profiled REML by penalised least squares) against ``fit_lmm(engine="statsmodels")``
+    (``MixedLM`` with variance components) at 20,000 trials, and the fast path alone at 100,000
+    trials. Reported: wall time (fast path best of 3), the ratio, and how far the two engines'
+    variance components, fixed effects and REML log-likelihoods differ. Target: 20,000 trials
+    in < 1 s. ``--quick``: 50 x 50 at 2,000 trials.
 
 The machine has 2 cores shared with other work; the load average is printed first, because
 multi-threaded BLAS slows down several-fold when the cores are busy. ``--threads 1`` re-runs the
@@ -238,12 +247,92 @@ def bench_mixed(quick: bool = False, *, large: bool = False) -> list[dict[str, A
     return rows
 
 
+# -- lmm ---------------------------------------------------------------------------------------
+
+LMM_TARGET_S = 1.0
+
+
+def _lmm_trials(n_trials: int, n_resp: int, n_items: int, seed: int = 5):
+    import pandas as pd
+
+    rng = np.random.default_rng(seed)
+    n_cells = n_resp * n_items
+    if n_trials <= n_cells:
+        cells = rng.choice(n_cells, n_trials, replace=False)
+    else:
+        cells = rng.integers(0, n_cells, n_trials)
+    r, i = cells // n_items, cells % n_items
+    width = rng.integers(2, 6, n_items).astype(float)
+    u = rng.normal(0, 0.25, n_resp)
+    v = rng.normal(0, 0.1, n_items)
+    log_rt = 7.5 + u[r] + v[i] + 0.15 * width[i] + rng.normal(0, 0.3, r.size)
+    return pd.DataFrame(
+        {
+            "respondent": [f"r{k}" for k in r],
+            "item": [f"i{k}" for k in i],
+            "factor_width": width[i] - width.mean(),
+            "log_rt": log_rt,
+        }
+    )
+
+
+def bench_lmm(quick: bool = False) -> list[dict[str, Any]]:
+    """Penalised least squares vs statsmodels MixedLM for crossed random intercepts."""
+    import warnings
+
+    from twofold.analysis.mixed import fit_lmm
+
+    n_resp, n_items = (50, 50) if quick else (200, 200)
+    sizes = [(2_000, True)] if quick else [(20_000, True), (100_000, False)]
+    formula, random = "log_rt ~ factor_width", ["respondent", "item"]
+    rows = []
+    for n_trials, with_statsmodels in sizes:
+        df = _lmm_trials(n_trials, n_resp, n_items)
+        pls_s, fast = _best_of(
+            lambda df=df: fit_lmm(df, formula, random=random, engine="pls"), 3
+        )
+        row: dict[str, Any] = {
+            "trials": f"{n_trials:,}",
+            "levels": f"{n_resp} x {n_items}",
+            "pls_s": pls_s,
+            "statsmodels_s": np.nan,
+            "ratio": np.nan,
+            "converged": fast.converged,
+            "max_rel_var": np.nan,
+            "max_rel_fixed": np.nan,
+            "loglik_diff": np.nan,
+            "sd_resp": float(np.sqrt(fast.raw.variances[0])),
+            "sd_item": float(np.sqrt(fast.raw.variances[1])),
+            "target_s": LMM_TARGET_S if n_trials == 20_000 else np.nan,
+        }
+        if with_statsmodels:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                sm_s, slow = _best_of(
+                    lambda df=df: fit_lmm(df, formula, random=random, engine="statsmodels"), 1
+                )
+            va = fast.random_effects["variance"].to_numpy()
+            vb = slow.random_effects["variance"].to_numpy()
+            fa, fb = fast.fixed["estimate"].to_numpy(), slow.fixed["estimate"].to_numpy()
+            row.update(
+                statsmodels_s=sm_s,
+                ratio=sm_s / pls_s,
+                converged=f"{fast.converged}/{slow.converged}",
+                max_rel_var=f"{np.max(np.abs(va / vb - 1)):.1e}",
+                max_rel_fixed=f"{np.max(np.abs(fa / fb - 1)):.1e}",
+                loglik_diff=f"{fast.loglik - slow.loglik:.1e}",
+            )
+        rows.append(row)
+    return rows
+
+
 # -- runner --------------------------------------------------------------------------------------
 
 SECTIONS: dict[str, Callable[..., list[dict[str, Any]]]] = {
     "irt": bench_irt,
     "agreement": bench_agreement,
     "mixed": bench_mixed,
+    "lmm": bench_lmm,
 }
 
 
