@@ -421,15 +421,15 @@ def fit_lmm(
 
     Penalised least squares (``engine="pls"``): with ``b = Lambda u``, ``u ~ N(0, sigma^2 I)`` and
     ``Lambda = diag(theta_k)`` over the levels of factor ``k``, the cross-products ``Z'Z``, ``Z'X``,
-    ``Z'y``, ``X'X``, ``X'y``, ``y'y`` are formed once; for each ``theta`` the Cholesky factor ``L
-    L' = Lambda Z'Z Lambda + I`` gives the penalised residual sum of squares ``r^2`` and the
-    profiled criterion ``log|L|^2 + n (1 + log(2 pi r^2 / n))`` (ML) or ``log|L|^2 + log|R_X|^2 + (n
-    - p)(1 + log(2 pi r^2 / (n - p)))`` (REML), minimised over ``theta >= 0`` by L-BFGS-B over
-    ``theta^2`` from three starts. Then ``sigma^2 = r^2 / n`` (ML) or ``r^2 / (n - p)`` (REML), the
-    variance of factor ``k`` is ``sigma^2 theta_k^2`` and ``cov(beta) = sigma^2 (R_X' R_X)^-1``. The
-    factor with the most levels is eliminated in closed form (its block is diagonal), so the dense
-    part has the other factors' levels only: time grows with the cube of that count (fine to a few
-    thousand) and linearly with trials.
+    ``Z'y``, ``X'X``, ``X'y``, ``y'y`` are formed once; for each ``theta`` the Cholesky factor
+    ``L L' = Lambda Z'Z Lambda + I`` gives the penalised residual sum of squares ``r^2`` and the
+    profiled criterion ``log|L|^2 + n (1 + log(2 pi r^2 / n))`` (ML) or
+    ``log|L|^2 + log|R_X|^2 + (n - p)(1 + log(2 pi r^2 / (n - p)))`` (REML), minimised over
+    ``theta >= 0`` by L-BFGS-B over ``theta^2`` from three starts. Then ``sigma^2 = r^2 / n`` (ML)
+    or ``r^2 / (n - p)`` (REML), the variance of factor ``k`` is ``sigma^2 theta_k^2`` and
+    ``cov(beta) = sigma^2 (R_X' R_X)^-1``. The factor with the most levels is eliminated in closed
+    form (its block is diagonal), so the dense part has the other factors' levels only: time grows
+    with the cube of that count (fine to a few thousand) and linearly with trials.
 
     ``engine="statsmodels"`` fits crossed factors as variance components within one
     all-covering group (``MixedLM`` with ``vc_formula``).
