@@ -40,6 +40,8 @@ _MARKERS = ("s", "^", "D", "v", "P", "X")
 _LINES = ("--", ":", "-.", (0, (5, 1, 1, 1)), (0, (3, 2)), (0, (1, 1)))
 _HATCHES = ("", "//", "..", "xx", "\\\\", "oo", "--", "++")
 HUMAN = "human"
+#: human difficulties beyond this (logits) are drawn at the panel edge
+DIFFICULTY_CLIP = 6.0
 
 
 def group_style(group: str, machines: Sequence[str]) -> dict[str, Any]:
@@ -116,6 +118,10 @@ def difficulty_profiles(points: pd.DataFrame, stats: pd.DataFrame | None = None)
     """
     fams = sorted(points["family"].unique())
     machines = _machines(points["group"].unique())
+    points = points.copy()
+    # extreme IRT difficulties (items nearly everyone got right or wrong) would squash the axis
+    clipped = int((points["human_difficulty"].abs() > DIFFICULTY_CLIP).sum())
+    points["human_difficulty"] = points["human_difficulty"].clip(-DIFFICULTY_CLIP, DIFFICULTY_CLIP)
     fig, axes = _facet_grid(len(fams))
     for ax, fam in zip(axes, fams, strict=True):
         sub = points[points["family"] == fam]
@@ -160,10 +166,11 @@ def difficulty_profiles(points: pd.DataFrame, stats: pd.DataFrame | None = None)
     if axes:
         axes[0].legend(fontsize=7, loc="lower right", frameon=False)
     n_items = points["item"].nunique()
+    note = f"; {clipped} point(s) beyond ±{DIFFICULTY_CLIP:g} drawn at the edge" if clipped else ""
     _caption(
         fig,
         f"Spearman rank correlation with bootstrap CI over items; {n_items} items, "
-        f"{len(machines)} machine groups.",
+        f"{len(machines)} machine groups{note}.",
     )
     return fig
 
@@ -380,35 +387,53 @@ def factor_effects(table: pd.DataFrame) -> Figure:
     ----------
     table : DataFrame
         Columns ``factor``, ``group``, ``estimate`` (log-odds of an error per unit of the factor),
-        ``ci_low``, ``ci_high``.
+        ``ci_low``, ``ci_high``, and optionally ``family`` (one panel per family).
     """
-    factors = list(dict.fromkeys(table["factor"]))
+    fams = sorted(table["family"].unique()) if "family" in table else [None]
     machines = _machines(table["group"].unique())
     groups = [g for g in [HUMAN, *machines] if g in set(table["group"])]
-    fig = _new(width=6.4, height=0.9 + 0.42 * max(len(factors), 2) * max(1, len(groups) / 2))
-    ax = fig.axes[0]
+    per = [table[table["family"] == f] if f is not None else table for f in fams]
+    tallest = max(d["factor"].nunique() for d in per)
+    ncols = min(2, len(fams))
+    nrows = math.ceil(len(fams) / ncols)
+    fig = Figure(
+        figsize=(5.2 * ncols + 0.4, nrows * (0.8 + 0.2 * tallest * len(groups) ** 0.5)),
+        layout="constrained",
+    )
+    axes = fig.subplots(nrows, ncols, squeeze=False).ravel().tolist()
+    for ax in axes[len(fams) :]:
+        ax.set_visible(False)
     step = 0.8 / max(len(groups), 1)
-    for k, g in enumerate(groups):
-        st = group_style(g, machines)
-        d = table[table["group"] == g].set_index("factor").reindex(factors)
-        y = np.arange(len(factors)) + (k - (len(groups) - 1) / 2) * step
-        ok = d["estimate"].notna().to_numpy()
-        ax.errorbar(
-            d["estimate"][ok],
-            y[ok],
-            xerr=[(d["estimate"] - d["ci_low"])[ok], (d["ci_high"] - d["estimate"])[ok]],
-            fmt=st["marker"],
-            color=st["color"],
-            linestyle="none",
-            capsize=2,
-            label=g,
-        )
-    ax.axvline(0, color="#888888", linewidth=0.8)
-    ax.set_yticks(range(len(factors)), factors, fontsize=7)
-    ax.invert_yaxis()
-    ax.set_xlabel("effect on the log-odds of an error (per unit, or level vs first level)")
-    ax.legend(fontsize=7, frameon=False)
-    _caption(fig, "Logistic mixed model per group with crossed random effects; 95 % intervals.")
+    for ax, fam, sub in zip(axes, fams, per, strict=False):
+        factors = list(dict.fromkeys(sub["factor"]))
+        for k, g in enumerate(groups):
+            st = group_style(g, machines)
+            d = sub[sub["group"] == g].set_index("factor").reindex(factors)
+            y = np.arange(len(factors)) + (k - (len(groups) - 1) / 2) * step
+            ok = d["estimate"].notna().to_numpy()
+            ax.errorbar(
+                d["estimate"][ok],
+                y[ok],
+                xerr=[(d["estimate"] - d["ci_low"])[ok], (d["ci_high"] - d["estimate"])[ok]],
+                fmt=st["marker"],
+                color=st["color"],
+                linestyle="none",
+                capsize=2,
+                markersize=4,
+                label=g,
+            )
+        ax.axvline(0, color="#888888", linewidth=0.8)
+        ax.set_yticks(range(len(factors)), factors, fontsize=6.5)
+        ax.invert_yaxis()
+        if fam is not None:
+            ax.set_title(fam, fontsize=10)
+        ax.set_xlabel("Δ log-odds of an error (per unit, or vs first level)", fontsize=8)
+    axes[0].legend(fontsize=7, frameon=False)
+    _caption(
+        fig,
+        "Logistic mixed model per family with crossed random effects for respondents "
+        "and items; 95 % intervals.",
+    )
     return fig
 
 

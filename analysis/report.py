@@ -411,8 +411,8 @@ def build_report(
     fe = _read(results, "factor_effects")
     if fe is not None:
         eff = fe[fe["quantity"] == "effect"].copy()
-        eff["factor"] = eff["family"] + ": " + eff["term"].astype(str).str.replace("factor_", "")
-        fig = F.factor_effects(eff[["factor", "group", "estimate", "ci_low", "ci_high"]])
+        eff["factor"] = eff["term"].astype(str).str.replace("factor_", "")
+        fig = F.factor_effects(eff[["family", "factor", "group", "estimate", "ci_low", "ci_high"]])
         diff = fe[(fe["quantity"] == "difference") & (fe["p_val"] < 0.05)]
         sections.append(
             {
