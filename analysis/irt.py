@@ -240,7 +240,7 @@ class IRTResult:
         not computed).
     abilities : pandas.DataFrame
         EAP abilities of the calibration respondents (121-node grid), columns
-        :data:`ABILITY_COLUMNS`.
+        :data:`ABILITY_COLUMNS`; computed on first access.
     loglik : float
         Marginal log-likelihood at the estimate.
     n_persons, n_items, n_params : int
@@ -268,7 +268,6 @@ class IRTResult:
 
     model: str
     items: pd.DataFrame
-    abilities: pd.DataFrame
     loglik: float
     n_persons: int
     n_items: int
@@ -284,6 +283,22 @@ class IRTResult:
     cov: np.ndarray | None = field(repr=False)
     quadrature_points: int = 41
     quadrature: str = "grid"
+    #: (respondent index, counts X, mask Mk) of the calibration data, for ``abilities``
+    _persons: tuple[Any, np.ndarray, np.ndarray] | None = field(default=None, repr=False)
+    _cache: dict[str, pd.DataFrame] = field(default_factory=dict, repr=False)
+
+    @property
+    def abilities(self) -> pd.DataFrame:
+        """EAP abilities of the calibration respondents (see the class docstring)."""
+        if "abilities" not in self._cache:
+            if self._persons is None:
+                table = pd.DataFrame({c: [] for c in ABILITY_COLUMNS})
+            else:
+                index, X, Mk = self._persons
+                theta, sd = _scores(X, Mk, self.a, self.d, "eap")
+                table = _ability_table(index, theta, sd, "eap", X, Mk, self.a, self.d)
+            self._cache["abilities"] = table
+        return self._cache["abilities"]
 
     @classmethod
     def from_parameters(
@@ -320,9 +335,8 @@ class IRTResult:
              "b_se": nan, "d_se": nan, "n": np.zeros(J, dtype=np.int64), "p_correct": nan,
              "infit": nan, "outfit": nan}
         )
-        empty = pd.DataFrame({c: [] for c in ABILITY_COLUMNS})
         return cls(
-            model=model, items=table, abilities=empty, loglik=np.nan, n_persons=0, n_items=J,
+            model=model, items=table, loglik=np.nan, n_persons=0, n_items=J,
             n_params=0, converged=True, n_iter=0, n_estep=0, max_change=np.nan,
             max_gradient=np.nan, history=(), dropped_items=(), dropped_persons=(), cov=None,
             quadrature_points=quadrature_points,
@@ -579,8 +593,6 @@ def fit_irt(
                 a_se = np.sqrt(var_a) if model != "rasch" else np.full(J, np.nan)
                 d_se = np.sqrt(var_d)
                 b_se = np.where(var_b >= 0, np.sqrt(np.abs(var_b)), np.nan)
-    theta, theta_sd = _scores(X, Mk, a, d, "eap")
-    abilities = _ability_table(frame.index, theta, theta_sd, "eap", X, Mk, a, d)
     items = pd.DataFrame(
         {
             "item": list(frame.columns),
@@ -603,7 +615,6 @@ def fit_irt(
     return IRTResult(
         model=model,
         items=items,
-        abilities=abilities,
         loglik=out.loglik,
         n_persons=frame.shape[0],
         n_items=n_items,
@@ -619,6 +630,7 @@ def fit_irt(
         cov=cov,
         quadrature_points=quadrature_points,
         quadrature=quadrature,
+        _persons=(frame.index, X, Mk),
     )
 
 

@@ -4,14 +4,15 @@ Sections (one function each, ``bench_<section>(quick) -> list of row dicts``; ``
 selected ones and prints one table per section):
 
 irt
-    2PL marginal-ML fit (Bock-Aitkin EM + SQUAREM, 41 Gauss-Hermite points) on simulated data
-    at 2,000 x 100, 10,000 x 200 and 50,000 x 200 (persons x items): wall time of the fit
-    (best of 3, without and with standard errors and item fit), EM cycles and E-steps, time of
-    one E-step, recovery RMSE of a and b, peak traced memory (tracemalloc) of a full fit, and
-    girth's ``twopl_mml`` on the same data in the same run (skipped at 50,000 x 200 unless
-    ``--girth-all``; it takes minutes there). Targets: 10,000 x 200 <= 0.5 s, 50,000 x 200
-    <= 2.5 s, >= 50x faster than girth at equal or better RMSE, peak memory <= 500 MB at
-    50,000 x 200.
+    2PL marginal-ML fit (Bock-Aitkin EM + SQUAREM, 41-point normal grid on [-6, 6]) on
+    simulated data at 2,000 x 100, 10,000 x 200 and 50,000 x 200 (persons x items): wall time of
+    the fit (best of 3; without, then with standard errors and item fit), time of the EAP
+    abilities with person fit (computed on first access, not part of the fit), EM cycles and
+    E-steps, time of one E-step, recovery RMSE of a and b, peak traced memory (tracemalloc) of a
+    full fit and its abilities, and girth's ``twopl_mml`` on the same data in the same run
+    (skipped at 50,000 x 200 unless ``--girth-all``; it takes minutes there). Targets:
+    10,000 x 200 <= 0.5 s, 50,000 x 200 <= 2.5 s, >= 50x faster than girth at equal or better
+    RMSE, peak memory <= 500 MB at 50,000 x 200.
 
 agreement
     Paired bootstrap of the difficulty-profile rank correlation (``bootstrap_ci``: percentile and
@@ -92,18 +93,20 @@ def bench_irt(quick: bool = False, *, girth_all: bool = False) -> list[dict[str,
         a, b, x = _irt_data(n, j)
         fit_s, res = _best_of(lambda x=x: fit_irt(x, se=False, fit_statistics=False), 3)
         full_s, full = _best_of(lambda x=x: fit_irt(x), 1)
+        eap_s, _ = _best_of(lambda res=res: res.abilities, 1)  # EAP + lz, computed on demand
         nodes, logw = _q.normal_quadrature(41)
         xx = np.nan_to_num(x)
         args = (xx, None, res.a, res.d, nodes, logw)
         estep_s, _ = _best_of(lambda args=args: _q.posterior(*args), 5)
         tracemalloc.start()
-        fit_irt(x)
+        _ = fit_irt(x).abilities
         peak_mb = tracemalloc.get_traced_memory()[1] / 1e6
         tracemalloc.stop()
         row: dict[str, Any] = {
             "size": f"{n:,} x {j}",
             "fit_s": fit_s,
             "fit_se_s": full_s,
+            "eap_s": eap_s,
             "converged": bool(res.converged and full.converged),
             "cycles": res.n_iter,
             "e_steps": res.n_estep,
