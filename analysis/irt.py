@@ -240,7 +240,8 @@ class IRTResult:
         not computed).
     abilities : pandas.DataFrame
         EAP abilities of the calibration respondents (121-node grid), columns
-        :data:`ABILITY_COLUMNS`; computed on first access.
+        :data:`ABILITY_COLUMNS`; computed on first access (the result keeps a reference to the
+        response matrix for this).
     loglik : float
         Marginal log-likelihood at the estimate.
     n_persons, n_items, n_params : int
