@@ -20,7 +20,7 @@ Options (``[solvers.options]``)
 -------------------------------
 model, temperature (0.0), max_tokens (512), system (none), headers (a table of extra headers),
 api_key_env (name of the environment variable holding the key, sent as ``Authorization: Bearer``;
-the key itself is never written anywhere), concurrency (4 requests in flight), rpm (requests per
+the key itself is never written anywhere), concurrency (4 requests in flight), per_minute (requests per
 minute, none = unlimited), retries (4), backoff (0.5 s, doubled per retry, with jitter, capped at
 ``backoff_max`` 30 s), request_timeout (the trial timeout), probe (true: check at start that the
 endpoint answers at all).
@@ -55,7 +55,7 @@ _OPTIONS = (
     "headers",
     "api_key_env",
     "concurrency",
-    "rpm",
+    "per_minute",
     "retries",
     "backoff",
     "backoff_max",
@@ -66,10 +66,10 @@ _OPTIONS = (
 
 
 class RateLimiter:
-    """Spaces request starts at least ``60 / rpm`` seconds apart (thread-safe)."""
+    """Spaces request starts at least ``60 / per_minute`` seconds apart (thread-safe)."""
 
-    def __init__(self, rpm: float | None):
-        self.interval = 60.0 / rpm if rpm else 0.0
+    def __init__(self, per_minute: float | None):
+        self.interval = 60.0 / per_minute if per_minute else 0.0
         self._next = 0.0
         self._lock = threading.Lock()
 
@@ -138,7 +138,7 @@ class ChatSolver:
         self.backoff_max = float(opts.get("backoff_max", 30.0))
         self.request_timeout = float(opts.get("request_timeout", timeout))
         self.max_in_flight = self.concurrency
-        self._limiter = RateLimiter(opts.get("rpm"))
+        self._limiter = RateLimiter(opts.get("per_minute"))
         self._gate = threading.BoundedSemaphore(self.concurrency)
         headers = {str(k): str(v) for k, v in dict(opts.get("headers") or {}).items()}
         env = opts.get("api_key_env")
