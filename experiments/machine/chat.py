@@ -20,9 +20,9 @@ Options (``[solvers.options]``)
 -------------------------------
 model, temperature (0.0), max_tokens (512), system (none), headers (a table of extra headers),
 api_key_env (name of the environment variable holding the key, sent as ``Authorization: Bearer``;
-the key itself is never written anywhere), concurrency (4 requests in flight), per_minute
-(requests per minute, none = unlimited), retries (4), backoff (0.5 s, doubled per retry, with
-jitter, capped at ``backoff_max`` 30 s), request_timeout (the trial timeout), probe (true: check at start that the
+the key itself is never written anywhere), concurrency (4 requests in flight), per_minute (requests
+per minute, none = unlimited), retries (4), backoff (0.5 s, doubled per retry, with jitter, capped
+at ``backoff_max`` 30 s), request_timeout (the trial timeout), probe (true: check at start that the
 endpoint answers at all).
 
 Timeouts, connection errors, 429 and 5xx are retried with exponential backoff and jitter (a 429's
