@@ -277,7 +277,8 @@ class Family(abc.ABC):
     def parse_text(self, item: Item, text: str, mode: str) -> Any:
         """Extract a response from free text (a language model's reply).
 
-        The default handles select mode (the last choice number standing alone in the reply);
+        The default handles select mode (the last choice number standing alone in the reply; a
+        full stop after it may end the sentence);
         families override it for generate mode. Raise ResponseError when nothing usable is found.
         """
         import re
@@ -286,7 +287,7 @@ class Family(abc.ABC):
             n = len(item.choices or ())
             hits = [
                 int(m)
-                for m in re.findall(r"(?<![\d.])(\d{1,2})(?![\d.])", text)
+                for m in re.findall(r"(?<![\d.])(\d{1,2})(?!\d)(?!\.\d)", text)
                 if 1 <= int(m) <= n
             ]
             if hits:

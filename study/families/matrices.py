@@ -820,18 +820,7 @@ class MatricesFamily(Family):
 
     def parse_text(self, item: Item, text: str, mode: str) -> Any:
         if mode == "select":
-            # the last number standing alone (a full stop after it may end the sentence)
-            n = len(item.choices or ())
-            hits = [
-                int(m)
-                for m in re.findall(r"(?<![\d.])(\d{1,2})(?!\d)(?!\.\d)", text)
-                if 1 <= int(m) <= n
-            ]
-            if hits:
-                return hits[-1]
-            raise ResponseError(
-                f"item {item.id}: no choice number from 1 to {n} found in reply.", field="response"
-            )
+            return super().parse_text(item, text, mode)
         return self._parse_panel_text(item, text)
 
     # -- rendering --------------------------------------------------------------------------
