@@ -36,7 +36,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from twofold.study._check import fail
+from twofold.study._check import check_keys, fail
 from twofold.study.exceptions import InputError, SpecError, TwofoldWarning
 from twofold.study.logs import write_json_atomic
 from twofold.study.studyfile import Study, load_study
@@ -93,15 +93,8 @@ def analysis_options(study: Study, overrides: Mapping[str, Any] | None = None) -
         raise fail("analysis", table, "a table of options", where=study.file.name, error=SpecError)
     opts = {k: v[0] for k, v in OPTIONS.items()}
     for source in (table, overrides or {}):
+        check_keys(source, sorted(OPTIONS), where=where, error=SpecError)
         for key, value in source.items():
-            if key not in OPTIONS:
-                raise fail(
-                    key,
-                    value,
-                    "the keys " + ", ".join(sorted(OPTIONS)),
-                    where=where,
-                    error=SpecError,
-                )
             if value is None:
                 continue
             if not _ok(key, value):

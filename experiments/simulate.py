@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 from twofold.study import Bank, Study
-from twofold.study._check import check_int, check_number, fail
+from twofold.study._check import check_int, check_keys, check_number
 from twofold.study.exceptions import SpecError
 from twofold.study.families import Rejected, get_family
 from twofold.study.generate import item_rng
@@ -60,15 +60,7 @@ class SimulationSettings:
         cls, table: dict[str, Any], *, where: str = "study.toml: simulate"
     ) -> SimulationSettings:
         known = {f.name for f in dataclasses.fields(cls)}
-        for key in table:
-            if key not in known:
-                raise fail(
-                    key,
-                    table[key],
-                    "one of " + ", ".join(sorted(known)),
-                    where=where,
-                    error=SpecError,
-                )
+        check_keys(table, sorted(known), where=where, error=SpecError)
         kw: dict[str, Any] = {}
         if "humans" in table:
             kw["humans"] = check_int(

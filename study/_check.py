@@ -89,3 +89,27 @@ def check_number(
     if (low is not None and value < low) or (high is not None and value > high):
         raise fail(field, value, accepted, where=where, error=error)
     return float(value)
+
+
+def check_keys(
+    table: Any,
+    accepted: Iterable[str],
+    *,
+    prefix: str = "",
+    where: str | None = None,
+    error: type[InputError] = InputError,
+) -> None:
+    """Check that every key of a table (dict) is one of ``accepted``.
+
+    The message names the first unknown key (as ``<prefix><key>``) and lists the accepted keys.
+    """
+    names = list(accepted)
+    for key in table:
+        if key not in names:
+            raise fail(
+                f"{prefix}{key}",
+                table[key],
+                "the keys " + ", ".join(names),
+                where=where,
+                error=error,
+            )

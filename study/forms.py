@@ -51,7 +51,7 @@ from typing import Any
 
 import numpy as np
 
-from ._check import check_choice, check_int, check_number, fail
+from ._check import check_choice, check_int, check_keys, check_number, fail
 from .exceptions import SpecError
 from .families import known_families
 from .item import MODES, Item
@@ -169,15 +169,7 @@ def parse_blocks(study: Any, *, check_files: bool = True) -> tuple[BlockSpec, ..
     seen: set[str] = set()
     for i, b in enumerate(raw):
         key = f"blocks[{i}]"
-        for k in b:
-            if k not in _BLOCK_KEYS:
-                raise fail(
-                    f"{key}.{k}",
-                    b[k],
-                    "the keys " + ", ".join(_BLOCK_KEYS),
-                    where=where,
-                    error=SpecError,
-                )
+        check_keys(b, _BLOCK_KEYS, prefix=f"{key}.", where=where, error=SpecError)
         name = b.get("name")
         if not isinstance(name, str) or not name.strip() or name in seen:
             raise fail(
@@ -266,15 +258,7 @@ def parse_forms(study: Any) -> FormsSpec:
     raw = study.table("forms")
     if not isinstance(raw, dict):
         raise fail("forms", raw, "a [forms] table", where=where, error=SpecError)
-    for k in raw:
-        if k not in _FORM_KEYS:
-            raise fail(
-                f"forms.{k}",
-                raw[k],
-                "the keys " + ", ".join(_FORM_KEYS),
-                where=where,
-                error=SpecError,
-            )
+    check_keys(raw, _FORM_KEYS, prefix="forms.", where=where, error=SpecError)
     d = FormsSpec()
     return FormsSpec(
         order=check_choice(

@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from twofold.study import load_study
-from twofold.study._check import check_choice, check_int, fail
+from twofold.study._check import check_choice, check_int, check_keys, fail
 from twofold.study.exceptions import RunnerError, SpecError
 from twofold.study.forms import Form, form_for, parse_blocks, parse_forms
 from twofold.study.logs import read_sidecar, read_trials
@@ -78,15 +78,7 @@ def parse_runner(study: Any) -> RunnerOptions:
     raw = study.table("runner")
     if not isinstance(raw, dict):
         raise fail("runner", raw, "a [runner] table", where=where, error=SpecError)
-    for k in raw:
-        if k not in _RUNNER_KEYS:
-            raise fail(
-                f"runner.{k}",
-                raw[k],
-                "the keys " + ", ".join(_RUNNER_KEYS),
-                where=where,
-                error=SpecError,
-            )
+    check_keys(raw, _RUNNER_KEYS, prefix="runner.", where=where, error=SpecError)
     d = RunnerOptions()
     for key in ("fullscreen", "allow_template_consent"):
         if not isinstance(raw.get(key, False), bool):
