@@ -25,17 +25,11 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
 )
 
-# command modules: each defines `register(app)`; a module not yet written is skipped
+# command modules: each defines `register(app)`
 _COMMANDS = ("items", "forms", "run", "simulate", "analyze", "report", "example", "new")
 
 for _name in _COMMANDS:
-    try:
-        _mod = importlib.import_module(f"{__name__}.{_name}")
-    except ModuleNotFoundError as _err:
-        if _err.name != f"{__name__}.{_name}":
-            raise
-        continue
-    _mod.register(app)
+    importlib.import_module(f"{__name__}.{_name}").register(app)
 
 
 def main(argv: list[str] | None = None) -> int:

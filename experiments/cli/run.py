@@ -13,11 +13,5 @@ run_app = typer.Typer(
 
 def register(app: typer.Typer) -> None:
     for name in ("run_human", "run_machine"):
-        try:
-            mod = importlib.import_module(f"{__package__}.{name}")
-        except ModuleNotFoundError as err:
-            if err.name != f"{__package__}.{name}":
-                raise
-            continue
-        mod.register_run(run_app)
+        importlib.import_module(f"{__package__}.{name}").register_run(run_app)
     app.add_typer(run_app, name="run")

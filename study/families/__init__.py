@@ -48,15 +48,5 @@ def get_family(
         ) from None
 
 
-def _load_builtin() -> None:
-    import importlib
-
-    for mod in ("strings", "matrices", "contrast", "grids"):
-        try:
-            importlib.import_module(f"{__name__}.{mod}")
-        except ModuleNotFoundError as err:  # a family still being written
-            if err.name != f"{__name__}.{mod}":
-                raise
-
-
-_load_builtin()
+# the built-in families register themselves on import
+from . import contrast, grids, matrices, strings  # noqa: E402,F401
