@@ -26,7 +26,6 @@ Options come from the study file's ``[analysis]`` table (``conf_level``, ``n_boo
 from __future__ import annotations
 
 import dataclasses
-import importlib
 import json
 import time
 import warnings
@@ -41,7 +40,7 @@ from twofold.study.exceptions import InputError, SpecError, TwofoldWarning
 from twofold.study.logs import write_json_atomic
 from twofold.study.studyfile import Study, load_study
 
-from . import compare, mixed
+from . import compare, irt, mixed
 from .data import StudyData, factor_columns, load_study_data
 
 __all__ = ["OPTIONS", "PARTS", "AnalysisRun", "analyze_study", "parse_parts"]
@@ -144,10 +143,6 @@ class AnalysisRun:
 
 
 def _irt(data: StudyData, opts: dict[str, Any]) -> tuple[dict[str, pd.DataFrame], Any]:
-    try:
-        irt = importlib.import_module(f"{__package__}.irt")
-    except ImportError as err:  # the IRT module is optional while it is being written
-        raise _Skip(f"IRT module not available ({err})") from err
     trials = data.trials
     if not (trials["kind"] == "human").any():
         raise _Skip("no human respondents to calibrate the scale on")
