@@ -113,14 +113,6 @@ def test_model_parts_on_a_small_study(registered, tmp_path):
     assert (tmp_path / "results" / "factor_effects.csv").is_file()
 
 
-def test_irt_part_is_skipped_cleanly_without_the_irt_module(toy, tmp_path, monkeypatch):
-    monkeypatch.setitem(sys.modules, "twofold.analysis.irt", None)
-    run = analyze_study(toy, out_dir=tmp_path, parts="irt,agreement", n_boot=50)
-    irt = run.summary["parts"]["irt"]
-    assert irt["status"] == "skipped" and "IRT module not available" in irt["reason"]
-    assert set(run.tables["difficulty_agreement"]["human_difficulty"]) == {"logit_error"}
-
-
 def test_irt_difficulty_feeds_the_agreement_when_the_fit_succeeds(toy, tmp_path):
     run = analyze_study(toy, out_dir=tmp_path, parts="irt,agreement", n_boot=50)
     irt = run.summary["parts"]["irt"]
