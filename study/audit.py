@@ -106,7 +106,7 @@ def audit_bank(
     bank: Bank,
     *,
     progress: Callable[[int], Any] | None = None,
-    picture_sample: int | None = 12,
+    picture_sample: int | None = 6,
     alpha: float = 0.05,
     seed: int = 0,
 ) -> dict[str, Any]:
@@ -118,7 +118,7 @@ def audit_bank(
         The bank to audit.
     progress : callable, optional
         Called with ``1`` after each item is audited (for progress bars).
-    picture_sample : int or None, default 12
+    picture_sample : int or None, default 6
         Pictures are slow to draw; render at most this many items per family as pictures (drawn
         at random with ``seed``). ``None`` renders every item. Text and structured views are
         always rendered for every item and mode.

@@ -104,6 +104,9 @@ def audit(
     json_out: Annotated[
         Path | None, typer.Option("--json", help="Also write the audit as JSON.")
     ] = None,
+    all_pictures: Annotated[
+        bool, typer.Option(help="Draw every item as a picture (default: 6 per family).")
+    ] = False,
 ) -> None:
     """Audit a bank: coverage, duplicates, answer uniqueness, rendering, shortcut leaks."""
     from twofold.study import load_bank
@@ -111,7 +114,7 @@ def audit(
 
     bank = load_bank(bank_dir)
     with progress("auditing", len(bank)) as bar:
-        report = audit_bank(bank, progress=bar.advance)
+        report = audit_bank(bank, progress=bar.advance, picture_sample=None if all_pictures else 6)
     print_audit(report, stdout)
     if json_out is not None:
         json_out.write_text(json.dumps(report, indent=2, default=str) + "\n", encoding="utf-8")
