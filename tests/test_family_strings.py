@@ -501,3 +501,18 @@ def test_bank_generates_writes_and_loads(tmp_path):
     assert {it.factors["grouping"] for it in parents} == {"none", "mixed"}
     for it in loaded:
         assert FAM.check(it) == []
+
+
+def test_every_glyph_is_in_the_fonts_of_pictures_and_screens():
+    # a glyph missing from a font shows as an empty box to the respondent
+    import os
+
+    import matplotlib
+    from fontTools.ttLib import TTFont
+    from twofold.study.families.strings import ALPHABETS
+
+    folder = os.path.join(os.path.dirname(matplotlib.__file__), "mpl-data", "fonts", "ttf")
+    for name in ("DejaVuSans.ttf", "DejaVuSansMono.ttf"):
+        cmap = TTFont(os.path.join(folder, name)).getBestCmap()
+        missing = [g for g in ALPHABETS["glyphs"] if ord(g) not in cmap]
+        assert missing == [], (name, missing)

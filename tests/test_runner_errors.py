@@ -130,3 +130,10 @@ def test_psychopy_not_imported_outside_the_runner():
         "sys.exit('psychopy' in sys.modules)"
     )
     assert subprocess.run([sys.executable, "-c", code], check=False).returncode == 0
+
+
+def test_screen_text_is_reflowed_into_paragraphs():
+    from twofold.experiments.human.prepare import reflow
+
+    text = "First line of a\nparagraph that wraps.\n\n  Second   paragraph\n\n\nPress Y.\n"
+    assert reflow(text) == "First line of a paragraph that wraps.\n\nSecond   paragraph\n\nPress Y."

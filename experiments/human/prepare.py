@@ -34,6 +34,7 @@ __all__ = [
     "check_respondent",
     "parse_runner",
     "prepare_session",
+    "reflow",
     "write_templates",
 ]
 
@@ -162,6 +163,19 @@ class SessionPlan:
                 out.append((k, b.name, iid))
                 k += 1
         return out
+
+
+def reflow(text: str) -> str:
+    """Join the lines of each paragraph, so the window's own wrapping sets line breaks.
+
+    Paragraphs are separated by blank lines; a file's hard line breaks inside a paragraph would
+    otherwise break lines in mid-sentence on a screen narrower than the file.
+    """
+    paragraphs = [
+        " ".join(line.strip() for line in block.splitlines() if line.strip())
+        for block in text.strip().split("\n\n")
+    ]
+    return "\n\n".join(p for p in paragraphs if p)
 
 
 def _read(path: Path, field: str, where: str) -> str:

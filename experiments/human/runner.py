@@ -40,7 +40,7 @@ from typing import Any
 from twofold.study import get_family, render
 from twofold.study.exceptions import ResponseError, RunnerError
 
-from .prepare import SessionPlan
+from .prepare import SessionPlan, reflow
 
 __all__ = ["FRAMES_HEADER", "SessionResult", "run_session"]
 
@@ -244,7 +244,7 @@ class _Session:
     ) -> str | None:
         stim = self.visual.TextStim(
             self.win,
-            text=text,
+            text=reflow(text),
             height=24,
             color="#e8e4da",
             wrapWidth=self.size[0] * 0.8,

@@ -74,7 +74,9 @@ __all__ = [
 ALPHABETS: dict[str, str] = {
     "letters": "abcdefghijklmnopqrstuvwxyz",
     "digits": "0123456789",
-    "glyphs": "◇○△☆□✕◐⊕∞§⋈¤",
+    # every glyph is in the DejaVu Sans and DejaVu Sans Mono fonts the pictures and the participant
+    # screens use, so no respondent ever sees a missing-glyph box
+    "glyphs": "◇○△☆□✕◐⊕∞§⌂¤",
 }
 
 Program = tuple[Any, ...]
@@ -540,7 +542,7 @@ class StringsFamily(Family):
 
     name = "strings"
     prefix = "str"
-    version = "1"
+    version = "2"
     modes = ("generate", "select")
     params = (
         ParamSpec(
