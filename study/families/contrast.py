@@ -714,10 +714,20 @@ def leaf_vectors(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
     objects) gives value counts and co-occurrence counts as ``M^T M``, and relation leaves as
     ``M^T R M`` for each relation matrix ``R`` (padding rows of ``M`` are zero).
     """
+    if len(panels) > len(_WEIGHTS):
+        raise ValueError("at most 53 panels per item")
+    return _pack(_leaf_truth(panels))
+
+
+def _pack(truth: np.ndarray) -> np.ndarray:
+    """Bit masks (bit p = row p) of a panels-by-leaves truth table (at most 53 rows)."""
+    return (_WEIGHTS[: len(truth)] @ truth).astype(np.uint64)
+
+
+def _leaf_truth(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
+    """Truth of every enumerated leaf (columns) on every panel (rows), as booleans."""
     g = grammar()
     p = len(panels)
-    if p > len(_WEIGHTS):
-        raise ValueError("at most 53 panels per item")
     x = _panel_array(panels)
     na = N_ATOMS
     maug = np.empty((p, MAX_OBJECTS, na + 1), dtype=np.float32)
@@ -754,7 +764,7 @@ def leaf_vectors(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
         truth[:, k : k + arr.shape[1]] = arr
         k += arr.shape[1]
     np.greater(res.reshape(p, -1), 0, out=truth[:, k:])
-    return (_WEIGHTS[:p] @ truth).astype(np.uint64)
+    return truth
 
 
 def rule_vector(rule: Rule, panels: Sequence[Sequence[Sequence[int]]]) -> int:
@@ -1469,18 +1479,20 @@ def _validity(
     minimal: bool,
     length: int | None = None,
     truth: int | None = None,
+    vec: np.ndarray | None = None,
 ) -> tuple[str | None, list[Rule], dict[str, np.ndarray]]:
     """Reason to reject (or None), up to three offending rules and the separating rules.
 
     Valid means: the hidden rule separates the training sets, and no enumerated rule of equal or
     shorter description length (``length``, default the hidden rule's) separates them but
     classifies a test panel differently (with ``minimal``, no strictly shorter rule separates
-    them at all).
+    them at all). ``vec``: the panels' leaf vectors when already known.
     """
     n_test = len(panels) - n_a - n_b
     am, bm, tm = _masks(n_a, n_b, n_test)
     length = rule_length(rule) if length is None else length
-    vec = leaf_vectors(panels)
+    if vec is None:
+        vec = leaf_vectors(panels)
     sep = separating(vec, a_mask=am, b_mask=bm, max_length=length)
     h = rule_vector(rule, panels) if truth is None else truth  # truth: known by construction
     if (h & (am | bm)) != am:
@@ -1714,9 +1726,21 @@ class ContrastFamily(Family):
         # the two disagree, then check again (items still failing are rejected)
         checked = None
         kept: set[tuple[bool, int]] = set()  # panels swapped in by earlier repairs stay
+        table = _leaf_truth([*set_a, *set_b, *tests])  # rows of swapped panels are redone
+        changed: list[int] = []
         for _ in range(_REPAIRS + 2 * rule_length(rule) + 1):
+            if changed:
+                rows = sorted(set(changed))
+                table[rows] = _leaf_truth([(set_a + set_b)[r] for r in rows])
+                changed = []
             reason, others, sep = _validity(
-                [*set_a, *set_b, *tests], rule, per, per, minimal=minimal, truth=truth
+                [*set_a, *set_b, *tests],
+                rule,
+                per,
+                per,
+                minimal=minimal,
+                truth=truth,
+                vec=_pack(table),
             )
             if reason is None:
                 checked = sep
@@ -1734,6 +1758,7 @@ class ContrastFamily(Family):
                 k = ctx.pick(free)
                 kept.add((want, k))
                 target[k] = panel
+                changed.append(k if want else per + k)
                 repaired = True
             if not repaired:
                 break
