@@ -690,13 +690,16 @@ def grammar() -> Grammar:
 _PAD = (-1,) * 8
 
 
-def _panel_array(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
+def _panel_array(
+    panels: Sequence[Sequence[Sequence[int]]], m: int = MAX_OBJECTS
+) -> np.ndarray:
+    """Panels as an int array (panel, object slot, attribute); ``m`` slots, padding rows -1."""
     flat: list[int] = []
     for objs in panels:
         for o in objs:
             flat.extend(o)
-        flat.extend(_PAD * (MAX_OBJECTS - len(objs)))
-    return np.array(flat, dtype=np.int64).reshape(len(panels), MAX_OBJECTS, 8)
+        flat.extend(_PAD * (m - len(objs)))
+    return np.array(flat, dtype=np.int64).reshape(len(panels), m, 8)
 
 
 _WEIGHTS = 2.0 ** np.arange(53)
@@ -728,9 +731,10 @@ def _leaf_truth(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
     """Truth of every enumerated leaf (columns) on every panel (rows), as booleans."""
     g = grammar()
     p = len(panels)
-    x = _panel_array(panels)
+    m = max([1, *map(len, panels)])  # object slots; empty slots would add nothing
+    x = _panel_array(panels, m)
     na = N_ATOMS
-    maug = np.empty((p, MAX_OBJECTS, na + 1), dtype=np.float32)
+    maug = np.empty((p, m, na + 1), dtype=np.float32)
     np.equal(x[:, :, ATOM_ATTR], ATOM_VAL, out=maug[:, :, :na], casting="unsafe")
     np.greater_equal(x[:, :, 0], 0, out=maug[:, :, na], casting="unsafe")
     mt = maug.transpose(0, 2, 1)
@@ -739,11 +743,11 @@ def _leaf_truth(panels: Sequence[Sequence[Sequence[int]]]) -> np.ndarray:
     c1 = c2[:, na, :na]
     cp = c2[:, g.pair_a, g.pair_b]
     row, col, size, ins = x[:, :, ROW], x[:, :, COL], x[:, :, SIZE], x[:, :, INSIDE]
-    rel = np.empty((p, 4, MAX_OBJECTS, MAX_OBJECTS), dtype=np.float32)
+    rel = np.empty((p, 4, m, m), dtype=np.float32)
     np.less(row[:, :, None], row[:, None, :], out=rel[:, 0], casting="unsafe")
     np.less(col[:, :, None], col[:, None, :], out=rel[:, 1], casting="unsafe")
     np.greater(size[:, :, None], size[:, None, :], out=rel[:, 2], casting="unsafe")
-    np.equal(ins[:, :, None], _OBJ, out=rel[:, 3], casting="unsafe")
+    np.equal(ins[:, :, None], _OBJ[:m], out=rel[:, 3], casting="unsafe")
     res = mt[:, None] @ (rel @ maug[:, None])  # (P, 4, A+1, A+1); the last index is "*"
     truth = np.empty((p, g.n_leaves), dtype=bool)
     nn = n[:, None]
