@@ -690,9 +690,7 @@ def grammar() -> Grammar:
 _PAD = (-1,) * 8
 
 
-def _panel_array(
-    panels: Sequence[Sequence[Sequence[int]]], m: int = MAX_OBJECTS
-) -> np.ndarray:
+def _panel_array(panels: Sequence[Sequence[Sequence[int]]], m: int = MAX_OBJECTS) -> np.ndarray:
     """Panels as an int array (panel, object slot, attribute); ``m`` slots, padding rows -1."""
     flat: list[int] = []
     for objs in panels:
