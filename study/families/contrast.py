@@ -579,21 +579,52 @@ def _ev(rule: Rule, objs: Sequence[Sequence[int]]) -> bool:
     if kind == "#":
         return sum(_has(o, (rule[1],)) for o in objs) == rule[2]
     if kind == "r":
-        _, rel, a, b = rule
-        for i, oi in enumerate(objs):
-            if a is not None and oi[ATOMS[a][0]] != ATOMS[a][1]:
-                continue
-            for j, oj in enumerate(objs):
-                if (
-                    i != j
-                    and (b is None or oj[ATOMS[b][0]] == ATOMS[b][1])
-                    and _rel(rel, objs, i, j)
-                ):
-                    return True
-        return False
+        return _ev_rel(rule, objs)
     if kind == "not":
         return not _ev(rule[1], objs)
     return all(_ev(x, objs) for x in rule[1])
+
+
+_ORDER_ATTR = {"above": ROW, "leftof": COL, "bigger": SIZE}
+
+
+def _ev_rel(rule: Rule, objs: Sequence[Sequence[int]]) -> bool:
+    """Truth of a relation leaf: some object fitting a stands in the relation to another
+    object fitting b. For the strict orders it suffices to compare the extreme values (an
+    object never stands in a strict order to itself)."""
+    _, rel, a, b = rule
+    if not objs:
+        return False
+    if a is None:
+        xs: Sequence[Sequence[int]] = objs
+    else:
+        aa, av = ATOMS[a]
+        xs = [o for o in objs if o[aa] == av]
+        if not xs:
+            return False
+    if b is None:
+        ys: Sequence[Sequence[int]] = objs
+    else:
+        ba, bv = ATOMS[b]
+        ys = [o for o in objs if o[ba] == bv]
+        if not ys:
+            return False
+    if rel == "inside":
+        n = len(objs)
+        for i, o in enumerate(objs):
+            c = o[INSIDE]
+            if (
+                0 <= c < n
+                and c != i
+                and (a is None or o[aa] == av)
+                and (b is None or objs[c][ba] == bv)
+            ):
+                return True
+        return False
+    at = _ORDER_ATTR[rel]
+    if rel == "bigger":
+        return max(o[at] for o in xs) > min(o[at] for o in ys)
+    return min(o[at] for o in xs) < max(o[at] for o in ys)
 
 
 def evaluate_rule(rule: Rule | str, panels: Sequence[Sequence[Sequence[int]]]) -> list[bool]:
