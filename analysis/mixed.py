@@ -308,7 +308,8 @@ def fit_glmm(
             "both values (a logistic model cannot be fitted otherwise).",
             field=lhs,
         )
-    blocks, ident, n_groups, vc_names = [], [], {}, []
+    blocks, ident, n_groups = [], [], {}
+    vc_names: list[str] = []
     for j, g in enumerate(rnd):
         codes, levels = pd.factorize(df[g], sort=True)
         n_groups[g] = len(levels)

@@ -41,6 +41,7 @@ and the bank hash, ``assignment.json`` the respondent id of each form in use.
 
 from __future__ import annotations
 
+import builtins
 import dataclasses
 import json
 import zlib
@@ -410,7 +411,7 @@ class Form:
     break_every: int = 0
     break_between_blocks: bool = True
 
-    def item_ids(self) -> list[str]:
+    def item_ids(self) -> builtins.list[str]:  # the field `list` shadows the builtin here
         """The test items (no practice items) in presentation order; trial k is entry k."""
         return [i for b in self.blocks for i in b.items]
 

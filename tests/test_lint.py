@@ -39,3 +39,16 @@ def test_the_command_starts_without_psychopy():
     )
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert res.stdout.strip() == "[]"
+
+
+def test_mypy_finds_nothing_in_the_library(tmp_path):
+    mypy = shutil.which("mypy")
+    if mypy is None:
+        pytest.skip("mypy not installed (it is in the test extra)")
+    res = subprocess.run(
+        [mypy, "--cache-dir", str(tmp_path / "cache"), "study", "experiments", "analysis"],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+    )
+    assert res.returncode == 0, res.stdout[-3000:]

@@ -164,7 +164,7 @@ class _Session:
             )
         self.mouse = event.Mouse(win=self.win, visible=True)
         self.origin_abs = pclock.monotonicClock.getLastResetTime()
-        self.size = tuple(int(v) for v in self.win.size)
+        self.size = (int(self.win.size[0]), int(self.win.size[1]))
         from .screens import Ctx
 
         self.ctx = Ctx(win=self.win, visual=visual, size=self.size, background=opts.background)

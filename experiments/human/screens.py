@@ -401,7 +401,7 @@ def _panel_stims(
     margin = base + side * 0.04
     pos = POSITIONS.index(panel["position"]) if panel.get("position") in POSITIONS else 2
     cy = y + side / 2 - margin - pos * (side - 2 * margin) / 4
-    g = SHADE_GREY.get(panel.get("shade"), 120)
+    g = SHADE_GREY.get(str(panel.get("shade")), 120)
     fill = f"#{g:02x}{g:02x}{g:02x}"
     for i in range(n):
         cx = x - n * slot / 2 + slot * (i + 0.5)
@@ -875,9 +875,9 @@ def _contrast_panel(
             cx, cy, outer = placed[o["inside"]]
             r = outer * 0.45
         else:
-            cx = centre[0] + (_COLS.get(o.get("col"), 1) - 1) * cell
-            cy = centre[1] - (_ROWS.get(o.get("row"), 1) - 1) * cell
-            r = cell / 2 * _CONTRAST_SIZE.get(o.get("size"), 0.58)
+            cx = centre[0] + (_COLS.get(str(o.get("col")), 1) - 1) * cell
+            cy = centre[1] - (_ROWS.get(str(o.get("row")), 1) - 1) * cell
+            r = cell / 2 * _CONTRAST_SIZE.get(str(o.get("size")), 0.58)
         placed.append((cx, cy, r))
         verts = _outline(o.get("shape", "square"), r)
         ori = 30 if o.get("tilt") == "tilted" else 0
@@ -888,7 +888,7 @@ def _contrast_panel(
                 vertices=verts,
                 pos=(cx, cy),
                 ori=ori,
-                fillColor=_CONTRAST_SHADE.get(o.get("shade"), "#8d8a84"),
+                fillColor=_CONTRAST_SHADE.get(str(o.get("shade")), "#8d8a84"),
                 lineColor=None if dashed else "#101010",
                 lineWidth=2,
                 units="pix",
