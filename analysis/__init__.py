@@ -7,6 +7,7 @@ Heavy fits happen only when called.
 from .compare import (
     bootstrap_ci,
     difficulty_agreement,
+    difficulty_reliability,
     error_consistency,
     error_consistency_kappa,
     error_consistency_summary,
@@ -46,6 +47,7 @@ __all__ = [
     "analyze_study",
     "bootstrap_ci",
     "difficulty_agreement",
+    "difficulty_reliability",
     "error_consistency",
     "error_consistency_kappa",
     "error_consistency_summary",

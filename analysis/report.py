@@ -214,9 +214,14 @@ def build_report(
     done("audit")
 
     # -- difficulty profiles ------
-    hd, mer, agr = (
+    hd, mer, agr, rel = (
         _read(results, n)
-        for n in ("item_difficulty", "machine_error_rates", "difficulty_agreement")
+        for n in (
+            "item_difficulty",
+            "machine_error_rates",
+            "difficulty_agreement",
+            "difficulty_reliability",
+        )
     )
     if hd is not None and mer is not None:
         pts = mer.merge(hd[["item", "difficulty"]], on="item").rename(
@@ -237,6 +242,16 @@ def build_report(
                 "1 means the machine's hardest items are people's hardest; near 0, its "
                 "difficulties are unrelated to people's. " + "; ".join(lines) + "."
             )
+        if rel is not None:
+            r_all = rel[rel["family"] == "all"]
+            if len(r_all) and pd.notna(r_all["spearman_brown"].iloc[0]):
+                reading += (
+                    " The ceiling: people's own difficulty profile is reproduced between random "
+                    f"halves of the sample with ρ = {r_all['split_half'].iloc[0]:.2f} "
+                    f"(Spearman–Brown {r_all['spearman_brown'].iloc[0]:.2f} for the full "
+                    "sample); a machine near that value agrees with people as well as people "
+                    "agree with each other."
+                )
         fig = F.difficulty_profiles(pts, stats)
         tbl = (
             [
@@ -257,6 +272,21 @@ def build_report(
             if agr is not None
             else []
         )
+        if rel is not None:
+            tbl.append(
+                _table(
+                    rel,
+                    [
+                        "family",
+                        "n_items",
+                        "n_respondents",
+                        "split_half",
+                        "spearman_brown",
+                        "q_low",
+                        "q_high",
+                    ],
+                )
+            )
         sections.append(
             {
                 "id": "difficulty",

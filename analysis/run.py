@@ -12,7 +12,8 @@ irt          irt_items.csv, irt_abilities.csv, irt_departures.csv (human-calibra
 mixed        accuracy_fixed.csv, accuracy_random.csv, log_rt_fixed.csv, log_rt_random.csv,
              log_effort_fixed.csv, log_effort_random.csv
 factors      factor_effects.csv
-agreement    item_difficulty.csv, machine_error_rates.csv, difficulty_agreement.csv
+agreement    item_difficulty.csv, machine_error_rates.csv, difficulty_agreement.csv,
+             difficulty_reliability.csv (the human split-half ceiling)
 consistency  consistency_pairs.csv, consistency_summary.csv
 errors       error_types.csv, error_type_tests.csv, error_type_odds.csv
 robustness   robustness.csv, robustness_test_fixed.csv, robustness_test_random.csv
@@ -329,6 +330,9 @@ def _run_part(
             "machine_error_rates": compare.machine_error_rates(t),
             "difficulty_agreement": compare.difficulty_agreement(
                 t, irt=irt_b, n_boot=opts["n_boot"], conf_level=lvl, seed=opts["seed"]
+            ),
+            "difficulty_reliability": compare.difficulty_reliability(
+                t, conf_level=lvl, seed=opts["seed"]
             ),
         }
     if part == "consistency":

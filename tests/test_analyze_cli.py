@@ -54,7 +54,7 @@ def test_analyze_writes_tables_and_summary_to_results(toy, capsys):
     assert summary["options"]["n_boot"] == 200  # from the study's [analysis] table
     agree = pd.read_csv(out / "difficulty_agreement.csv")
     assert set(agree["n_boot"]) == {200}
-    assert "wrote 11 tables" in capsys.readouterr().out
+    assert "wrote 12 tables" in capsys.readouterr().out
 
 
 def test_output_folder_option(toy, tmp_path):

@@ -289,3 +289,50 @@ def test_robustness_accuracies_on_a_hand_made_table():
     assert r.loc["m", "acc_isomorph"] == 0.25 and r.loc["m", "difference"] == -0.75
     se = np.sqrt(0.25 * 0.75 / 4 + 0)
     assert r.loc["m", "se"] == pytest.approx(se)
+
+
+def _two_pl_trials(b, n_people=40, seed=3):
+    rng = np.random.default_rng(seed)
+    theta = rng.normal(size=n_people)
+    p = 1 / (1 + np.exp(-(theta[:, None] - np.asarray(b)[None, :])))
+    correct = rng.random(p.shape) < p
+    rows = [
+        {
+            "kind": "human",
+            "respondent": f"P{i:03d}",
+            "item": f"i{j:02d}",
+            "family": "strings" if j % 2 else "grids",
+            "correct": bool(correct[i, j]),
+        }
+        for i in range(n_people)
+        for j in range(len(b))
+    ]
+    df = pd.DataFrame(rows)
+    df["correct"] = df["correct"].astype("boolean")
+    return df
+
+
+def test_difficulty_reliability_is_high_with_spread_items_and_near_zero_without():
+    from twofold.analysis.compare import difficulty_reliability
+
+    spread = difficulty_reliability(_two_pl_trials(np.linspace(-3, 3, 30)), n_splits=100)
+    flat = difficulty_reliability(_two_pl_trials(np.zeros(30)), n_splits=100)
+    hi, lo = spread.set_index("family"), flat.set_index("family")
+    assert hi.loc["all", "split_half"] > 0.7
+    assert abs(lo.loc["all", "split_half"]) < 0.2
+    assert set(hi.index) == {"all", "grids", "strings"}
+    for r in (hi.loc["all"], lo.loc["all"]):
+        # reference: Spearman 1910 / Brown 1910, the step-up formula 2r / (1 + r)
+        assert r["spearman_brown"] == pytest.approx(2 * r["split_half"] / (1 + r["split_half"]))
+        assert r["q_low"] <= r["split_half"] <= r["q_high"]
+
+
+def test_difficulty_reliability_is_nan_with_too_few_people():
+    from twofold.analysis.compare import difficulty_reliability
+    from twofold.study.exceptions import DegenerateWarning
+
+    with pytest.warns(DegenerateWarning, match="too few people"):
+        out = difficulty_reliability(
+            _two_pl_trials(np.linspace(-2, 2, 10), n_people=3), by_family=False
+        )
+    assert np.isnan(out["split_half"].iloc[0])
