@@ -342,7 +342,22 @@ class TypingMixin:
         return None
 
 
-class TextScreen(Screen, ChoiceMixin, TypingMixin):
+class ChoiceOrTypingMixin(ChoiceMixin, TypingMixin):
+    """Numbered choices in select mode, a typed answer otherwise."""
+
+    mode: str
+
+    def draw_dynamic(self) -> None:
+        if self.entry is not None:
+            self.entry.draw()
+
+    def key(self, name: str, t: float) -> Answer | None:
+        if self.mode == "select":
+            return self.choice_key(name, t)
+        return self.typing_key(name, t)
+
+
+class TextScreen(ChoiceOrTypingMixin, Screen):
     """Fallback for a family without its own screen: its text prompt, then a typed answer
     (generate) or numbered choices (select)."""
 
@@ -364,14 +379,6 @@ class TextScreen(Screen, ChoiceMixin, TypingMixin):
             )
         return static
 
-    def draw_dynamic(self) -> None:
-        if self.entry is not None:
-            self.entry.draw()
-
-    def key(self, name: str, t: float) -> Answer | None:
-        if self.mode == "select":
-            return self.choice_key(name, t)
-        return self.typing_key(name, t)
 
 
 # -- matrices --------------------------------------------------------------------------------
@@ -714,7 +721,7 @@ class GridsScreen(Screen, ChoiceMixin):
 
 
 # -- strings ---------------------------------------------------------------------------------
-class StringsScreen(Screen, ChoiceMixin, TypingMixin):
+class StringsScreen(ChoiceOrTypingMixin, Screen):
     """Source pair and target in a large monospace font, the symbol order above them; a typed
     answer with visible editing (generate; symbols that have no key get on-screen keys) or
     numbered choices (select)."""
@@ -784,14 +791,6 @@ class StringsScreen(Screen, ChoiceMixin, TypingMixin):
             self.add_button("done", "DONE", (90, yb), (140, 46), height=18)
         return static
 
-    def draw_dynamic(self) -> None:
-        if self.entry is not None:
-            self.entry.draw()
-
-    def key(self, name: str, t: float) -> Answer | None:
-        if self.mode == "select":
-            return self.choice_key(name, t)
-        return self.typing_key(name, t)
 
     def press(self, pos: Sequence[float], t: float) -> Answer | None:
         if self.mode == "select":
