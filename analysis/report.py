@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import base64
 import datetime as _dt
-import html
 import json
 from collections.abc import Callable
 from importlib import metadata, resources
@@ -179,7 +178,7 @@ def build_report(
         "No audit finding needs attention."
         if not flags
         else f"{len(flags)} finding(s) need attention: "
-        + "; ".join(html.unescape(str(f.get("message", f))) for f in flags[:4])
+        + "; ".join(str(f.get("message", f)) for f in flags[:4])
     )
     if short is not None:
         worst = short.sort_values("majority_accuracy").iloc[-1]

@@ -37,10 +37,8 @@ def render_picture(
     item: Item, mode: str | None = None, *, fmt: Literal["png", "svg"] = "png", size_px: int = 600
 ) -> bytes:
     """The item drawn by its family, as PNG or SVG bytes (``size_px`` square at 100 dpi)."""
-    import matplotlib
-
-    matplotlib.use("Agg", force=False)
-    from matplotlib.figure import Figure
+    import matplotlib as mpl
+    from matplotlib.figure import Figure  # no pyplot: the user's backend is left alone
 
     check_choice("fmt", fmt, ("png", "svg"))
     mode = _mode_for(item, mode)
@@ -48,8 +46,6 @@ def render_picture(
     get_family(item.family).draw(item, mode, fig)
     buf = io.BytesIO()
     meta: dict[str, Any] = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
-    import matplotlib as mpl
-
     with mpl.rc_context({"svg.hashsalt": "twofold", "svg.fonttype": "path"}):
         fig.savefig(buf, format=fmt, dpi=100, metadata=meta)
     return buf.getvalue()
