@@ -34,6 +34,7 @@ from .irt import (
     simulate_responses,
 )
 from .mixed import MixedResult, factor_effects, fit_accuracy, fit_glmm, fit_lmm, fit_log_time
+from .participants import family_accuracy, internal_consistency, profile_bayes_factors
 from .planning import plan_from_pilot, plan_sample_size, required_sample_size
 from .run import PARTS, AnalysisRun, analyze_study
 
@@ -57,12 +58,14 @@ __all__ = [
     "export_dataset",
     "factor_columns",
     "factor_effects",
+    "family_accuracy",
     "fit_accuracy",
     "fit_glmm",
     "fit_irt",
     "fit_lmm",
     "fit_log_time",
     "information_curve",
+    "internal_consistency",
     "item_difficulty",
     "item_fit",
     "item_information",
@@ -71,6 +74,7 @@ __all__ = [
     "machine_error_rates",
     "plan_from_pilot",
     "plan_sample_size",
+    "profile_bayes_factors",
     "read_logs",
     "required_sample_size",
     "response_matrix",
