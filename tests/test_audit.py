@@ -58,7 +58,7 @@ def test_flatten_and_the_two_choice_only_solvers():
 def test_one_off_choices_give_the_answer_away(one_off):
     report = audit_bank(one_off, picture_sample=2)
     row = shortcut_row(report, "one-off")
-    # common practice: answer sets built by changing one attribute of the correct answer leak it
+    # common practice (SOURCES.md#one-attribute-distractors): one-attribute distractors leak it
     assert row["majority_accuracy"] >= 0.95
     assert row["centroid_accuracy"] >= 0.95
     assert row["chance"] == 1 / 8 and row["n_items"] == 120 and row["n_choices"] == 8
@@ -85,7 +85,7 @@ def test_binomial_p_value_matches_the_tail_sum(one_off):
     report = audit_bank(one_off, picture_sample=0)
     row = shortcut_row(report, "one-off")
     n, k, p = row["n_items"], row["majority_hits"], row["chance"]
-    # reference: definition of the one-sided exact binomial test, P(X >= k) for X ~ Bin(n, p)
+    # reference: SOURCES.md#scipy-live — one-sided exact binomial test, P(X >= k), X ~ Bin(n, p)
     tail = sum(math.comb(n, j) * p**j * (1 - p) ** (n - j) for j in range(k, n + 1))
     assert row["majority_p"] == pytest.approx(tail, rel=1e-6)
 

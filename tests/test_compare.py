@@ -55,8 +55,8 @@ def _vectors(table):
 
 def test_kappa_matches_the_worked_textbook_example():
     a, b = _vectors([[20, 5], [10, 15]])
-    # reference: common textbook worked example (REFERENCES.md): observed .70, expected .50,
-    # kappa 0.40
+    # reference: SOURCES.md#kappa-textbook — common textbook worked example: observed .70,
+    # expected .50, kappa 0.40 (common practice)
     assert error_consistency_kappa(a, b) == pytest.approx(0.40, abs=1e-12)
 
 
@@ -71,7 +71,7 @@ def test_kappa_equals_cohens_kappa_from_scikit_learn(pairs):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # sklearn's own 0/0 guard
         ref = cohen_kappa_score(a, b)
-    # reference: scikit-learn cohen_kappa_score (REFERENCES.md: equals error consistency)
+    # reference: SOURCES.md#error-consistency — scikit-learn cohen_kappa_score
     np.testing.assert_allclose(error_consistency_kappa(a, b), ref, rtol=1e-12, atol=1e-12)
 
 
@@ -101,7 +101,7 @@ def test_all_pairs_agree_with_the_pairwise_definition_and_scikit_learn(trials):
     for row in pairs.sample(25, random_state=0).itertuples(index=False):
         a, b = wide[row.respondent_a].to_numpy(), wide[row.respondent_b].to_numpy()
         np.testing.assert_allclose(row.kappa, error_consistency_kappa(a, b), rtol=1e-12)
-        # reference: scikit-learn cohen_kappa_score
+        # reference: SOURCES.md#error-consistency — scikit-learn cohen_kappa_score
         np.testing.assert_allclose(row.kappa, cohen_kappa_score(a, b), rtol=1e-10)
         assert row.p_a == pytest.approx(a.mean()) and row.n_items == len(a)
 
@@ -131,7 +131,7 @@ def test_vectorised_rank_correlations_equal_scipy_with_ties(pairs):
     y = np.array([p[1] for p in pairs], float)
     if np.ptp(x) == 0 or np.ptp(y) == 0:
         return
-    # reference: scipy.stats.kendalltau (tau-b) and spearmanr
+    # reference: SOURCES.md#scipy-live — scipy.stats.kendalltau (tau-b) and spearmanr
     np.testing.assert_allclose(_kendall_rows(x[None], y[None])[0], stats.kendalltau(x, y)[0])
     np.testing.assert_allclose(_spearman_rows(x[None], y[None])[0], stats.spearmanr(x, y)[0])
 
@@ -154,7 +154,7 @@ def test_bootstrap_intervals_equal_scipy_bootstrap_on_the_same_statistic(statist
     y = np.round(x + rng.normal(size=40), 1)
     mine = bootstrap_ci(x, y, statistic=statistic, n_boot=600, seed=5).set_index("interval")
     for method, key in (("percentile", "percentile"), ("BCa", "bca")):
-        # reference: scipy.stats.bootstrap (paired, same resampling stream and estimator)
+        # reference: SOURCES.md#scipy-live — scipy.stats.bootstrap (paired, same stream)
         ref = stats.bootstrap(
             (x, y), _scipy_stat(statistic), paired=True, vectorized=True, n_resamples=600,
             method=method, rng=np.random.default_rng(5), confidence_level=0.95,
@@ -224,12 +224,12 @@ def test_g_test_and_cramers_v_match_scipy(trials):
     for row in tests.itertuples(index=False):
         sub = wrong[wrong["group"].isin(["human", row.group])]
         table = pd.crosstab(sub["group"] == "human", sub["error_type"]).to_numpy()
-        # reference: scipy.stats.chi2_contingency with the log-likelihood (G) statistic
+        # reference: SOURCES.md#scipy-live — chi2_contingency with the G statistic
         g, p, dof, _ = stats.chi2_contingency(table, correction=False, lambda_="log-likelihood")
         assert row.statistic == pytest.approx(g, rel=1e-10) and row.df == dof
         if row.test == "g_test":
             assert row.p_val == pytest.approx(p, rel=1e-10)
-        # reference: scipy.stats.contingency.association (Cramér's V)
+        # reference: SOURCES.md#scipy-live — scipy.stats.contingency.association (Cramér's V)
         v = stats.contingency.association(table, method="cramer", correction=False)
         assert row.cramers_v == pytest.approx(v, rel=1e-10)
 
@@ -243,8 +243,8 @@ def test_small_counts_use_a_permutation_test_that_agrees_with_fishers_exact():
     t = pd.DataFrame(rows)
     out = error_type_tests(t, n_perm=19999, seed=1).iloc[0]
     assert out["test"] == "permutation_g"
-    # reference: scipy.stats.fisher_exact, two-sided; for this symmetric 2 x 2 table the G and
-    # probability orderings coincide, so the permutation p estimates the same exact p (0.0801)
+    # reference: SOURCES.md#scipy-live — fisher_exact, two-sided; for this symmetric table the G
+    # and probability orderings coincide, so the permutation p estimates the same exact p (0.0801)
     exact = stats.fisher_exact([[5, 1], [1, 5]]).pvalue
     assert out["p_val"] == pytest.approx(exact, abs=0.01)
 
@@ -263,7 +263,7 @@ def test_log_odds_ratios_match_statsmodels(trials):
         )  # fmt: skip
         if (table == 0).any():
             table += 0.5
-        # reference: statsmodels Table2x2 (log odds ratio and Woolf standard error)
+        # reference: SOURCES.md#scipy-live — statsmodels Table2x2 (log odds ratio, Woolf SE)
         ref = Table2x2(table)
         assert row.log_odds_ratio == pytest.approx(ref.log_oddsratio, rel=1e-10)
         assert row.se == pytest.approx(ref.log_oddsratio_se, rel=1e-10)
@@ -322,7 +322,7 @@ def test_difficulty_reliability_is_high_with_spread_items_and_near_zero_without(
     assert abs(lo.loc["all", "split_half"]) < 0.2
     assert set(hi.index) == {"all", "grids", "strings"}
     for r in (hi.loc["all"], lo.loc["all"]):
-        # reference: Spearman 1910 / Brown 1910, the step-up formula 2r / (1 + r)
+        # reference: SOURCES.md#spearman-brown — Spearman 1910 / Brown 1910 (from memory)
         assert r["spearman_brown"] == pytest.approx(2 * r["split_half"] / (1 + r["split_half"]))
         assert r["q_low"] <= r["split_half"] <= r["q_high"]
 

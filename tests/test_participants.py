@@ -147,7 +147,7 @@ def test_bayes_factor_small_or_perfect_profiles_are_undefined():
     ],
 )
 def test_evidence_words(bf, words):
-    # reference: Lee & Wagenmakers 2013, Bayesian Cognitive Modeling, table 7.1 (from memory)
+    # reference: SOURCES.md#bf-evidence-words — Lee & Wagenmakers 2013, table 7.1 (from memory)
     assert evidence_label(bf) == words
 
 

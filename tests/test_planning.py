@@ -80,7 +80,7 @@ def test_spearman_rows_matches_scipy_with_ties():
         if np.ptp(x[i]) == 0 or np.ptp(y[i]) == 0:
             assert np.isnan(ours[i])
             continue
-        # reference: scipy.stats.spearmanr (average ranks for ties)
+        # reference: SOURCES.md#scipy-live — scipy.stats.spearmanr (average ranks for ties)
         assert_allclose(ours[i], spearmanr(x[i], y[i]).statistic, rtol=1e-12)
 
 

@@ -37,6 +37,6 @@ def test_logged_rt_matches_injected_key_time(x_display, tmp_path):  # noqa: F811
     assert len(df) >= 29  # the last press may die with the process
     err = np.array([row.rt_ms - expected[row.trial] for row in df.itertuples()])
     assert df["correct"].all()
-    # common practice: median within 5 ms, worst within one 60 Hz frame
+    # common practice (SOURCES.md#frame-timing): median within 5 ms, worst within one 60 Hz frame
     assert np.median(np.abs(err)) <= 5.0, err
     assert np.max(np.abs(err)) <= 16.7, err

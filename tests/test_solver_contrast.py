@@ -185,9 +185,9 @@ def _brute_force_predictive(view, *, max_length, noise, prior):
 
 @pytest.mark.parametrize(("budget", "noise"), [(8935, 0.0), (310, 0.1), (2295, 0.1)])
 def test_posterior_matches_plain_bayesian_model_averaging(default_items, budget, noise):
-    # reference: Bayesian model averaging over a finite hypothesis space, P(y | x, D) =
-    # sum_h P(y | x, h) P(h | D) (Tenenbaum & Griffiths 2001, eq. 2; from memory), computed
-    # by plain enumeration without the solver's grouping of equal truth vectors
+    # reference: SOURCES.md#bayesian-concept-learning — averaging over a finite hypothesis
+    # space, P(y | x, D) = sum_h P(y | x, h) P(h | D) (Tenenbaum & Griffiths 2001, eq. 2; from
+    # memory), computed by plain enumeration without the solver's grouping of equal truth vectors
     ref = make_builtin("contrast-ref", budget=budget, noise=noise)
     for it in default_items[:4]:
         view = render(it, "structured", "select")

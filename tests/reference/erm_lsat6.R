@@ -17,11 +17,12 @@ print(round(colMeans(x), 4))
 fit <- RM(x)  # conditional ML; eRm's default normalisation makes the parameters sum to zero
 cat("\n== lsat6-cml-rasch ==\n")
 cat("difficulties (eRm reports easiness beta; difficulty = -beta):\n")
-print(round(-fit$betapar, 4))
+print(round(setNames(-fit$betapar, colnames(x)), 4))
 cat("conditional logLik:", format(fit$loglik, digits = 10), "\n")
 
 # Person parameters by ML; persons with all-correct or all-wrong patterns get no estimate
 # and are left out of the item fit statistics.
+# (eRm warns "NaNs produced" from sqrt() for those extreme persons; it is expected.)
 pp <- person.parameter(fit)
 fitstats <- itemfit(pp)
 cat("\n== lsat6-cml-fit ==\n")
