@@ -391,12 +391,9 @@ def test_error_types_come_from_related_rules():
 # A slow reference copy of the error classifier as first written (one pass over every literal,
 # recomputing attributes each time); the cached, vectorised classifier must agree with it.
 def _related_reference(item):
-    from twofold.study.families.contrast import (
-        _labels,
-        _masks,
-        _popcount,
-        relevant_attributes,
-    )
+    from twofold.study.families.contrast import relevant_attributes
+    from twofold.study.families.contrast.enumeration import _popcount
+    from twofold.study.families.contrast.generation import _labels, _masks
 
     rule = parse_rule(item.answer["rule"])
     panels, n_a, n_b = panels_from_stimulus(item.stimulus)

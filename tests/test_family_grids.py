@@ -104,7 +104,7 @@ def test_translate_matches_scipy_shift(seed, d):
     g = rng.integers(0, 10, (5, 7)).astype(np.int8)
     out = G.apply_op(g, ("translate", d))
     # reference: scipy.ndimage.shift with order 0 and constant background (reference library)
-    expected = ndimage.shift(g, G._STEP[d], order=0, mode="constant", cval=0)
+    expected = ndimage.shift(g, G.operations._STEP[d], order=0, mode="constant", cval=0)
     assert np.array_equal(out, expected)
 
 
@@ -185,7 +185,9 @@ def test_ambiguous_demonstrations_are_rejected():
     x = arr([[1, 0, 1], [2, 0, 2], [0, 0, 0]])
     y = G.apply_op(x, ("flip_ud",))
     test = arr([[1, 2, 0], [0, 0, 0], [0, 0, 3]])
-    problem = G._validity([["flip_ud"]], [x, x], [y, y], test, G.apply_op(test, ("flip_ud",)))
+    problem = G.generation._validity(
+        [["flip_ud"]], [x, x], [y, y], test, G.apply_op(test, ("flip_ud",))
+    )
     assert problem == "ambiguous"
 
 
@@ -372,7 +374,7 @@ def test_views_deterministic_and_answer_free(seed, mode):
 def test_digit_labels_change_the_picture(monkeypatch):
     item = make(5)
     plain = render_picture(item, "generate", fmt="svg")
-    monkeypatch.setattr(G, "DIGIT_LABELS", True)
+    monkeypatch.setattr(G.drawing, "DIGIT_LABELS", True)
     labelled = render_picture(item, "generate", fmt="svg")
     assert plain != labelled
 
@@ -428,7 +430,7 @@ def test_choice_credit_matches_the_bank_audit(seed):
     ]
     wins = choice_shortcuts([g.tolist() for g in grids])
     expected = sum(0.5 / len(w) for w in wins.values() if 0 in w)
-    assert G._credit(grids) == pytest.approx(expected)
+    assert G.errors._credit(grids) == pytest.approx(expected)
 
 
 def test_select_choices_do_not_give_the_answer_away():

@@ -15,12 +15,12 @@ from twofold.study.families import Rejected, get_family
 from twofold.study.families.strings import (
     ALPHABETS,
     RULES,
-    _Analysis,
     apply_program,
     consistent_programs,
     description_length,
     literal_edit,
 )
+from twofold.study.families.strings.search import _Analysis
 from twofold.study.generate import item_rng
 from twofold.study.item import validate_record
 from twofold.study.render import render, render_picture
