@@ -93,7 +93,7 @@ def test_run_writes_scored_sessions_with_sidecars(tmp_path):
     ):
         assert key in side, key
     assert side["status"] == "complete" and side["seed"] == 1 and side["kind"] == "machine"
-    assert side["config_hash"] == study_solvers(study)[0].config_hash
+    assert side["config_hash"] == study_solvers(study)[0].identity_hash()
     assert (study.logs_dir / "machine" / "trials.schema.json").exists()
 
 
@@ -268,14 +268,19 @@ def test_progress_sink_gets_total_and_every_trial(tmp_path):
     sink = Sink()
     run_solvers(study, [spec("python:_toyfamily:Faulty")], progress=sink)
     assert sink.total == sink.done == 24 and sink.failed == 8
+    # the 8 failed trials are run again (not replayed); with keep_failures nothing is left
     sink2 = Sink()
     run_solvers(study, [spec("python:_toyfamily:Faulty")], progress=sink2)
-    assert sink2.total == 0 and sink2.done == 0
+    assert sink2.total == sink2.done == 8
+    sink3 = Sink()
+    run_solvers(study, [spec("python:_toyfamily:Faulty")], progress=sink3, keep_failures=True)
+    assert sink3.total == 0 and sink3.done == 0
 
 
 def test_cache_keys_separate_configs_and_seeds(tmp_path):
     study = make_study(tmp_path)
-    run_solvers(study, [spec("random", seeds=2), spec("random", options={"x": 1}, name="rx")])
+    rx = spec("python:_toyfamily:ToySolver", options={"wrong_every": 3}, name="rx")
+    run_solvers(study, [spec("random", seeds=2), rx])
     with TrialCache(tmp_path / "cache" / CACHE_FILE) as cache:
         assert cache.count() == 3 * 24
     a = json.loads((study.logs_dir / "machine" / "random-s0.json").read_text())

@@ -227,8 +227,18 @@ def test_check_solver_runs_a_few_items_and_reports(tmp_path):
     table = check_solver("python:_toyfamily:solve_structured", bank, n_items=3)
     assert list(table.columns) == list(CHECK_COLUMNS)
     assert len(table) == 6 and (table["status"] == "ok").all() and table["correct"].all()
-    with pytest.raises(SolverError, match="all 6 trials failed; first reason: solver raised"):
+    # a function that cannot take (view, mode) is refused before its first trial
+    with pytest.raises(SolverError, match="solve_text cannot be called as solve"):
         check_solver("python:_toyfamily:solve_text", bank, n_items=3)
+
+    class AlwaysFails:
+        medium = "structured"
+
+        def solve(self, view, mode):
+            raise RuntimeError("no")
+
+    with pytest.raises(SolverError, match="all 6 trials failed; first reason: solver raised"):
+        check_solver(AlwaysFails(), bank, n_items=3)
 
     class NoMedium:
         def solve(self, view, mode):

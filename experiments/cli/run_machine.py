@@ -53,6 +53,18 @@ def machine(
         Path | None, typer.Option("--import", help="Score an answers file (JSON lines) instead.")
     ] = None,
     name: Annotated[str | None, typer.Option(help="Solver name (sessions NAME-sSEED).")] = None,
+    keep_failures: Annotated[
+        bool,
+        typer.Option(
+            "--keep-failures", help="Keep failed and timed-out trials instead of retrying them."
+        ),
+    ] = False,
+    fresh: Annotated[
+        bool,
+        typer.Option(
+            "--fresh", help="Discard these solvers' cached trials (only theirs) and run again."
+        ),
+    ] = False,
 ) -> None:
     """Run machine solvers over the study's bank; resumes from the trial cache."""
     from twofold.experiments.machine import (
@@ -87,12 +99,30 @@ def machine(
             solver_from_string(e.name, seeds=seeds, options=opts, entries=entries) for e in entries
         ]
     with progress("machine trials") as bar:
-        table = run_solvers(study, specs, workers=workers, dask=dask, progress=bar)
+        table = run_solvers(
+            study,
+            specs,
+            workers=workers,
+            dask=dask,
+            progress=bar,
+            keep_failures=keep_failures,
+            fresh=fresh,
+        )
     for row in table.itertuples():
         rate = row.n_run / row.seconds if row.seconds > 0 else float("nan")
         console.print(
             f"{row.session}: {row.n_trials} trials ({row.n_cached} resumed, {row.n_run} run at "
             f"{rate:.1f}/s), accuracy {row.accuracy:.3f}, {row.n_invalid} invalid, "
             f"{row.n_timeout} timeout, {row.n_failed} failed"
+        )
+    n_trials = int(table["n_trials"].sum())
+    n_lost = int((table["n_failed"] + table["n_timeout"]).sum())
+    if n_trials and n_lost == n_trials:
+        from twofold.study.exceptions import RunnerError
+
+        first = table["first_failure"].dropna()
+        raise RunnerError(
+            f"every trial failed ({n_trials} trials in {len(table)} sessions); first reason: "
+            f"{first.iloc[0] if len(first) else 'unknown'}"
         )
     stdout.print(f"wrote {len(table)} machine sessions to {study.logs_dir / 'machine'}")

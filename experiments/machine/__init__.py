@@ -13,6 +13,7 @@ from .chat import ChatSolver
 from .check import CHECK_COLUMNS, check_solver
 from .command import PROTOCOL, PROTOCOL_VERSION, CommandSolver
 from .exchange import export_items, import_answers
+from .lock import SweepLock
 from .runner import SUMMARY_COLUMNS, plan_trials, run_solvers, run_trial
 from .spec import SolverSpec, build_solver, parse_solver_entry, solver_from_string, study_solvers
 
@@ -25,6 +26,7 @@ __all__ = [
     "CommandSolver",
     "FreeText",
     "SolverSpec",
+    "SweepLock",
     "TrialCache",
     "TrialFailure",
     "build_solver",

@@ -1,13 +1,35 @@
-"""Pieces shared by the adapters and the runner: free-text answers and trial failures."""
+"""Pieces shared by the adapters and the runner: free-text answers, trial failures, reply checks
+and secret scrubbing."""
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+import math
+from collections.abc import Iterable, Mapping
 from typing import Any
 
 from twofold.experiments.solvers import Answer
+from twofold.study.item import canonical_json
 
-__all__ = ["FreeText", "TrialFailure", "coerce_answer"]
+__all__ = [
+    "MAX_ANSWER_CHARS",
+    "MAX_EXPLANATION_CHARS",
+    "REDACTED",
+    "FreeText",
+    "TrialFailure",
+    "check_answer",
+    "coerce_answer",
+    "redact_mapping",
+    "scrub",
+]
+
+#: longest answer accepted (characters of its canonical JSON); longer replies are ``invalid``
+MAX_ANSWER_CHARS = 1_000_000
+#: longest explanation accepted (characters)
+MAX_EXPLANATION_CHARS = 20_000
+#: what a secret is replaced by in every record
+REDACTED = "***"
+#: secrets shorter than this are not searched for in text (they would match ordinary words)
+_MIN_SECRET = 4
 
 
 class FreeText(str):
@@ -64,3 +86,78 @@ def coerce_answer(value: Any) -> Answer:
             raw=value.get("raw"),
         )
     return Answer(value)
+
+
+def _what(value: Any) -> str:
+    text = repr(value)
+    return f"{type(value).__name__} {text[:60] + '...' if len(text) > 60 else text}"
+
+
+def check_answer(ans: Answer) -> Answer:
+    """Check the fields of a solver's :class:`Answer`; raise ``TrialFailure("invalid")`` if bad.
+
+    Accepted: ``explanation`` text (or none) up to :data:`MAX_EXPLANATION_CHARS`; ``effort`` a
+    finite number >= 0 (or none); ``effort_unit`` short text (or none); an ``answer`` that
+    serialises to JSON without NaN or infinities, at most :data:`MAX_ANSWER_CHARS` long.
+    """
+
+    def bad(field: str, value: Any, accepted: str) -> TrialFailure:
+        return TrialFailure(
+            "invalid", f"reply field '{field}': got {_what(value)}; accepted: {accepted}"
+        )
+
+    if ans.explanation is not None:
+        if not isinstance(ans.explanation, str):
+            raise bad("explanation", ans.explanation, "text")
+        if len(ans.explanation) > MAX_EXPLANATION_CHARS:
+            raise bad(
+                "explanation",
+                f"{len(ans.explanation)} characters",
+                f"at most {MAX_EXPLANATION_CHARS} characters",
+            )
+    if ans.effort is not None and (
+        isinstance(ans.effort, bool)
+        or not isinstance(ans.effort, int | float)
+        or not math.isfinite(ans.effort)
+        or ans.effort < 0
+    ):
+        raise bad("effort", ans.effort, "a finite number >= 0")
+    if ans.effort_unit is not None and (
+        not isinstance(ans.effort_unit, str) or not 0 < len(ans.effort_unit) <= 40
+    ):
+        raise bad("effort_unit", ans.effort_unit, "a short unit name (1-40 characters)")
+    if ans.answer is not None and not isinstance(ans.answer, FreeText):
+        try:
+            size = len(canonical_json(ans.answer))
+        except (TypeError, ValueError, RecursionError) as err:
+            raise bad(
+                "answer", ans.answer, f"a JSON value without NaN or infinity ({err})"
+            ) from None
+        if size > MAX_ANSWER_CHARS:
+            raise bad("answer", f"{size} characters", f"at most {MAX_ANSWER_CHARS} characters")
+    elif isinstance(ans.answer, FreeText) and len(ans.answer) > MAX_ANSWER_CHARS:
+        raise bad("text", f"{len(ans.answer)} characters", f"at most {MAX_ANSWER_CHARS} characters")
+    return ans
+
+
+def scrub(text: Any, secrets: Iterable[str]) -> Any:
+    """Replace every secret (of 4 characters or more) in ``text`` by :data:`REDACTED`.
+
+    Non-text values pass through unchanged. Longer secrets are replaced first, so a key that
+    contains another is removed whole.
+    """
+    if not isinstance(text, str):
+        return text
+    for secret in sorted(
+        {s for s in secrets if s and len(s) >= _MIN_SECRET}, key=len, reverse=True
+    ):
+        if secret in text:
+            text = text.replace(secret, REDACTED)
+    return text
+
+
+def redact_mapping(value: Any) -> Any:
+    """A copy of a table of secrets (headers, environment) with every value shown as ``***``."""
+    if isinstance(value, Mapping):
+        return {str(k): REDACTED for k in value}
+    return REDACTED if value is not None else None

@@ -40,7 +40,7 @@ from twofold.study.exceptions import InputError, SolverError, SpecError
 from twofold.study.item import MODES, canonical_json
 from twofold.study.render import MEDIA
 
-from ._core import coerce_answer
+from ._core import coerce_answer, redact_mapping
 
 __all__ = [
     "DEFAULT_TIMEOUT",
@@ -56,6 +56,8 @@ _ENTRY_KEYS = ("name", "spec", "seeds", "options", "timeout", "modes", "medium",
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 #: option names whose values are secrets and never enter a hash, log or report
 SECRET_OPTIONS = ("api_key",)
+#: option tables whose values may hold secrets; recorded with every value shown as ``***``
+REDACTED_TABLES = ("headers", "env")
 _INTERPRETERS = ("python", "node", "ruby", "perl", "julia", "Rscript", "bash", "sh", "java")
 
 
@@ -98,8 +100,15 @@ class SolverSpec:
         return _kind(self.spec)
 
     def config(self) -> dict[str, Any]:
-        """The configuration that determines the solver's answers (no name, seed or secrets)."""
+        """The configuration that determines the solver's answers (no name, seed or secrets).
+
+        Header values (``options.headers``) and a command child's environment values
+        (``options.env``) are shown as ``***``: they may hold keys.
+        """
         opts = {k: v for k, v in self.options.items() if k not in SECRET_OPTIONS}
+        for k in REDACTED_TABLES:
+            if k in opts:
+                opts[k] = redact_mapping(opts[k])
         return {
             "spec": self.spec,
             "options": opts,
@@ -113,6 +122,16 @@ class SolverSpec:
     def config_hash(self) -> str:
         """SHA-256 (hex) of the canonical :meth:`config`."""
         return hashlib.sha256(canonical_json(self.config()).encode("utf-8")).hexdigest()
+
+    def identity_hash(self, solver: Any = None) -> str:
+        """SHA-256 (hex) of :meth:`config` plus the ``version`` the built solver declares.
+
+        This is the trial-cache key of the solver's answers: a new spec, new options or a new
+        declared version start from scratch instead of replaying old answers.
+        """
+        version = getattr(solver, "version", None)
+        body = {**self.config(), "version": None if version is None else str(version)}
+        return hashlib.sha256(canonical_json(body).encode("utf-8")).hexdigest()
 
     def session_id(self, seed: int) -> str:
         return f"{self.name}-s{seed}"
@@ -391,9 +410,25 @@ class _FunctionSolver:
         self._owner = owner
         self.medium = medium
         self.max_in_flight = int(getattr(owner, "max_in_flight", 1) or 1)
+        #: the version the user's solver declares (part of the trial-cache key)
+        self.version = getattr(owner if owner is not None else fn, "version", None)
 
     def solve(self, view: Any, mode: str) -> Answer:
         return coerce_answer(self._fn(view, mode))
+
+
+def _check_signature(fn: Any, attr: str, where: str) -> None:
+    """Refuse a solve function that cannot be called as ``solve(view, mode)``."""
+    try:
+        sig = inspect.signature(fn)
+    except (TypeError, ValueError):  # builtins without a signature: trust them
+        return
+    try:
+        sig.bind(None, "generate")
+    except TypeError as err:
+        raise SolverError(
+            f"{where}: {attr} cannot be called as solve(view, mode) ({err}); fix its signature."
+        ) from None
 
     def close(self) -> None:
         close = getattr(self._owner, "close", None)
@@ -441,8 +476,10 @@ def _python_solver(spec: SolverSpec, seed: int, *, where: str) -> Solver:
         )
     medium = spec.options.get("medium") or getattr(obj, "medium", None) or "structured"
     if hasattr(obj, "solve") and callable(obj.solve):
+        _check_signature(obj.solve, f"{attr}.solve", where)
         return _FunctionSolver(obj.solve, medium, owner=obj)
     if callable(obj):
+        _check_signature(obj, attr, where)
         return _FunctionSolver(obj, medium)
     raise SolverError(
         f"{where}: {attr} is neither callable nor an object with a solve(view, mode) method."

@@ -1,5 +1,21 @@
 """Built-in solvers (reference solvers and baselines) and the solver protocol."""
 
-from ._base import Answer, Solver, builtin_solvers, make_builtin, register_solver
+from ._base import (
+    Answer,
+    ItemSeeded,
+    Solver,
+    builtin_solvers,
+    make_builtin,
+    register_solver,
+    trial_rng,
+)
 
-__all__ = ["Answer", "Solver", "builtin_solvers", "make_builtin", "register_solver"]
+__all__ = [
+    "Answer",
+    "ItemSeeded",
+    "Solver",
+    "builtin_solvers",
+    "make_builtin",
+    "register_solver",
+    "trial_rng",
+]

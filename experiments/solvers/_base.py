@@ -9,13 +9,25 @@ or ``"select"``. In select mode the answer is a 1-based choice number.
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Callable
+import hashlib
+from collections import Counter
+from collections.abc import Callable, Mapping
 from typing import Any, Protocol, runtime_checkable
 
+import numpy as np
 from twofold.study._check import fail
 from twofold.study.exceptions import InputError
+from twofold.study.item import canonical_json
 
-__all__ = ["Answer", "Solver", "builtin_solvers", "make_builtin", "register_solver"]
+__all__ = [
+    "Answer",
+    "ItemSeeded",
+    "Solver",
+    "builtin_solvers",
+    "make_builtin",
+    "register_solver",
+    "trial_rng",
+]
 
 
 @dataclasses.dataclass(frozen=True)
@@ -50,6 +62,42 @@ class Solver(Protocol):
     medium: str
 
     def solve(self, view: Any, mode: str) -> Answer: ...
+
+
+def trial_rng(seed: int, key: str, draw: int = 0) -> np.random.Generator:
+    """A generator seeded by ``(seed, key, draw)`` only: the same trial always gets the same stream.
+
+    ``key`` is the item id (or any stable text naming the trial); it enters through its SHA-256,
+    so the stream does not depend on which items were solved before, in which process or in
+    which order -- a resumed or multi-process sweep draws exactly what an uninterrupted one does.
+    """
+    digest = hashlib.sha256(key.encode("utf-8")).digest()
+    words = [int.from_bytes(digest[i : i + 4], "little") for i in range(0, 16, 4)]
+    return np.random.default_rng([int(seed), *words, int(draw)])
+
+
+class ItemSeeded:
+    """Mixin for seeded solvers: one random stream per ``(seed, item id, mode)``.
+
+    The item id comes from the structured view's ``item`` field; a view without one (a hand-made
+    view) is keyed by its canonical JSON. Asking again for the same trial in the same solver
+    object gives the next stream (``draw`` counts up), so repeated calls on one view still vary.
+    """
+
+    seed: int
+
+    def _trial_rng(self, view: Any, mode: str) -> np.random.Generator:
+        if isinstance(view, Mapping) and isinstance(view.get("item"), str):
+            key = f"item:{view['item']}|{mode}"
+        else:
+            try:
+                key = "view:" + canonical_json(view) + "|" + mode
+            except (TypeError, ValueError):
+                key = f"view:{view!r}|{mode}"
+        draws = self.__dict__.setdefault("_draws", Counter())
+        draw = draws[key]
+        draws[key] += 1
+        return trial_rng(self.seed, key, draw)
 
 
 #: name -> (factory(**options) -> Solver, one-line description)

@@ -20,11 +20,10 @@ from collections import Counter
 from collections.abc import Mapping
 from typing import Any
 
-import numpy as np
 from twofold.study.exceptions import SolverError
 from twofold.study.item import canonical_json
 
-from ._base import Answer, register_solver
+from ._base import Answer, ItemSeeded, register_solver
 
 __all__ = ["ChoicesOnlySolver", "RandomSolver", "flatten_payload"]
 
@@ -53,20 +52,29 @@ def _panels(view: Mapping[str, Any], choices: list[Any]) -> int | None:
     return None
 
 
-class RandomSolver:
+def _check_seed(seed: Any, where: str) -> int:
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        raise SolverError(f"{where}: field 'seed': got {seed!r}; accepted: an integer >= 0.")
+    return seed
+
+
+class RandomSolver(ItemSeeded):
     """Pick a choice uniformly at random (select); abstain (generate).
 
     Parameters
     ----------
     seed : int, default 0
-        Seed of the solver's random stream (one stream per solver, advancing trial by trial).
+        Session seed; each trial draws from a stream seeded by (seed, item id, mode)
+        (:func:`~twofold.experiments.solvers.trial_rng`), so answers do not depend on the order
+        or the process in which items are solved.
     """
 
     medium = "structured"
+    #: declared solver version (part of the trial-cache key)
+    version = "2"
 
-    def __init__(self, *, seed: int = 0, **_ignored: Any):
-        self.seed = seed
-        self._rng = np.random.default_rng(seed)
+    def __init__(self, *, seed: int = 0):
+        self.seed = _check_seed(seed, "random")
 
     def solve(self, view: Any, mode: str) -> Answer:
         if mode != "select":
@@ -74,15 +82,16 @@ class RandomSolver:
         choices = _choices(view)
         n = len(choices)
         panels = _panels(view, choices)
+        rng = self._trial_rng(view, mode)
         if panels is not None:
-            labels = "".join(choices[int(i)] for i in self._rng.integers(0, n, panels))
+            labels = "".join(choices[int(i)] for i in rng.integers(0, n, panels))
             return Answer(
                 labels,
                 effort=float(panels),
                 effort_unit="choices",
                 explanation=f"a random label for each of {panels} panels",
             )
-        k = int(self._rng.integers(1, n + 1))
+        k = int(rng.integers(1, n + 1))
         return Answer(k, effort=1.0, effort_unit="choices", explanation=f"random pick of {n}")
 
 
@@ -109,7 +118,7 @@ def flatten_payload(value: Any, prefix: str = "") -> dict[str, str]:
     return {prefix: canonical_json(value)}
 
 
-class ChoicesOnlySolver:
+class ChoicesOnlySolver(ItemSeeded):
     """Pick the choice that agrees most with the attribute-wise majority of all choices.
 
     Context-blind: the stimulus is never looked at. Each choice's JSON payload is flattened into
@@ -122,22 +131,24 @@ class ChoicesOnlySolver:
     Parameters
     ----------
     seed : int, default 0
-        Seed for breaking ties.
+        Session seed for breaking ties (a stream per trial, as in :class:`RandomSolver`).
     """
 
     medium = "structured"
+    #: declared solver version (part of the trial-cache key)
+    version = "2"
 
-    def __init__(self, *, seed: int = 0, **_ignored: Any):
-        self.seed = seed
-        self._rng = np.random.default_rng(seed)
+    def __init__(self, *, seed: int = 0):
+        self.seed = _check_seed(seed, "choices-only")
 
     def solve(self, view: Any, mode: str) -> Answer:
         if mode != "select":
             return Answer(None, effort=0.0, effort_unit="attributes", explanation=_ABSTAIN)
         choices = _choices(view)
         panels = _panels(view, choices)
+        rng = self._trial_rng(view, mode)
         if panels is not None:  # bare labels carry no attributes: every label ties
-            labels = "".join(choices[int(i)] for i in self._rng.integers(0, len(choices), panels))
+            labels = "".join(choices[int(i)] for i in rng.integers(0, len(choices), panels))
             return Answer(
                 labels,
                 effort=0.0,
@@ -153,7 +164,7 @@ class ChoicesOnlySolver:
         scores = [sum(f.get(p) == majority[p] for p in paths) for f in flat]
         best = max(scores)
         tied = [k for k, s in enumerate(scores, start=1) if s == best]
-        k = tied[0] if len(tied) == 1 else int(self._rng.choice(tied))
+        k = tied[0] if len(tied) == 1 else int(rng.choice(tied))
         return Answer(
             k,
             effort=float(len(paths) * len(flat)),

@@ -14,27 +14,30 @@ from __future__ import annotations
 
 from typing import Any
 
-import numpy as np
 from twofold.study.exceptions import InputError
 from twofold.study.families.matrices import ATTRIBUTES, HYPOTHESES, rule_fits
 
-from ._base import Answer, register_solver
+from ._base import Answer, ItemSeeded, register_solver
 
 __all__ = ["MatricesReference"]
 
 
-class MatricesReference:
+class MatricesReference(ItemSeeded):
     """Rule-by-rule inference on the structured view (see the module docstring).
 
     Parameters
     ----------
     seed : int, default 0
-        Seeds the order in which attributes are examined and the random tie breaks.
+        Session seed: the order in which attributes are examined and the random tie breaks are
+        drawn from a stream seeded by (seed, item id, mode), so an item's answer does not depend
+        on which items were solved before it or in which process.
     budget : int, default 24
         Most rule hypotheses tried on one item (over all attributes).
     """
 
     medium = "structured"
+    #: declared solver version (part of the trial-cache key)
+    version = "2"
 
     def __init__(self, *, seed: int = 0, budget: int = 24):
         if isinstance(budget, bool) or not isinstance(budget, int) or budget < 0:
@@ -49,7 +52,6 @@ class MatricesReference:
             )
         self.seed = seed
         self.budget = budget
-        self._rng = np.random.default_rng(seed)
 
     def solve(self, view: dict[str, Any], mode: str) -> Answer:
         """Infer each attribute's row rule and predict (or pick) the missing panel."""
@@ -57,7 +59,8 @@ class MatricesReference:
         numeric = set(view.get("numeric", ()))
         panels = view["panels"]
         visible = [panels[r][c] for r in range(3) for c in range(3) if (r, c) != (2, 2)]
-        order = [ATTRIBUTES[int(j)] for j in self._rng.permutation(len(ATTRIBUTES))]
+        rng = self._trial_rng(view, mode)
+        order = [ATTRIBUTES[int(j)] for j in rng.permutation(len(ATTRIBUTES))]
         effort = 0
         predicted: dict[str, Any] = {}
         notes = []
@@ -87,7 +90,7 @@ class MatricesReference:
             agree = [sum(ch[a] == v for a, v in predicted.items()) for ch in choices]
             best = max(agree)
             tied = [k for k, s in enumerate(agree) if s == best]
-            pick = tied[int(self._rng.integers(len(tied)))] + 1
+            pick = tied[int(rng.integers(len(tied)))] + 1
             return Answer(pick, effort=float(effort), effort_unit="rules", explanation=expl)
         guess = dict(visible[-1])
         guess.update(predicted)

@@ -13,7 +13,7 @@ from typing import Any
 from twofold.study._check import fail
 from twofold.study.exceptions import InputError
 
-from ._base import Answer, Solver, make_builtin, register_solver
+from ._base import Answer, Solver, builtin_solvers, make_builtin, register_solver
 
 __all__ = ["ReferenceSolver"]
 
@@ -29,6 +29,8 @@ class ReferenceSolver:
         Budget per family; a family not named uses its solver's default budget.
     budget : int, optional
         One budget for every family (``budgets`` entries win).
+
+    Every family's solver is built here, so a bad option fails before the first trial.
     """
 
     medium = "structured"
@@ -37,9 +39,24 @@ class ReferenceSolver:
         self, *, seed: int = 0, budgets: Mapping[str, int] | None = None, budget: int | None = None
     ):
         self.seed = seed
+        if budgets is not None and not isinstance(budgets, Mapping):
+            raise fail("budgets", budgets, "a table {family = budget}", error=InputError)
         self.budgets = dict(budgets or {})
         self.budget = budget
         self._solvers: dict[str, Solver] = {}
+        names = builtin_solvers()
+        families = sorted(n[: -len("-ref")] for n in names if n.endswith("-ref"))
+        for fam in sorted(self.budgets):
+            if fam not in families:
+                raise fail(
+                    "budgets." + str(fam), fam, "one of " + ", ".join(families), error=InputError
+                )
+        for fam in families:
+            self._solver(fam)
+        #: declared version (part of the trial-cache key): this dispatcher's and each family's
+        self.version = "reference/2;" + ";".join(
+            f"{fam}-ref/{getattr(self._solvers[fam], 'version', None) or '1'}" for fam in families
+        )
 
     def _solver(self, family: str) -> Solver:
         if family not in self._solvers:
