@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import importlib
 import json
 import subprocess
 import sys
@@ -197,16 +196,3 @@ def test_generic_top_level_names_are_not_importable():
         [sys.executable, "-c", code], capture_output=True, text=True, cwd="/", check=True
     )
     assert res.stdout.strip() == "[True, True, True]"
-
-
-@pytest.mark.parametrize("pkg", ["twofold.study", "twofold.analysis", "twofold.experiments"])
-def test_public_names_are_sorted_and_exist(pkg):
-    mod = importlib.import_module(pkg)
-    names = list(getattr(mod, "__all__", []))
-
-    def isort_key(name: str) -> tuple[int, str]:  # constants, then classes, then functions
-        return (0 if name.isupper() else 1 if name[0].isupper() else 2, name)
-
-    assert names == sorted(names, key=isort_key)
-    for name in names:
-        assert hasattr(mod, name), f"{pkg}.__all__ lists {name!r} but it is missing"
