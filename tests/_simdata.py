@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 from twofold.study.bank import Bank, write_bank
-from twofold.study.families import Family, ParamSpec, register
+from twofold.study.families import Family, ParamSpec
 from twofold.study.item import Item
 from twofold.study.logs import TrialLogWriter
 
@@ -102,17 +102,10 @@ def tally_registered() -> Iterator[TallyFamily]:
     It is never left registered, so the shared tests that run over every registered family
     (collected after these modules are imported) do not see it.
     """
-    from twofold.study.families import _REGISTRY
+    from twofold.study.families import FAMILIES
 
-    before = _REGISTRY.get(FAMILY.name)
-    register(FAMILY)
-    try:
-        yield FAMILY
-    finally:
-        if before is None:
-            _REGISTRY.pop(FAMILY.name, None)
-        else:
-            _REGISTRY[FAMILY.name] = before
+    with FAMILIES.registered(FAMILY.name, FAMILY) as family:
+        yield family
 
 
 def make_bank(n_parents: int = 16, *, seed: int = 1, isomorphs: bool = True) -> Bank:

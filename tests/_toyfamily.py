@@ -130,7 +130,7 @@ def use_toy(monkeypatch: Any = None) -> ToyFamily:
     """Register the toy family; with ``monkeypatch``, only until the test ends."""
     if monkeypatch is None:
         return families.register(TOY)
-    monkeypatch.setitem(families._REGISTRY, TOY.name, TOY)
+    monkeypatch.setitem(families.FAMILIES._entries, TOY.name, TOY)
     return TOY
 
 

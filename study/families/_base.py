@@ -182,6 +182,12 @@ class Family(abc.ABC):
     default_choices: ClassVar[int] = 8
     #: the form of a generate-mode answer, stated in prompts and export manifests
     answer_format: ClassVar[str] = ""
+    #: name of the built-in solver that solves this family's items (``None``: none is built in);
+    #: the multi-family ``reference`` solver dispatches to it
+    reference_solver: ClassVar[str | None] = None
+    #: a person's typical response time on an item of middling difficulty, in milliseconds
+    #: (the base of simulated response times)
+    typical_rt_ms: ClassVar[float] = 10000.0
 
     # -- generation ---------------------------------------------------------------------------
     @abc.abstractmethod

@@ -256,6 +256,8 @@ class MatricesFamily(Family):
 
     name = "matrices"
     prefix = "mat"
+    reference_solver = "matrices-ref"
+    typical_rt_ms = 14000.0
     version = "1"
     modes = ("generate", "select")
     params = (

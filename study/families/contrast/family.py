@@ -64,13 +64,11 @@ class ContrastFamily(ContrastErrors, ContrastDrawing, Family):
     """Two sets of panels split by a hidden rule; classify test panels or state the rule."""
 
     name = "contrast"
-
     prefix = "con"
-
+    reference_solver = "contrast-ref"
+    typical_rt_ms = 18000.0
     version = "1"
-
     modes = ("select", "generate")
-
     params = (
         ParamSpec("length", "int", 3, "description length of the hidden rule", low=1, high=6),
         ParamSpec(
@@ -105,13 +103,10 @@ class ContrastFamily(ContrastErrors, ContrastDrawing, Family):
             "reject items where a shorter rule than the hidden one separates the sets",
         ),
     )
-
     factors = ("rule_length", "attribute", "relational", "distractors", "objects")
-
     distractor_schemes = {
         "per-panel": "each test panel is classified A or B; no whole-item choices (null)",
     }
-
     variant_operators = {
         "swap-sets": "exchange sets A and B; the rule becomes its negation (validity is "
         "checked up to the shorter of the rule and its negation)",
@@ -119,7 +114,6 @@ class ContrastFamily(ContrastErrors, ContrastDrawing, Family):
         "change-surface": "swap two values of an attribute the rule names (e.g. two shapes)",
         "mirror": "mirror every panel left to right (left and right swap in the rule)",
     }
-
     error_types = {
         "reversed-sets": "classified every test panel the other way (the negated rule)",
         "over-general": "applied a shorter, more general rule that also admits panels of set B",
@@ -129,9 +123,7 @@ class ContrastFamily(ContrastErrors, ContrastDrawing, Family):
         "does not use",
         "other": "any other wrong response",
     }
-
     default_choices = 2
-
     answer_format = (
         "select: one letter A or B per test panel in order (e.g. ABBA); generate: the rule in "
         f"the contrast notation (e.g. {_EXAMPLE_RULE})"

@@ -29,9 +29,8 @@ from .generation import (
 from .operations import _DIHEDRAL, KINDS, MAX_SIDE, OPS, Grid, _label, apply_op, apply_program
 from .text import _CHOICE, _MARK, _arr, _is_grid, _lst, format_grid, parse_grids
 
+
 # -- the family ---------------------------------------------------------------------------------
-
-
 class GridsFamily(GridsDrawing, Family):
     """Few-shot colour-grid transformations from a small grammar of grid operations.
 
@@ -61,13 +60,11 @@ class GridsFamily(GridsDrawing, Family):
     """
 
     name = "grids"
-
     prefix = "grd"
-
+    reference_solver = "grids-ref"
+    typical_rt_ms = 35000.0
     version = "1"
-
     modes = ("generate", "select")
-
     params = (
         ParamSpec("depth", "int", 2, "number of operations composed", 1, 3),
         ParamSpec(
@@ -88,16 +85,13 @@ class GridsFamily(GridsDrawing, Family):
             options=("any", "same", "different"),
         ),
     )
-
     factors = ("depth", "kinds", "size", "n_objects", "n_demos", "size_change")
-
     distractor_schemes = {
         "near-miss": "outputs of related programs: a prefix of the composition (the first is "
         "the test input itself), one or two operations swapped for siblings, the operations "
         "reversed; padded with a few recoloured cells when these run out; the set is drawn so "
         "that the choices alone favour the answer only at chance"
     }
-
     variant_operators = {
         "permute_colours": "relabel the colours 1-9 by one permutation across the whole item",
         "rotate_flip": "rotate or mirror every grid of the item the same way "
@@ -106,7 +100,6 @@ class GridsFamily(GridsDrawing, Family):
         "canvas (each grid by its own offset; outputs recomputed)",
         "resize_canvas": "add background rows and columns to every input grid",
     }
-
     error_types = {
         "identity_copy": "the test input copied unchanged",
         "partial": "the output of part of the composition (e.g. its first steps)",
@@ -115,9 +108,7 @@ class GridsFamily(GridsDrawing, Family):
         "wrong_content": "the right shape, at least half the cells right, other content",
         "other": "any other wrong response (the right shape, mostly wrong)",
     }
-
     default_choices = 4
-
     answer_format = (
         "the output grid: one row per line, one digit 0-9 per cell (0 = background), "
         "no spaces or other characters"

@@ -35,13 +35,11 @@ class StringsFamily(StringsDrawing, Family):
     """Symbol-string analogies with recorded alternative readings (see the module docstring)."""
 
     name = "strings"
-
     prefix = "str"
-
+    reference_solver = "strings-ref"
+    typical_rt_ms = 7000.0
     version = "2"
-
     modes = ("generate", "select")
-
     params = (
         ParamSpec(
             "rule",
@@ -76,7 +74,6 @@ class StringsFamily(StringsDrawing, Family):
             options=tuple(ALPHABETS),
         ),
     )
-
     factors = (
         "rule",
         "length",
@@ -87,24 +84,19 @@ class StringsFamily(StringsDrawing, Family):
         "alphabet",
         "n_readings",
     )
-
     distractor_schemes = {
         "near-miss": "wrong answers from related rules (literal copy, wrong position, wrong "
         "grouping, wrong direction, partial change, no change), topped up with one-symbol edits",
         "one-edit": "the answer with one symbol replaced, inserted or removed",
     }
-
     variant_operators = {
         "other-alphabet": "same rule, grouping and direction on another symbol order",
         "reverse-direction": "strings run the other way along the symbol order; same rule",
         "longer": "one or two more groups in source and target; same rule",
         "relocate": "same structure started at other places of the same symbol order",
     }
-
     error_types = _ERROR_TYPES
-
     default_choices = 4
-
     answer_format = (
         "the changed target string: symbols from the given order, written without spaces"
     )
