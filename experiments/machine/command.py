@@ -13,9 +13,11 @@ stdout; the child's stderr is kept in a file and its last lines are quoted in fa
    reply (child -> runner), the child's first line on stdout::
 
        {"protocol": "twofold-jsonl", "version": 1, "type": "hello", "medium": "structured",
-        "name": "optional display name"}
+        "name": "optional display name", "solver_version": "optional, e.g. 2.1"}
 
    ``medium`` is the view the child wants: ``text``, ``structured`` or ``picture``.
+   ``solver_version`` (text) becomes part of the trial-cache key: declare a new one when the
+   child's answers change, and the next run solves every item again instead of replaying.
 
 2. solve (one per trial)::
 
@@ -36,7 +38,9 @@ stdout; the child's stderr is kept in a file and its last lines are quoted in fa
 Faults: a reply not received within the trial timeout, a child that exits, or a broken pipe end
 the trial as ``timeout`` or ``failed`` with the reason; the child is restarted (hello again) for
 the next trial. Lines on stdout that are not JSON objects are skipped and quoted in the reason if
-no reply follows. A reply with a wrong ``version`` fails the trial.
+no reply follows. A reply with a wrong ``version`` fails the trial. A reply line longer than
+``max_reply_bytes`` (an adapter option, default 16 MiB, not sent to the child) is skipped and the
+trial logged ``invalid``.
 """
 
 from __future__ import annotations
@@ -66,13 +70,46 @@ PROTOCOL = "twofold-jsonl"
 PROTOCOL_VERSION = 1
 #: seconds a child has to answer the hello message
 HELLO_TIMEOUT = 20.0
+#: longest reply line accepted by default (bytes)
+MAX_REPLY_BYTES = 16 * 1024 * 1024
 _EOF = object()
+_TOO_LONG = object()
+_ADAPTER_OPTIONS = ("env", "max_reply_bytes")
+
+
+def _read_lines(stream: Any, out: queue.Queue[Any], limit: int) -> None:
+    """Reader thread body: buffered line reads from ``stream`` into ``out``, then ``_EOF``.
+
+    A line longer than ``limit`` bytes is skipped to its end and reported as ``_TOO_LONG``. A
+    stream closed under the reader ends it quietly (no traceback from a dead child's reader).
+    """
+    try:
+        while True:
+            line = stream.readline(limit + 1)
+            if not line:
+                break
+            if len(line) > limit and not line.endswith(b"\n"):
+                while True:
+                    rest = stream.readline(1 << 16)
+                    if not rest or rest.endswith(b"\n"):
+                        break
+                out.put(_TOO_LONG)
+                continue
+            out.put(line)
+    except (OSError, ValueError):
+        pass
+    finally:
+        out.put(_EOF)
 
 
 class _Child:
-    """One running child: the process, a reader thread feeding a queue, a stderr file."""
+    """One running child: the process, its own reader thread and queue, a stderr file.
 
-    def __init__(self, argv: list[str], env: Mapping[str, str] | None):
+    Each child gets a fresh reader and queue, so nothing a dead child printed (nor its reader)
+    can reach the next one.
+    """
+
+    def __init__(self, argv: list[str], env: Mapping[str, str] | None, max_reply: int):
         self.stderr = tempfile.TemporaryFile(mode="w+b")  # noqa: SIM115 - closed in kill()
         try:
             self.proc = subprocess.Popen(
@@ -81,20 +118,19 @@ class _Child:
                 stdout=subprocess.PIPE,
                 stderr=self.stderr,
                 env=None if env is None else {**os.environ, **env},
-                bufsize=0,
+                bufsize=-1,
             )
         except OSError:
             self.stderr.close()
             raise
         self.lines: queue.Queue[Any] = queue.Queue()
-        self._reader = threading.Thread(target=self._read, daemon=True)
+        self._reader = threading.Thread(
+            target=_read_lines,
+            args=(self.proc.stdout, self.lines, max_reply),
+            name="twofold-child-reader",
+            daemon=True,
+        )
         self._reader.start()
-
-    def _read(self) -> None:
-        assert self.proc.stdout is not None
-        for line in self.proc.stdout:
-            self.lines.put(line)
-        self.lines.put(_EOF)
 
     def send(self, message: Mapping[str, Any]) -> None:
         assert self.proc.stdin is not None
@@ -114,7 +150,7 @@ class _Child:
     def kill(self, *, now: bool = False) -> None:
         if now:
             self.proc.kill()
-        with contextlib.suppress(OSError):
+        with contextlib.suppress(OSError, ValueError):
             if self.proc.stdin:
                 self.proc.stdin.close()
         try:
@@ -122,7 +158,10 @@ class _Child:
         except subprocess.TimeoutExpired:
             self.proc.kill()
             self.proc.wait()
-        if self.proc.stdout:
+        # the reader sees end-of-file once the child is gone; close its pipe only after it is
+        # done, so it never reads a closed file
+        self._reader.join(timeout=2)
+        if self.proc.stdout and not self._reader.is_alive():
             self.proc.stdout.close()
         self.stderr.close()
 
@@ -169,6 +208,24 @@ class CommandSolver:
             raise SolverError(f"solver '{name}': empty command; write command:PROGRAM ARGS...")
         self.options = dict(options or {})
         self.env = self.options.pop("env", None)
+        if self.env is not None and not (
+            isinstance(self.env, Mapping) and all(isinstance(v, str) for v in self.env.values())
+        ):
+            raise SolverError(
+                f"solver '{name}': field 'options.env': got {type(self.env).__name__}; "
+                "accepted: a table of text values."
+            )
+        limit = self.options.pop("max_reply_bytes", MAX_REPLY_BYTES)
+        if isinstance(limit, bool) or not isinstance(limit, int) or not 1024 <= limit <= 1 << 31:
+            raise SolverError(
+                f"solver '{name}': field 'options.max_reply_bytes': got {limit!r}; accepted: "
+                "an integer from 1024 to 2147483648."
+            )
+        self.max_reply_bytes = limit
+        #: values the runner writes as *** wherever they would appear
+        self.secrets = [str(v) for v in (self.env or {}).values()]
+        #: the version the child declares in its hello reply (part of the trial-cache key)
+        self.version: str | None = None
         self.seed = seed
         self.timeout = timeout
         self.name = name
@@ -188,7 +245,7 @@ class CommandSolver:
     # -- child management -----------------------------------------------------------------------
     def _start(self) -> None:
         try:
-            child = _Child(self.argv, self.env)
+            child = _Child(self.argv, self.env, self.max_reply_bytes)
         except OSError as err:
             raise TrialFailure(
                 "failed", f"cannot start {self.argv[0]!r}: {err.strerror or err}"
@@ -221,6 +278,8 @@ class CommandSolver:
                 f"hello reply field 'medium': got {medium!r}; accepted: one of " + ", ".join(MEDIA),
             )
         self.medium = medium
+        declared = reply.get("solver_version")
+        self.version = None if declared is None else str(declared)[:200]
 
     def _drop(self, *, now: bool = False) -> None:
         if self._child is not None:
@@ -246,6 +305,15 @@ class CommandSolver:
                 raise TrialFailure(
                     "timeout", f"no {what} within {timeout:g} s (child restarted){extra}"
                 ) from None
+            if line is _TOO_LONG:
+                if strict:
+                    self._drop()
+                    raise TrialFailure("failed", f"{what} longer than {self.max_reply_bytes} bytes")
+                raise TrialFailure(
+                    "invalid",
+                    f"{what} longer than {self.max_reply_bytes} bytes (options.max_reply_bytes); "
+                    "skipped",
+                )
             if line is _EOF:
                 code = child.proc.wait()
                 tail = child.stderr_tail()

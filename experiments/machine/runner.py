@@ -651,17 +651,18 @@ def _run_session(
     counts: Counter[str] = Counter(r["status"] for r in rows.values())
     correct = sum(1 for r in rows.values() if r.get("correct") is True)
     failures = [r for _, r in sorted(rows.items()) if r["status"] in ("failed", "timeout")]
-    writer.update_sidecar(
-        status="complete",
-        ended=_now(),
-        n_trials=len(rows),
-        n_ok=counts["ok"],
-        n_invalid=counts["invalid"],
-        n_timeout=counts["timeout"],
-        n_failed=counts["failed"],
-        effort_unit=units.most_common(1)[0][0] if units else None,
-        elapsed_s=round(time.time() - t0, 3),
-    )
+    with TrialLogWriter(csv_path, sidecar=side_path, fsync=False) as final:
+        final.update_sidecar(
+            status="complete",
+            ended=_now(),
+            n_trials=len(rows),
+            n_ok=counts["ok"],
+            n_invalid=counts["invalid"],
+            n_timeout=counts["timeout"],
+            n_failed=counts["failed"],
+            effort_unit=units.most_common(1)[0][0] if units else None,
+            elapsed_s=round(time.time() - t0, 3),
+        )
     total = len(rows)
     first = None
     if failures:
