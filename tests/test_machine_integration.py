@@ -15,11 +15,12 @@ from twofold.experiments.machine import (
 from twofold.experiments.solvers import builtin_solvers, make_builtin
 from twofold.study import known_families, load_study, read_trials
 
-pytestmark = pytest.mark.skipif(
-    not {"strings", "matrices"} <= set(known_families())
-    or not {"strings-ref", "matrices-ref"} <= set(builtin_solvers()),
-    reason="the strings and matrices families and their reference solvers are not installed",
-)
+
+def test_the_families_and_reference_solvers_used_here_are_registered():
+    # a broken registration must fail here, not skip the module
+    assert {"strings", "matrices"} <= set(known_families())
+    assert {"strings-ref", "matrices-ref"} <= set(builtin_solvers())
+
 
 STUDY = """
 [study]
