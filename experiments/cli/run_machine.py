@@ -46,6 +46,9 @@ def machine(
     dask: Annotated[
         str | None, typer.Option(help="Run on Dask: a scheduler address or 'local'.")
     ] = None,
+    dask_timeout: Annotated[
+        float, typer.Option(help="Seconds to wait for the Dask scheduler before giving up.")
+    ] = 10.0,
     option: Annotated[
         list[str] | None, typer.Option("--option", help="Solver option KEY=VALUE (repeatable).")
     ] = None,
@@ -74,7 +77,7 @@ def machine(
         study_solvers,
     )
     from twofold.study import load_study
-    from twofold.study._check import check_int, fail
+    from twofold.study._check import check_int, check_number, fail
 
     study = load_study(study_toml)
     if import_ is not None:
@@ -87,6 +90,7 @@ def machine(
             )
         return
     check_int("--workers", workers, low=1, high=256)
+    check_number("--dask-timeout", dask_timeout, low=0.1, high=3600)
     entries = study_solvers(study)
     opts = _options(option or [])
     if solver:
@@ -107,6 +111,7 @@ def machine(
             progress=bar,
             keep_failures=keep_failures,
             fresh=fresh,
+            dask_timeout=dask_timeout,
         )
     for row in table.itertuples():
         rate = row.n_run / row.seconds if row.seconds > 0 else float("nan")

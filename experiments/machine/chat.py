@@ -43,7 +43,7 @@ import httpx
 from twofold.experiments.solvers import Answer
 from twofold.study.exceptions import SolverError
 
-from ._core import FreeText, TrialFailure
+from ._core import FreeText, TrialFailure, scrub
 
 __all__ = ["ChatSolver", "RateLimiter"]
 
@@ -128,19 +128,55 @@ class ChatSolver:
         if opts.get("medium", "text") != "text":
             raise SolverError(f"{where}: the chat adapter sends the text view; set medium = text.")
         self.url, self.name, self.seed = url, name, seed
+
+        def num(key: str, default: float, low: float, high: float, *, whole: bool = False) -> Any:
+            value = opts.get(key, default)
+            kinds = (int,) if whole else (int, float)
+            if (
+                isinstance(value, bool)
+                or not isinstance(value, kinds)
+                or not low <= value <= high
+                or value != value
+            ):
+                kind = "an integer" if whole else "a number"
+                raise SolverError(
+                    f"{where}: field 'options.{key}': got {value!r}; accepted: {kind} from "
+                    f"{low:g} to {high:g}."
+                )
+            return value
+
         self.model = opts.get("model", "")
-        self.temperature = float(opts.get("temperature", 0.0))
-        self.max_tokens = int(opts.get("max_tokens", 512))
+        if not isinstance(self.model, str):
+            raise SolverError(
+                f"{where}: field 'options.model': got {self.model!r}; accepted: text."
+            )
+        self.temperature = float(num("temperature", 0.0, 0.0, 10.0))
+        self.max_tokens = int(num("max_tokens", 512, 1, 10_000_000, whole=True))
         self.system = opts.get("system")
-        self.concurrency = max(1, int(opts.get("concurrency", 4)))
-        self.retries = max(0, int(opts.get("retries", 4)))
-        self.backoff = float(opts.get("backoff", 0.5))
-        self.backoff_max = float(opts.get("backoff_max", 30.0))
-        self.request_timeout = float(opts.get("request_timeout", timeout))
+        if self.system is not None and not isinstance(self.system, str):
+            raise SolverError(
+                f"{where}: field 'options.system': got {self.system!r}; accepted: text."
+            )
+        self.concurrency = int(num("concurrency", 4, 1, 256, whole=True))
+        self.retries = int(num("retries", 4, 0, 100, whole=True))
+        self.backoff = float(num("backoff", 0.5, 0.0, 3600.0))
+        self.backoff_max = float(num("backoff_max", 30.0, 0.0, 86400.0))
+        self.request_timeout = float(num("request_timeout", timeout, 0.001, 86400.0))
+        per_minute = opts.get("per_minute")
+        if per_minute is not None:
+            per_minute = num("per_minute", 60, 0.001, 1e9)
         self.max_in_flight = self.concurrency
-        self._limiter = RateLimiter(opts.get("per_minute"))
+        self._limiter = RateLimiter(per_minute)
         self._gate = threading.BoundedSemaphore(self.concurrency)
-        headers = {str(k): str(v) for k, v in dict(opts.get("headers") or {}).items()}
+        raw_headers = opts.get("headers") or {}
+        if not isinstance(raw_headers, Mapping):
+            raise SolverError(
+                f"{where}: field 'options.headers': got {type(raw_headers).__name__}; "
+                "accepted: a table of header names and values."
+            )
+        headers = {str(k): str(v) for k, v in raw_headers.items()}
+        #: values the runner writes as ``***`` wherever they would appear (header values, the key)
+        self.secrets: list[str] = list(headers.values())
         env = opts.get("api_key_env")
         if env:
             key = os.environ.get(str(env))
@@ -150,6 +186,7 @@ class ChatSolver:
                     "export the API key in it."
                 )
             headers["Authorization"] = f"Bearer {key}"
+            self.secrets += [key, headers["Authorization"]]
         self._client = httpx.Client(
             headers=headers,
             timeout=httpx.Timeout(self.request_timeout, connect=min(10.0, self.request_timeout)),
@@ -224,9 +261,15 @@ class ChatSolver:
                     continue
                 if resp.status_code >= 400:
                     raise TrialFailure(
-                        "failed", f"HTTP {resp.status_code} (not retried)", raw=resp.text[:2000]
+                        "failed",
+                        f"HTTP {resp.status_code} (not retried)",
+                        raw=scrub(resp.text[:2000], self.secrets),
                     )
-                return self._answer(resp, time.monotonic() - t0)
+                try:
+                    return self._answer(resp, time.monotonic() - t0)
+                except TrialFailure as err:
+                    err.raw = scrub(err.raw, self.secrets)
+                    raise
         raise TrialFailure(status, f"{last}; gave up after {self.retries + 1} attempts")
 
     @staticmethod

@@ -13,6 +13,7 @@ import datetime as _dt
 import json
 import os
 import socket
+import time
 from pathlib import Path
 from typing import Any
 
@@ -71,7 +72,12 @@ class SweepLock:
         try:
             lock.acquire()
         except filelock.Timeout:
+            # the holder writes its record just after locking: give it a moment
+            deadline = time.monotonic() + 1.0
             info = self.holder()
+            while not _pid_alive(info.get("pid")) and time.monotonic() < deadline:
+                time.sleep(0.02)
+                info = self.holder()
             pid, started = info.get("pid"), info.get("started")
             if _pid_alive(pid) and pid != os.getpid():
                 who = f"process {pid} on {info.get('host', '?')}, started {started}"
