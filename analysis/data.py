@@ -243,12 +243,10 @@ def _group_of(side: dict[str, Any], respondent: str, kind: str) -> tuple[str, An
 
 
 def _log_files(logs_dir: Path) -> list[Path]:
-    files: list[Path] = []
-    for sub in ("human", "machine"):
-        d = logs_dir / sub
-        if d.is_dir():
-            files.extend(sorted(p for p in d.glob("*.csv") if not p.name.startswith(".")))
-    return files
+    # only declared session logs: frame-interval files and a lab's own CSVs are not sessions
+    from twofold.study.logs import session_logs
+
+    return session_logs(logs_dir)
 
 
 def read_logs(

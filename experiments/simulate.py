@@ -20,12 +20,9 @@ from twofold.study.exceptions import SpecError
 from twofold.study.families import Rejected, get_family
 from twofold.study.generate import item_rng
 from twofold.study.item import Item
-from twofold.study.logs import TrialLogWriter, write_json_atomic
+from twofold.study.logs import SessionRecord, TrialLogWriter, write_json_atomic
 
 __all__ = ["SimulationSettings", "item_parameters", "simulate_humans"]
-
-#: typical median response time per family, ms (a generate-mode grid takes longest)
-_BASE_RT_MS = {"strings": 7000.0, "matrices": 14000.0, "contrast": 18000.0, "grids": 35000.0}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -181,7 +178,7 @@ def simulate_humans(
                 )
                 log.append(row)
                 clock = row["response_s"] + float(rng.uniform(0.5, 1.5))  # feedback + fixation
-            log.update_sidecar(
+            record = SessionRecord(
                 study=study.name,
                 bank_hash=bank.hash,
                 session=sid,
@@ -193,10 +190,12 @@ def simulate_humans(
                 started=started,
                 ended=_now(),
                 n_trials=len(order),
-                interruptions=[],
-                simulation={"theta": float(theta[k]), "seed": seed},
-                twofold_version=bank.meta.get("twofold_version"),
+                details=dict(
+                    simulation={"theta": float(theta[k]), "seed": seed},
+                    twofold_version=bank.meta.get("twofold_version"),
+                ),
             )
+            log.update_sidecar(**record.to_dict())
         if progress:
             progress(1)
     truth = {
@@ -235,7 +234,7 @@ def _trial(
         except Rejected:
             response = fam.correct_response(item, mode)
     score = fam.score(item, response, mode)
-    base = _BASE_RT_MS.get(item.family, 10000.0)
+    base = fam.typical_rt_ms  # the family's typical median response time, ms
     rt = float(base * np.exp(0.3 * b - 0.15 * theta + rng.normal(0, settings.rt_sd)))
     return {
         "study": study.name,

@@ -6,8 +6,20 @@ import json
 
 import pandas as pd
 import pytest
-from twofold.study.exceptions import LogError
-from twofold.study.logs import TRIAL_COLUMNS, TrialLogWriter, read_trials, table_schema
+from twofold.study.exceptions import LogError, LogWarning
+from twofold.study.logs import (
+    TRIAL_COLUMNS,
+    SessionRecord,
+    TrialLogWriter,
+    check_session,
+    parse_session_id,
+    read_session,
+    read_sidecar,
+    read_trials,
+    session_id,
+    session_logs,
+    table_schema,
+)
 
 
 def _row(trial: int, **kw):
@@ -33,6 +45,19 @@ def _row(trial: int, **kw):
     }
     row.update(kw)
     return row
+
+
+def _record(session: str) -> dict:
+    return dict(
+        study="s",
+        bank_hash="ab" * 32,
+        session=session,
+        respondent=session,
+        kind="human",
+        synthetic=False,
+        form="F1",
+        status="running",
+    )
 
 
 def test_rows_round_trip_with_types(tmp_path):
@@ -63,13 +88,139 @@ def test_appending_to_an_existing_log_continues_it(tmp_path):
     assert read_trials(path)["trial"].tolist() == [0, 1]
 
 
-def test_a_line_cut_short_by_a_crash_is_dropped(tmp_path):
+def test_a_line_cut_short_by_a_crash_is_not_dropped_silently(tmp_path):
     path = tmp_path / "P003.csv"
     with TrialLogWriter(path) as log:
         log.append(_row(0))
     with open(path, "a", encoding="utf-8") as fh:
         fh.write("s,abab,P003,human")  # a crash in the middle of a row
-    assert read_trials(path)["trial"].tolist() == [0]
+    with pytest.warns(LogWarning, match="P003.csv: the last row is cut short"):
+        assert read_trials(path)["trial"].tolist() == [0]
+    with pytest.raises(LogError, match="cut short"):
+        read_trials(path, torn="raise")
+
+
+def _torn_tail(path, kind):
+    """Damage the end of a log the ways a power cut or a full disk do."""
+    data = path.read_bytes()
+    if kind == "unterminated":  # the whole last row but its newline
+        path.write_bytes(data[:-1])
+    elif kind == "half_row":  # the last row cut in the middle
+        path.write_bytes(data[: len(data) - 40])
+    elif kind == "open_quote":  # cut inside a quoted cell holding a newline
+        with open(path, "a", encoding="utf-8") as fh:
+            fh.write('s,x,P004,human,false,P004,F1,main,2,i,strings,generate,"ab\ncd')
+    return data
+
+
+@pytest.mark.parametrize("kind", ["unterminated", "half_row", "open_quote"])
+def test_resume_repairs_a_torn_last_row_and_records_it(tmp_path, kind):
+    path = tmp_path / "P004.csv"
+    with TrialLogWriter(path) as log:
+        log.update_sidecar(**_record("P004"))
+        log.append(_row(0, session="P004", respondent="P004"))
+        log.append(_row(1, session="P004", respondent="P004", detail="two\nlines"))
+    _torn_tail(path, kind)
+    kept = [0] if kind != "open_quote" else [0, 1]
+    with TrialLogWriter(path) as log:
+        assert len(log.repairs) == 1 and log.repairs[0]["after_row"] == len(kept)
+        for t in range(len(kept), 3):
+            log.append(_row(t, session="P004", respondent="P004"))
+        side = log.update_sidecar(status="complete", n_trials=3)
+    df = read_trials(path, torn="raise")  # nothing torn is left
+    assert df["trial"].tolist() == [0, 1, 2]
+    assert side["status"] == "complete" and side["n_rows"] == 3
+    assert read_sidecar(tmp_path / "P004.json")["repairs"][0]["bytes_cut"] > 0
+
+
+def test_a_sidecar_never_says_complete_with_rows_missing(tmp_path):
+    path = tmp_path / "P005.csv"
+    with TrialLogWriter(path) as log:
+        log.update_sidecar(**_record("P005"))
+        log.append(_row(0, session="P005", respondent="P005"))
+        side = log.update_sidecar(status="complete", n_trials=2)
+    assert side["status"] == "incomplete" and "1 rows on disk" in side["problem"]
+    assert read_sidecar(tmp_path / "P005.json")["status"] == "incomplete"
+
+
+def test_a_broken_middle_row_is_an_error_not_a_gap(tmp_path):
+    path = tmp_path / "P006.csv"
+    with TrialLogWriter(path) as log:
+        log.append(_row(0))
+        log.append(_row(1))
+    lines = path.read_text().splitlines(keepends=True)
+    path.write_text(lines[0] + "a,b,c\n" + lines[2])
+    with pytest.raises(LogError, match="row 1: 3 cells; accepted: 22 cells"):
+        read_trials(path)
+    with pytest.raises(LogError, match="row 1: 3 cells"):
+        TrialLogWriter(path)
+
+
+@pytest.mark.parametrize(
+    ("column", "cell", "accepted"),
+    [
+        ("trial", "abc", "an integer"),
+        ("rt_ms", "fast", "a finite number or empty"),
+        ("rt_ms", "inf", "a finite number or empty"),
+        ("correct", "yes", "true, false or empty"),
+        ("status", "done", "one of ok, timeout, invalid, failed"),
+        ("kind", "", "a string value (required)"),
+    ],
+)
+def test_bad_cells_are_named_on_reading(tmp_path, column, cell, accepted):
+    path = tmp_path / "P007.csv"
+    with TrialLogWriter(path) as log:
+        log.append(_row(0))
+    names = [c.name for c in TRIAL_COLUMNS]
+    head, row = path.read_text().splitlines()
+    cells = next(__import__("csv").reader([row]))
+    cells[names.index(column)] = cell
+    path.write_text(head + "\n" + ",".join(cells) + "\n")
+    with pytest.raises(LogError) as info:
+        read_trials(path)
+    assert str(info.value) == (
+        f"P007.csv row 1: field '{column}': got {cell!r}; accepted: {accepted}."
+    )
+
+
+def test_session_ids_build_and_parse_in_one_place():
+    assert session_id("ref-model", 12) == "ref-model-s12"
+    assert parse_session_id("ref-model-s12") == ("ref-model", 12)
+    assert parse_session_id("P001") is None
+    with pytest.raises(LogError, match="field 'seed'"):
+        session_id("x", -1)
+
+
+def test_session_record_checks_its_fields():
+    rec = SessionRecord(**_record("P008"))
+    assert SessionRecord.from_dict(rec.to_dict()) == rec
+    with pytest.raises(LogError, match="field 'status': got 'done'; accepted: one of running"):
+        SessionRecord(**{**_record("P008"), "status": "done"})
+    with pytest.raises(LogError, match="field 'synthetic': got 'no'; accepted: a boolean"):
+        check_session({**rec.to_dict(), "synthetic": "no"})
+    with pytest.raises(LogError, match="field 'kind': got None"):
+        check_session({k: v for k, v in rec.to_dict().items() if k != "kind"})
+
+
+def test_only_declared_session_logs_are_found_and_read(tmp_path):
+    human = tmp_path / "human"
+    with TrialLogWriter(human / "P009.csv") as log:
+        log.update_sidecar(**_record("P009"))
+        log.append(_row(0, session="P009", respondent="P009"))
+    (human / "frames").mkdir()
+    (human / "frames" / "P009.frames.csv").write_text("trial,n\n0,1\n")
+    (human / "notes.csv").write_text("a,b\n1,2\n")  # a lab's own file
+    assert session_logs(tmp_path) == [human / "P009.csv"]
+    log = read_session(human / "P009.csv", bank_hash="ab" * 32, item_ids={"str-000000000000"})
+    assert (log.session, log.kind, len(log.trials)) == ("P009", "human", 1)
+    with pytest.raises(LogError, match="field 'bank_hash'"):
+        read_session(human / "P009.csv", bank_hash="cd" * 32)
+    with pytest.raises(LogError, match="field 'item': got 'str-000000000000'"):
+        read_session(human / "P009.csv", item_ids=set())
+    (human / "P009.json").unlink()
+    assert session_logs(tmp_path) == [human / "P009.csv"]  # a trial log: reported, not skipped
+    with pytest.raises(LogError, match="session sidecar is missing"):
+        read_session(human / "P009.csv")
 
 
 @pytest.mark.parametrize(

@@ -239,7 +239,7 @@ def prepare_session(
                 f"respondent {respondent}: the session is {status}; nothing to resume."
             )
         if csv_path.exists():
-            df = read_trials(csv_path)
+            df = read_trials(csv_path, torn="ignore")  # the writer repairs a torn row
             done = {int(t) for t in df["trial"].dropna()}
     elif resume:
         raise RunnerError(

@@ -10,7 +10,8 @@ changes (onset, typing, painting...); in between, the loop takes in input events
 millisecond without flipping. ``redraw = "every_frame"`` flips on every refresh instead (useful
 on a vsync-locked display to watch every frame). Intervals between consecutive flips are kept;
 an interval over 1.5 refresh periods (refresh rate measured at start) counts as a dropped frame.
-Per trial they go to ``<session>.frames.csv`` beside the log (see :data:`FRAMES_HEADER`); the
+Per trial they go to ``frames/<session>.frames.csv`` below the log folder (see
+:data:`FRAMES_HEADER`; always with its header, out of the way of log readers); the
 session totals go to the sidecar (``frames``, ``dropped_frames``).
 
 The screen of the next item is built right after the current item's onset (0.1-0.5 s in
@@ -42,12 +43,17 @@ from twofold.study.exceptions import ResponseError, RunnerError
 
 from .prepare import SessionPlan, reflow
 
-__all__ = ["FRAMES_HEADER", "SessionResult", "run_session"]
+__all__ = ["FRAMES_HEADER", "SessionResult", "frames_file", "run_session"]
 
 #: columns of ``<session>.frames.csv``: one row per trial; intervals between consecutive flips
 #: (ms, space separated), dropped = intervals over 1.5 refresh periods, prep = time spent
 #: building the next item's screen after this onset (the screen stood still meanwhile)
 FRAMES_HEADER = "trial,n_intervals,mean_interval_ms,max_interval_ms,dropped,prep_ms,intervals_ms"
+
+
+def frames_file(csv_path: Path) -> Path:
+    """Where a session's frame intervals go: ``<logs>/human/frames/<session>.frames.csv``."""
+    return csv_path.parent / "frames" / f"{csv_path.stem}.frames.csv"
 
 
 class Aborted(Exception):  # noqa: N818 - control flow
@@ -397,7 +403,7 @@ class _Session:
 
     # -- the session ---------------------------------------------------------------------------
     def run(self) -> SessionResult:
-        from twofold.study.logs import TrialLogWriter
+        from twofold.study.logs import SessionRecord, TrialLogWriter
 
         plan = self.plan
         study, form = plan.study, plan.form
@@ -414,7 +420,7 @@ class _Session:
                     "trials_on_disk": len(plan.done),
                 }
             )
-        meta = writer.update_sidecar(
+        record = SessionRecord(
             study=study.name,
             bank_hash=plan.bank.hash,
             session=plan.respondent,
@@ -422,33 +428,43 @@ class _Session:
             kind="human",
             synthetic=False,
             form=form.form_id,
-            form_list=form.list,
-            form_order=form.order,
             status="running",
-            started=prev.get("started", _now()),
+            started=prev.get("started") or _now(),
             ended=None,
-            twofold_version=_version("twofold"),
-            psychopy_version=_version("psychopy-lib"),
-            python_version=sys.version.split()[0],
-            platform=platform.platform(),
             n_trials=len(plan.done),
-            n_form_trials=len(plan.trials),
-            interruptions=interruptions,
-            screen={"size": list(self.size), "fullscreen": plan.options.fullscreen},
-            refresh_hz=self.refresh_hz,
-            keyboard_backend=self.kb.getBackend(),
-            clock={"name": "psychtoolbox GetSecs", "session_origin": self.origin_abs + self.start},
-            consent=prev.get("consent", False),
-            practice_done=prev.get("practice_done", []),
+            interruptions=tuple(interruptions),
+            details=dict(
+                form_list=form.list,
+                form_order=form.order,
+                twofold_version=_version("twofold"),
+                psychopy_version=_version("psychopy-lib"),
+                python_version=sys.version.split()[0],
+                platform=platform.platform(),
+                n_form_trials=len(plan.trials),
+                screen={"size": list(self.size), "fullscreen": plan.options.fullscreen},
+                refresh_hz=self.refresh_hz,
+                keyboard_backend=self.kb.getBackend(),
+                clock={
+                    "name": "psychtoolbox GetSecs",
+                    "session_origin": self.origin_abs + self.start,
+                },
+                consent=prev.get("consent", False),
+                practice_done=prev.get("practice_done", []),
+                frames_file=f"frames/{plan.csv_path.stem}.frames.csv",
+            ),
         )
+        meta = writer.update_sidecar(**record.to_dict())
         n_done = len(plan.done)
         session_frames = _Frames(self.period)
-        # per-trial frame intervals beside the log (auxiliary: flushed, not fsynced)
-        frames_path = plan.csv_path.with_suffix(".frames.csv")
-        new_frames = not frames_path.exists()
+        # per-trial frame intervals in frames/ below the logs, where no log reader looks
+        # (auxiliary: flushed, not fsynced)
+        frames_path = frames_file(plan.csv_path)
+        frames_path.parent.mkdir(parents=True, exist_ok=True)
+        new_frames = not frames_path.exists() or frames_path.stat().st_size == 0
         self.frames_log = open(frames_path, "a", encoding="utf-8")  # noqa: SIM115
         if new_frames:
             self.frames_log.write(FRAMES_HEADER + "\n")
+            self.frames_log.flush()
         prior = prev.get("frames") or {}
         try:
             if not meta.get("consent"):

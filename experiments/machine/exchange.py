@@ -37,7 +37,7 @@ from twofold.study._check import check_choice, fail
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError
 from twofold.study.families import get_family
-from twofold.study.logs import read_sidecar, table_schema, write_json_atomic
+from twofold.study.logs import SessionRecord, read_sidecar, session_id, write_session
 from twofold.study.render import MEDIA, render, render_picture
 
 from ._core import FreeText, coerce_answer
@@ -268,7 +268,7 @@ def import_answers(
     folder = study.logs_dir / "machine"
     summaries = []
     for seed, recs in sorted(records.items()):
-        session = f"{name}-s{seed}"
+        session = session_id(name, seed)
         t0 = _dt.datetime.now(_dt.UTC).timestamp()
         rows = []
         for _, rec in recs:
@@ -295,32 +295,28 @@ def import_answers(
             )
         rebuild_session(csv_path, rows)
         units = sorted({r["effort_unit"] for r in rows if r.get("effort_unit")})
-        write_json_atomic(
-            side_path,
-            {
-                "study": study.name,
-                "bank_hash": bank.hash,
-                "session": session,
-                "respondent": session,
-                "kind": "machine",
-                "synthetic": False,
-                "form": "all",
-                "status": "complete",
-                "started": _now(),
-                "ended": _now(),
+        record = SessionRecord(
+            study=study.name,
+            bank_hash=bank.hash,
+            session=session,
+            respondent=session,
+            kind="machine",
+            synthetic=False,
+            form="all",
+            status="complete",
+            ended=_now(),
+            n_trials=len(rows),
+            details={
                 "twofold_version": _version(),
-                "n_trials": len(rows),
-                "interruptions": [],
                 "solver": name,
                 "seed": seed,
                 "solver_spec": f"import:{path.name}",
                 "config_hash": file_hash,
                 "effort_unit": units[0] if len(units) == 1 else None,
-                "columns": "trials.schema.json",
+                "n_rows": len(rows),
             },
         )
-        if not (folder / "trials.schema.json").exists():
-            write_json_atomic(folder / "trials.schema.json", table_schema())
+        write_session(side_path, record.to_dict())
         summaries.append(
             {
                 "session": session,

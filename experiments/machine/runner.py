@@ -48,7 +48,7 @@ from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError, ResponseError, RunnerError, SolverError
 from twofold.study.families import get_family
 from twofold.study.item import Item, canonical_json
-from twofold.study.logs import TrialLogWriter, read_sidecar
+from twofold.study.logs import SessionRecord, TrialLogWriter, read_sidecar
 from twofold.study.render import render
 
 from ._core import FreeText, TrialFailure, check_answer, coerce_answer, scrub
@@ -525,22 +525,26 @@ def _sidecar_base(
 ) -> dict[str, Any]:
     session = spec.session_id(seed)
     version = getattr(solver, "version", None)
-    return {
-        "study": study.name,
-        "bank_hash": bank.hash,
-        "session": session,
-        "respondent": session,
-        "kind": "machine",
-        "synthetic": False,
-        "form": "all",
-        "twofold_version": _version(),
-        "solver": spec.name,
-        "seed": seed,
-        "solver_spec": spec.spec,
-        "solver_version": None if version is None else str(version),
-        "config_hash": identity,
-        "solver_config": spec.config(),
-    }
+    record = SessionRecord(
+        study=study.name,
+        bank_hash=bank.hash,
+        session=session,
+        respondent=session,
+        kind="machine",
+        synthetic=False,
+        form="all",
+        details={
+            "twofold_version": _version(),
+            "solver": spec.name,
+            "seed": seed,
+            "solver_spec": spec.spec,
+            "solver_version": None if version is None else str(version),
+            "config_hash": identity,
+            "solver_config": spec.config(),
+        },
+    )
+    run_state = ("status", "started", "ended", "n_trials", "interruptions")
+    return {k: v for k, v in record.to_dict().items() if k not in run_state}
 
 
 def _cached_rows(

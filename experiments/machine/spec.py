@@ -134,7 +134,9 @@ class SolverSpec:
         return hashlib.sha256(canonical_json(body).encode("utf-8")).hexdigest()
 
     def session_id(self, seed: int) -> str:
-        return f"{self.name}-s{seed}"
+        from twofold.study.logs import session_id
+
+        return session_id(self.name, seed)
 
     def to_dict(self) -> dict[str, Any]:
         """A plain, picklable description (for worker processes)."""
