@@ -4,9 +4,11 @@ Item families, built-in solvers, solver adapters, participant screens and the co
 ``twofold`` program are each kept in a :class:`Registry`. A registry knows three sources of
 entries, all explicit:
 
-1. **Built-ins**: a fixed mapping from name to the module that registers that name when it is
-   imported. The module is imported on the first :meth:`Registry.get` of the name, so listing the
-   names costs nothing and an unused family never loads its dependencies.
+1. **Built-ins**: a fixed mapping from name to where the entry lives: ``"package.module"`` (a
+   module that registers the name when it is imported) or ``"package.module:attribute"`` (the
+   attribute is registered under the name). The module is imported on the first
+   :meth:`Registry.get` of the name, so listing the names costs nothing and an unused family
+   never loads its dependencies.
 2. **Registered at run time**: :meth:`Registry.register` (or its decorator form
    :meth:`Registry.add`), e.g. a lab's own family defined in a script.
 3. **Plugins**: installed packages that declare an entry point in the registry's group, e.g. in a
@@ -59,7 +61,8 @@ class Registry(Generic[T]):
     kind : str
         What an entry is, singular (``"family"``, ``"solver"``); the field name in errors.
     builtins : mapping of str to str, optional
-        Name of each built-in entry -> the module that registers it when imported.
+        Name of each built-in entry -> ``"module"`` (which registers the name when imported) or
+        ``"module:attribute"`` (whose attribute is the entry).
     group : str, optional
         Entry-point group of plugins (``"twofold.families"``); None for no plugins.
     check : callable, optional
@@ -168,9 +171,12 @@ class Registry(Generic[T]):
 
     # -- loading -----------------------------------------------------------------------------
     def _load(self, name: str) -> bool:
-        module = self._builtins.get(name)
-        if module is not None:
-            importlib.import_module(module)
+        target = self._builtins.get(name)
+        if target is not None:
+            module, _, attribute = target.partition(":")
+            loaded = importlib.import_module(module)
+            if attribute and name not in self._entries:
+                self.register(name, getattr(loaded, attribute))
             if name not in self._entries:
                 raise RuntimeError(
                     f"{self.kind} registry: module {module} did not register {name!r}"

@@ -6,15 +6,16 @@ Heavy imports (PsychoPy, statsmodels, matplotlib) happen inside commands, never 
 
 from __future__ import annotations
 
-import importlib
 import sys
+from collections.abc import Callable
 
 import typer
 from twofold.study.exceptions import TwofoldError
+from twofold.study.registry import Registry
 
 from ._console import error
 
-__all__ = ["app", "main"]
+__all__ = ["COMMANDS", "app", "main"]
 
 app = typer.Typer(
     name="twofold",
@@ -25,11 +26,19 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
 )
 
-# command modules: each defines `register(app)`
+# command modules, in the order of the help page: each defines `register(app)`
 _COMMANDS = ("items", "forms", "run", "simulate", "analyze", "report", "example", "new")
 
-for _name in _COMMANDS:
-    importlib.import_module(f"{__name__}.{_name}").register(app)
+#: The command groups of ``twofold``: each entry is a ``register(app)`` function adding its
+#: commands to the typer app; plugins come through the ``twofold.commands`` entry-point group.
+COMMANDS: Registry[Callable[[typer.Typer], None]] = Registry(
+    "command",
+    builtins={name: f"{__name__}.{name}:register" for name in _COMMANDS},
+    group="twofold.commands",
+)
+
+for _name in (*_COMMANDS, *(n for n in COMMANDS.names() if n not in _COMMANDS)):
+    COMMANDS.get(_name)(app)
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -18,6 +18,8 @@ import math
 from collections.abc import Callable, Sequence
 from typing import Any
 
+from twofold.study.registry import Registry
+
 __all__ = [
     "Answer",
     "Ctx",
@@ -1058,25 +1060,27 @@ class ContrastScreen(Screen, TypingMixin):
         return None
 
 
-SCREENS: dict[str, type[Screen]] = {
-    "contrast": ContrastScreen,
-    "grids": GridsScreen,
-    "matrices": MatricesScreen,
-    "strings": StringsScreen,
-}
+#: The response screen of each family (plugins: the ``twofold.screens`` entry-point group).
+SCREENS: Registry[type[Screen]] = Registry("screen", group="twofold.screens")
+for _family, _screen in (
+    ("contrast", ContrastScreen),
+    ("grids", GridsScreen),
+    ("matrices", MatricesScreen),
+    ("strings", StringsScreen),
+):
+    SCREENS.register(_family, _screen)
 
 
 def register_screen(family: str, screen: type[Screen]) -> type[Screen]:
     """Use ``screen`` for items of ``family`` (a lab's own family can bring its own screen)."""
-    SCREENS[family] = screen
-    return screen
+    return SCREENS.register(family, screen)
 
 
 def make_screen(
     ctx: Ctx, item: Any, view: dict[str, Any], mode: str, *, state_rule: bool = False
 ) -> Screen:
     """The response screen for ``item`` (its family's screen, or the text fallback)."""
-    cls = SCREENS.get(item.family, TextScreen)
+    cls = SCREENS.get(item.family) if item.family in SCREENS else TextScreen
     try:
         return cls(ctx, item, view, mode, state_rule=state_rule)
     except (KeyError, TypeError, IndexError, ValueError):

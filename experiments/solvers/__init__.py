@@ -1,7 +1,9 @@
 """Built-in solvers (reference solvers and baselines) and the solver protocol."""
 
 from ._base import (
+    SOLVERS,
     Answer,
+    BuiltinSolver,
     ItemSeeded,
     Solver,
     builtin_solvers,
@@ -12,7 +14,9 @@ from ._base import (
 
 __all__ = [
     "Answer",
+    "BuiltinSolver",
     "ItemSeeded",
+    "SOLVERS",
     "Solver",
     "builtin_solvers",
     "make_builtin",

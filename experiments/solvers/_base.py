@@ -15,13 +15,14 @@ from collections.abc import Callable, Mapping
 from typing import Any, Protocol, runtime_checkable
 
 import numpy as np
-from twofold.study._check import fail
-from twofold.study.exceptions import InputError
 from twofold.study.item import canonical_json
+from twofold.study.registry import Registry
 
 __all__ = [
     "Answer",
+    "BuiltinSolver",
     "ItemSeeded",
+    "SOLVERS",
     "Solver",
     "builtin_solvers",
     "make_builtin",
@@ -100,8 +101,33 @@ class ItemSeeded:
         return trial_rng(self.seed, key, draw)
 
 
-#: name -> (factory(**options) -> Solver, one-line description)
-_BUILTINS: dict[str, tuple[Callable[..., Solver], str]] = {}
+@dataclasses.dataclass(frozen=True)
+class BuiltinSolver:
+    """A registered solver: its factory (``factory(**options) -> Solver``) and one line about it."""
+
+    factory: Callable[..., Solver]
+    description: str
+
+
+_PKG = "twofold.experiments.solvers"
+
+#: Every built-in solver, by name -> the module that registers it (loaded on first use), plus
+#: solvers registered at run time and plugins of the ``twofold.solvers`` entry-point group.
+SOLVERS: Registry[BuiltinSolver] = Registry(
+    "solver",
+    builtins={
+        "choices-only": f"{_PKG}.baselines",
+        "contrast-ref": f"{_PKG}.contrast",
+        "copy-input": f"{_PKG}.grids",
+        "grids-ref": f"{_PKG}.grids",
+        "literal": f"{_PKG}.strings",
+        "matrices-ref": f"{_PKG}.matrices",
+        "random": f"{_PKG}.baselines",
+        "reference": f"{_PKG}.reference",
+        "strings-ref": f"{_PKG}.strings",
+    },
+    group="twofold.solvers",
+)
 
 
 def register_solver(
@@ -114,7 +140,7 @@ def register_solver(
     """
 
     def deco(factory: Callable[..., Solver]) -> Callable[..., Solver]:
-        _BUILTINS[name] = (factory, description)
+        SOLVERS.register(name, BuiltinSolver(factory, description))
         return factory
 
     return deco
@@ -122,26 +148,16 @@ def register_solver(
 
 def builtin_solvers() -> dict[str, str]:
     """Names and descriptions of the built-in solvers, sorted by name."""
-    _load()
-    return {k: _BUILTINS[k][1] for k in sorted(_BUILTINS)}
+    return {k: entry.description for k, entry in SOLVERS.load_all().items()}
 
 
 def make_builtin(name: str, **options: Any) -> Solver:
-    """Build the built-in solver ``name`` with ``options``."""
-    _load()
-    if name not in _BUILTINS:
-        raise fail(
-            "solver", name, "a built-in solver: " + ", ".join(sorted(_BUILTINS)), error=InputError
-        )
-    return _BUILTINS[name][0](**options)
+    """Build the built-in solver ``name`` with ``options``.
 
-
-def _load() -> None:
-    import importlib
-    import pkgutil
-
-    from twofold.experiments import solvers as pkg
-
-    for mod in pkgutil.iter_modules(pkg.__path__):
-        if not mod.name.startswith("_"):
-            importlib.import_module(f"{pkg.__name__}.{mod.name}")
+    Raises
+    ------
+    InputError
+        ``field 'solver': got 'x'; accepted: one of choices-only, contrast-ref, ...`` for an
+        unknown name.
+    """
+    return SOLVERS.get(name).factory(**options)

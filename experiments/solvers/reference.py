@@ -1,8 +1,9 @@
-"""``reference``: one machine respondent for every family, dispatching to ``<family>-ref``.
+"""``reference``: one machine respondent for every family, dispatching to each family's own.
 
-A study that mixes families needs one solver that answers all of them. This one keeps a reference
-solver per family (built lazily) and passes each item's structured view to the solver of the
-item's family, so a study can name "reference" once and set per-family budgets.
+A study that mixes families needs one solver that answers all of them. This one keeps the reference
+solver each family declares (``Family.reference_solver``, built lazily) and passes each item's
+structured view to the solver of the item's family, so a study can name "reference" once and set
+per-family budgets.
 """
 
 from __future__ import annotations
@@ -12,8 +13,9 @@ from typing import Any
 
 from twofold.study._check import fail
 from twofold.study.exceptions import InputError
+from twofold.study.families import get_family, known_families
 
-from ._base import Answer, Solver, builtin_solvers, make_builtin, register_solver
+from ._base import Answer, Solver, make_builtin, register_solver
 
 __all__ = ["ReferenceSolver"]
 
@@ -44,8 +46,13 @@ class ReferenceSolver:
         self.budgets = dict(budgets or {})
         self.budget = budget
         self._solvers: dict[str, Solver] = {}
-        names = builtin_solvers()
-        families = sorted(n[: -len("-ref")] for n in names if n.endswith("-ref"))
+        #: family -> the name of the built-in solver it declares as its reference
+        self.references = {
+            fam: name
+            for fam in known_families()
+            if (name := get_family(fam).reference_solver) is not None
+        }
+        families = sorted(self.references)
         for fam in sorted(self.budgets):
             if fam not in families:
                 raise fail(
@@ -55,16 +62,24 @@ class ReferenceSolver:
             self._solver(fam)
         #: declared version (part of the trial-cache key): this dispatcher's and each family's
         self.version = "reference/2;" + ";".join(
-            f"{fam}-ref/{getattr(self._solvers[fam], 'version', None) or '1'}" for fam in families
+            f"{self.references[fam]}/{getattr(self._solvers[fam], 'version', None) or '1'}"
+            for fam in families
         )
 
     def _solver(self, family: str) -> Solver:
+        if family not in self.references:
+            raise fail(
+                "view.family",
+                family,
+                "a family with a reference solver: " + ", ".join(sorted(self.references)),
+                error=InputError,
+            )
         if family not in self._solvers:
             opts: dict[str, Any] = {"seed": self.seed}
             b = self.budgets.get(family, self.budget)
             if b is not None:
                 opts["budget"] = b
-            self._solvers[family] = make_builtin(f"{family}-ref", **opts)
+            self._solvers[family] = make_builtin(self.references[family], **opts)
         return self._solvers[family]
 
     def solve(self, view: Any, mode: str) -> Answer:
@@ -78,7 +93,7 @@ class ReferenceSolver:
 
 @register_solver(
     "reference",
-    "every family: dispatches to <family>-ref (options: seed, budget, budgets={family=N})",
+    "every family: dispatches to its reference solver (options: seed, budget, budgets={family=N})",
 )
 def _make(**options: Any) -> ReferenceSolver:
     return ReferenceSolver(**options)
