@@ -4,22 +4,16 @@ Reads logs and banks through :mod:`twofold.study`; never imports :mod:`twofold.e
 Heavy fits happen only when called.
 """
 
-from .compare import (
-    bootstrap_ci,
-    difficulty_agreement,
-    difficulty_reliability,
+from ._ranks import bootstrap_ci
+from .agreement import difficulty_agreement, item_difficulty, machine_error_rates
+from .consistency import (
     error_consistency,
+    error_consistency_distribution,
     error_consistency_kappa,
     error_consistency_summary,
-    error_type_odds,
-    error_type_tests,
-    error_types,
-    item_difficulty,
-    machine_error_rates,
-    robustness,
-    robustness_test,
 )
 from .data import StudyData, factor_columns, item_table, load_study_data, read_logs, scored
+from .errortypes import error_type_odds, error_type_tests, error_types
 from .export import export_dataset, trials_table_schema
 from .irt import (
     HumanScaleResult,
@@ -36,6 +30,8 @@ from .irt import (
 from .mixed import MixedResult, factor_effects, fit_accuracy, fit_glmm, fit_lmm, fit_log_time
 from .participants import family_accuracy, internal_consistency, profile_bayes_factors
 from .planning import plan_from_pilot, plan_sample_size, required_sample_size
+from .reliability import difficulty_reliability
+from .robustness import robustness, robustness_test
 from .run import PARTS, AnalysisRun, analyze_study
 
 __all__ = [
@@ -50,6 +46,7 @@ __all__ = [
     "difficulty_agreement",
     "difficulty_reliability",
     "error_consistency",
+    "error_consistency_distribution",
     "error_consistency_kappa",
     "error_consistency_summary",
     "error_type_odds",

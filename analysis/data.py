@@ -5,42 +5,46 @@ The trials table has one row per trial and these columns (in order), followed by
 items store them; numeric factors as float64, others as text, ``"true"``/``"false"`` for
 booleans; missing for items of families without that factor):
 
-============== ========= =====================================================================
-column         dtype     meaning
-============== ========= =====================================================================
-study          object    study name
-respondent     object    respondent id (``P001``; machines ``<solver>-s<seed>``)
-kind           object    ``human`` or ``machine``
-group          object    ``human`` for people, the solver name for machines
-session        object    session id
-seed           Int64     the machine session's seed (missing for people)
-synthetic      boolean   true for simulated respondents
-form           object    form id
-block          object    block name
-trial          Int64     0-based trial index within the session
-item           object    item id
-family         object    item family
-mode           object    response mode (``generate`` / ``select``)
-response       object    the response as canonical JSON (missing when none)
-correct        boolean   whether the response is correct (missing when not scored)
-error_type     object    the family's error type of a wrong response
-status         object    ``ok``, ``timeout``, ``invalid`` or ``failed``
-rt_ms          float64   response time in ms (people)
-effort         float64   machine effort in ``effort_unit``
-effort_unit    object    unit of effort
-variant_of     object    the item's parent id for isomorphs (missing for parents)
-variant_operator object  the operator that made an isomorph
-parent         object    the root parent id (an item's own id when it is a parent)
-isomorph       bool      true when the item is an isomorph (``variant_of`` set)
-session_status object    the session's status from its sidecar (``complete``, ``aborted``...)
-source         object    the log file the row came from (relative to the logs folder)
-============== ========= =====================================================================
+================ ========= =====================================================================
+column           dtype     meaning
+================ ========= =====================================================================
+study            object    study name
+respondent       object    respondent id (``P001``; machines ``<solver>-s<seed>``)
+kind             object    ``human`` or ``machine``
+group            object    ``human`` for people, the solver name for machines
+session          object    session id
+seed             Int64     the machine session's seed (missing for people)
+synthetic        boolean   true for simulated respondents
+form             object    form id
+block            object    block name
+trial            Int64     0-based trial index within the session
+item             object    item id
+family           object    item family
+mode             object    response mode (``generate`` / ``select``)
+response         object    the response as canonical JSON (missing when none)
+correct          boolean   whether the response is correct (missing when not scored)
+error_type       object    the family's error type of a wrong response
+status           object    ``ok``, ``timeout``, ``invalid`` or ``failed``
+rt_ms            float64   response time in ms (people)
+effort           float64   machine effort in ``effort_unit``
+effort_unit      object    unit of effort
+variant_of       object    the item's parent id for isomorphs (missing for parents)
+variant_operator object    the operator that made an isomorph
+parent           object    the root parent id (an item's own id when it is a parent)
+isomorph         bool      true when the item is an isomorph (``variant_of`` set)
+session_status   object    the session's status from its sidecar (``complete``, ``aborted``...)
+source           object    the log file the row came from (relative to the logs folder)
+================ ========= =====================================================================
 """
 
 from __future__ import annotations
 
 import dataclasses
+import hashlib
+import json
+import os
 import re
+import tempfile
 import warnings
 from collections.abc import Iterable, Sequence
 from pathlib import Path
@@ -51,7 +55,7 @@ import pandas as pd
 from twofold.study._check import check_choice, fail
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError, LogError, LogWarning
-from twofold.study.logs import read_sidecar, read_trials
+from twofold.study.logs import TRIAL_COLUMNS, read_sidecar, read_trials, write_json_atomic
 from twofold.study.studyfile import Study, load_study
 
 __all__ = [
@@ -256,6 +260,7 @@ def read_logs(
     duplicates: Literal["first", "raise", "keep"] = "first",
     synthetic: Literal["keep", "drop", "only"] = "keep",
     files: Sequence[str | Path] | None = None,
+    cache_dir: str | Path | None = None,
 ) -> StudyData:
     """Read every session log under ``logs_dir`` into a tidy trials table.
 
@@ -273,6 +278,9 @@ def read_logs(
         Keep simulated respondents (marked in ``synthetic``), drop them, or keep only them.
     files : sequence of paths, optional
         Read these log files instead of every ``*.csv`` under ``logs_dir``.
+    cache_dir : path, optional
+        A folder for a Parquet copy of the tables (e.g. ``results/cache``; never inside
+        ``logs_dir``). When its key matches, the tables are read from it instead of the logs.
 
     Returns
     -------
@@ -283,155 +291,37 @@ def read_logs(
     LogError
         A log whose bank hash differs from the bank's (the message names the file), a row naming
         an item the bank does not hold, a sidecar whose session or kind disagrees with its rows.
+
+    Notes
+    -----
+    The logs are parsed in bulk: each CSV by pyarrow's reader straight into typed columns
+    (a file it cannot parse, or whose header differs, goes through
+    :func:`twofold.study.logs.read_trials`, which drops a last line cut short and names a wrong
+    header), all files joined into one table, and the checks run on that table at once.
+
+    The cache key is a SHA-256 over the list of log files (path relative to ``logs_dir``) with
+    the SHA-256 of each CSV's and sidecar's **content**, the bank hash, ``duplicates``,
+    ``synthetic`` and the cache layout version: adding, removing or changing any log or sidecar,
+    or a different bank or option, misses the cache, which is then rebuilt. Content rather than
+    size and modification time, because copies and checkouts keep sizes and reset times.
     """
     check_choice("duplicates", duplicates, ("first", "raise", "keep"))
     check_choice("synthetic", synthetic, ("keep", "drop", "only"))
     root = Path(logs_dir)
     paths = [Path(f) for f in files] if files is not None else _log_files(root)
-    items = item_table(bank)
-    frames: list[pd.DataFrame] = []
-    sessions: list[dict[str, Any]] = []
-    issues: list[dict[str, Any]] = []
-    study_name = ""
-    for path in paths:
-        try:
-            rel = str(path.relative_to(root))
-        except ValueError:
-            rel = str(path)
-        side = read_sidecar(path.with_suffix(".json"))
-        df = read_trials(path)
-        _check_hash(rel, side, df, bank)
-        if len(df) == 0:
-            session = str(side.get("session") or path.stem)
-            respondent = str(side.get("respondent") or session)
-            kind = str(side.get("kind") or path.parent.name)
-        else:
-            session = str(df["session"].iloc[0])
-            respondent = str(df["respondent"].iloc[0])
-            kind = str(df["kind"].iloc[0])
-            for col in ("session", "respondent", "kind"):
-                vals = set(df[col].dropna().astype(str))
-                if len(vals) > 1:
-                    raise LogError(
-                        f"{rel}: column '{col}' holds {len(vals)} values "
-                        f"({', '.join(sorted(vals)[:3])}); one session per log file.",
-                        where=rel,
-                        field=col,
-                    )
-            for col, val in (("session", session), ("kind", kind)):
-                sval = side.get(col)
-                if sval is not None and str(sval) != val:
-                    raise LogError(
-                        f"{rel}: sidecar field '{col}': got {sval!r}; the rows say {val!r}.",
-                        where=rel,
-                        field=col,
-                    )
-        is_syn = bool(side.get("synthetic", False)) or bool(df["synthetic"].fillna(False).any())
-        if (synthetic == "drop" and is_syn) or (synthetic == "only" and not is_syn):
-            continue
-        study_name = study_name or str(
-            side.get("study") or (df["study"].iloc[0] if len(df) else "")
-        )
-        group, seed = _group_of(side, respondent, kind)
-        unknown = sorted(set(df["item"]) - set(items["item"]))
-        if unknown:
-            raise LogError(
-                f"{rel}: field 'item': got {unknown[0]!r}; accepted: an item id of the bank "
-                f"({len(unknown)} unknown item ids in this log).",
-                where=rel,
-                field="item",
-            )
-        n_rows = len(df)
-        dup_trial = df["trial"].duplicated(keep="first")
-        if dup_trial.any():
-            n = int(dup_trial.sum())
-            issues.append(
-                dict(
-                    source=rel,
-                    session=session,
-                    issue="duplicate_trial",
-                    n=n,
-                    detail="trial index logged again: "
-                    + ", ".join(map(str, df.loc[dup_trial, "trial"].unique()[:5])),
-                )
-            )
-            if duplicates == "raise":
-                raise LogError(
-                    f"{rel}: trial {df.loc[dup_trial, 'trial'].iloc[0]} is logged {n + 1} "
-                    "times or more; pass duplicates='first' to keep the first row.",
-                    where=rel,
-                    field="trial",
-                )
-            if duplicates == "first":
-                df = df.loc[~dup_trial]
-        dup_item = df["item"].duplicated(keep="first") & ~df["trial"].duplicated(keep="first")
-        if dup_item.any():
-            issues.append(
-                dict(
-                    source=rel,
-                    session=session,
-                    issue="duplicate_item",
-                    n=int(dup_item.sum()),
-                    detail="item presented again under another trial index: "
-                    + ", ".join(df.loc[dup_item, "item"].unique()[:3]),
-                )
-            )
-        expected = side.get("n_trials")
-        n_unique = int(df["trial"].nunique())
-        n_missing = 0
-        if isinstance(expected, int) and not isinstance(expected, bool):
-            present = set(int(t) for t in df["trial"].dropna())
-            if expected > n_unique:
-                n_missing = expected - len(present & set(range(expected)))
-                issues.append(
-                    dict(
-                        source=rel,
-                        session=session,
-                        issue="missing_trials",
-                        n=n_missing,
-                        detail=f"sidecar n_trials={expected}; {n_unique} trials logged "
-                        f"(session status {side.get('status', 'unknown')})",
-                    )
-                )
-            elif n_unique > expected:
-                issues.append(
-                    dict(
-                        source=rel,
-                        session=session,
-                        issue="extra_trials",
-                        n=n_unique - expected,
-                        detail=f"sidecar n_trials={expected}; {n_unique} trials logged",
-                    )
-                )
-        sessions.append(
-            dict(
-                session=session,
-                respondent=respondent,
-                kind=kind,
-                group=group,
-                seed=seed,
-                synthetic=is_syn,
-                status=side.get("status"),
-                n_trials_expected=expected if isinstance(expected, int) else pd.NA,
-                n_rows=n_rows,
-                n_trials=len(df),
-                n_duplicates=n_rows - n_unique,
-                n_missing=n_missing,
-                source=rel,
-            )
-        )
-        df = df.drop(columns=["bank_hash", "family", "onset_s", "response_s", "detail"])
-        df["group"] = group
-        df["seed"] = seed
-        df["session_status"] = side.get("status")
-        df["source"] = rel
-        df["synthetic"] = df["synthetic"].fillna(is_syn)
-        frames.append(df)
-    trials = _assemble(frames, items)
-    sess = pd.DataFrame(sessions, columns=list(SESSION_COLUMNS))
-    sess["seed"] = sess["seed"].astype("Int64")
-    sess["n_trials_expected"] = sess["n_trials_expected"].astype("Int64")
-    iss = pd.DataFrame(issues, columns=list(ISSUE_COLUMNS))
+    rels = [_relative(p, root) for p in paths]
+    cache: _Cache | None = None
+    hit, key = None, ""
+    if cache_dir is not None:
+        cache = _Cache(Path(cache_dir), root)
+        key = _cache_key(paths, rels, bank, duplicates, synthetic)
+        hit = cache.load(key)
+    if hit is not None:
+        raw, sess, iss, study_name = hit
+    else:
+        raw, sess, iss, study_name = _read_bulk(paths, rels, bank, duplicates, synthetic)
+        if cache is not None:
+            cache.save(key, raw, sess, iss, study_name)
     if len(iss):
         counts = iss.groupby("issue")["n"].sum()
         warnings.warn(
@@ -441,9 +331,361 @@ def read_logs(
             LogWarning,
             stacklevel=2,
         )
+    trials = _with_items(raw, item_table(bank))
     return StudyData(
         trials=trials, sessions=sess, issues=iss, bank=bank, study=study_name or "unnamed"
     )
+
+
+def _relative(path: Path, root: Path) -> str:
+    try:
+        return str(path.relative_to(root))
+    except ValueError:
+        return str(path)
+
+
+# -- bulk reading --------------------------------------------------------------------------------
+_ARROW_TYPES = {"string": "string", "boolean": "bool_", "integer": "int64", "number": "float64"}
+_DROPPED = ["bank_hash", "family", "onset_s", "response_s", "detail"]
+
+
+def _arrow_schema() -> Any:
+    import pyarrow as pa
+
+    return pa.schema([(c.name, getattr(pa, _ARROW_TYPES[c.type])()) for c in TRIAL_COLUMNS])
+
+
+def _read_one(path: Path) -> Any:
+    """One log as a pyarrow table with the trial log's types, or None when pyarrow's reading
+    cannot be trusted for it (a header that differs, a cell it cannot convert, a row with
+    another number of cells, no newline at the end): :func:`_read_checked` reads those."""
+    import io
+
+    import pyarrow as pa
+    from pyarrow import csv as pacsv
+
+    data = path.read_bytes()
+    if not data.endswith(b"\n"):
+        return None
+    skipped: list[Any] = []
+
+    def skip(row: Any) -> str:
+        skipped.append(row)
+        return "skip"
+
+    try:
+        table = pacsv.read_csv(
+            io.BytesIO(data),
+            read_options=pacsv.ReadOptions(use_threads=False),
+            parse_options=pacsv.ParseOptions(newlines_in_values=True, invalid_row_handler=skip),
+            convert_options=pacsv.ConvertOptions(
+                column_types=_arrow_schema(),
+                true_values=["true"],
+                false_values=["false"],
+                null_values=[""],
+                strings_can_be_null=True,
+                quoted_strings_can_be_null=True,
+            ),
+        )
+    except (pa.ArrowInvalid, UnicodeDecodeError):
+        return None
+    if skipped or table.column_names != [c.name for c in TRIAL_COLUMNS]:
+        return None
+    return table
+
+
+def _read_checked(path: Path) -> Any:
+    """One log through :func:`twofold.study.logs.read_trials` (every cell checked; its errors
+    and warnings name the file and row), as a pyarrow table."""
+    import pyarrow as pa
+
+    df = read_trials(path)
+    return pa.Table.from_pandas(df, schema=_arrow_schema(), preserve_index=False)
+
+
+def _text_as_object(df: pd.DataFrame) -> None:
+    """Text columns as ``object`` with ``None`` for missing, as the table documents (pyarrow and
+    Parquet hand back pandas' string dtype)."""
+    for c in df.columns:
+        if isinstance(df[c].dtype, pd.StringDtype) or df[c].dtype == object:
+            col = df[c].astype(object)
+            df[c] = col.where(col.notna(), None)
+
+
+def _suspect_files(df: pd.DataFrame, n_files: int) -> np.ndarray:
+    """Files with a cell the row-by-row reader would refuse: a required cell empty, a value
+    outside its column's list, a number that is not finite."""
+    bad = np.zeros(len(df), dtype=bool)
+    for c in TRIAL_COLUMNS:
+        col = df[c.name]
+        if c.required:
+            bad |= col.isna().to_numpy()
+        if c.enum:
+            bad |= (col.notna() & ~col.isin(c.enum)).to_numpy()
+        if c.type == "number":
+            v = col.to_numpy(dtype=np.float64, na_value=0.0)
+            bad |= ~np.isfinite(v)
+    return np.bincount(df["_file"].to_numpy()[bad], minlength=n_files) > 0
+
+
+def _read_bulk(
+    paths: list[Path],
+    rels: list[str],
+    bank: Bank,
+    duplicates: str,
+    synthetic: str,
+) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame, str]:
+    import pyarrow as pa
+
+    sides = [read_sidecar(p.with_suffix(".json")) for p in paths]
+    tables = []
+    mapper = {pa.bool_(): pd.BooleanDtype(), pa.int64(): pd.Int64Dtype()}.get
+    for k, p in enumerate(paths):
+        t = _read_one(p)
+        if t is None:
+            t = _read_checked(p)
+        tables.append(t.append_column("_file", pa.array(np.full(t.num_rows, k, np.int32))))
+    if tables:
+        df = pa.concat_tables(tables).to_pandas(types_mapper=mapper)
+        suspect = _suspect_files(df, len(paths))
+        if suspect.any():  # read those again, checked; this raises the row's error in words
+            keep = ~suspect[df["_file"].to_numpy()]
+            again = [
+                _read_checked(paths[k]).to_pandas(types_mapper=mapper).assign(_file=np.int32(k))
+                for k in np.flatnonzero(suspect)
+            ]
+            df = pd.concat([df.loc[keep], *again], ignore_index=True)
+            df = df.sort_values("_file", kind="stable").reset_index(drop=True)
+    else:
+        df = pd.DataFrame({c.name: pd.Series(dtype=object) for c in TRIAL_COLUMNS})
+        df["_file"] = pd.Series(dtype=np.int32)
+    del tables
+    _text_as_object(df)
+    fcode = df["_file"].to_numpy()
+    n_files = len(paths)
+    n_rows = np.bincount(fcode, minlength=n_files)
+
+    def rows_of(k: int) -> pd.DataFrame:
+        return df.loc[fcode == k]
+
+    # bank hash: rows and sidecars
+    bad = df["bank_hash"].notna().to_numpy() & (df["bank_hash"] != bank.hash).to_numpy()
+    bad_files = set(np.unique(fcode[bad]).tolist())
+    for k in range(n_files):
+        if k in bad_files or sides[k].get("bank_hash") not in (None, bank.hash):
+            _check_hash(rels[k], sides[k], rows_of(k), bank)
+    # one session per file, and the sidecar agrees with the rows
+    g = df.groupby("_file", sort=True)
+    firsts = g[["session", "respondent", "kind"]].first()
+    for col in ("session", "respondent", "kind"):
+        multi = g[col].nunique()
+        for k in multi.index[multi > 1]:
+            vals = set(rows_of(int(k))[col].dropna().astype(str))
+            raise LogError(
+                f"{rels[k]}: column '{col}' holds {len(vals)} values "
+                f"({', '.join(sorted(vals)[:3])}); one session per log file.",
+                where=rels[k],
+                field=col,
+            )
+    syn_flag = df["synthetic"].fillna(False).to_numpy(dtype=bool)
+    syn_rows = np.bincount(fcode, weights=syn_flag, minlength=n_files) > 0
+    meta: list[dict[str, Any]] = []
+    for k, (rel, side) in enumerate(zip(rels, sides, strict=True)):
+        if n_rows[k] == 0:
+            session = str(side.get("session") or paths[k].stem)
+            respondent = str(side.get("respondent") or session)
+            kind = str(side.get("kind") or paths[k].parent.name)
+        else:
+            session, respondent, kind = (str(firsts.at[k, c]) for c in firsts.columns)
+            for col, val in (("session", session), ("kind", kind)):
+                sval = side.get(col)
+                if sval is not None and str(sval) != val:
+                    raise LogError(
+                        f"{rel}: sidecar field '{col}': got {sval!r}; the rows say {val!r}.",
+                        where=rel,
+                        field=col,
+                    )
+        is_syn = bool(side.get("synthetic", False)) or bool(syn_rows[k])
+        group, seed = _group_of(side, respondent, kind)
+        meta.append(
+            dict(
+                session=session,
+                respondent=respondent,
+                kind=kind,
+                group=group,
+                seed=seed,
+                synthetic=is_syn,
+                keep=not ((synthetic == "drop" and is_syn) or (synthetic == "only" and not is_syn)),
+            )
+        )
+    keep_file = np.array([m["keep"] for m in meta], dtype=bool)
+    study_name = ""
+    for k in np.flatnonzero(keep_file):
+        side_study = sides[k].get("study")
+        row_study = df["study"].iat[int(np.argmax(fcode == k))] if n_rows[k] else ""
+        study_name = str(side_study or row_study)
+        if study_name:
+            break
+    df = df.loc[keep_file[fcode]] if n_files else df
+    fcode = df["_file"].to_numpy()
+    # every item is the bank's
+    unknown_rows = ~df["item"].isin({it.id for it in bank.items}).to_numpy()
+    if unknown_rows.any():
+        k = int(fcode[unknown_rows].min())
+        unknown = sorted(set(df.loc[unknown_rows & (fcode == k), "item"]))
+        raise LogError(
+            f"{rels[k]}: field 'item': got {unknown[0]!r}; accepted: an item id of the bank "
+            f"({len(unknown)} unknown item ids in this log).",
+            where=rels[k],
+            field="item",
+        )
+    # duplicates, missing and extra trials
+    dup_trial = df.duplicated(["_file", "trial"], keep="first").to_numpy()
+    issues: list[dict[str, Any]] = []
+    dup_files = set(np.unique(fcode[dup_trial]).tolist())
+    if duplicates == "raise" and dup_files:
+        k = min(dup_files)
+        sub = df.loc[dup_trial & (fcode == k), "trial"]
+        raise LogError(
+            f"{rels[k]}: trial {sub.iloc[0]} is logged {len(sub) + 1} "
+            "times or more; pass duplicates='first' to keep the first row.",
+            where=rels[k],
+            field="trial",
+        )
+    n_dup_trial = np.bincount(fcode[dup_trial], minlength=n_files)
+    dup_detail = {
+        k: ", ".join(map(str, df.loc[dup_trial & (fcode == k), "trial"].unique()[:5]))
+        for k in dup_files
+    }
+    if duplicates == "first":
+        df = df.loc[~dup_trial]
+        fcode = df["_file"].to_numpy()
+    dup_item = (
+        df.duplicated(["_file", "item"], keep="first").to_numpy()
+        & ~df.duplicated(["_file", "trial"], keep="first").to_numpy()
+    )
+    n_dup_item = np.bincount(fcode[dup_item], minlength=n_files)
+    n_kept = np.bincount(fcode, minlength=n_files)
+    trial = df["trial"].to_numpy(dtype=np.float64, na_value=np.nan)
+    uniq = df.loc[~np.isnan(trial), ["_file", "trial"]].drop_duplicates()
+    n_unique = np.bincount(uniq["_file"].to_numpy(), minlength=n_files)
+    expected = np.array(
+        [
+            e if isinstance(e, int) and not isinstance(e, bool) else -1
+            for e in (s.get("n_trials") for s in sides)
+        ],
+        dtype=np.int64,
+    )
+    ut = uniq["trial"].to_numpy(dtype=np.int64)
+    uf = uniq["_file"].to_numpy()
+    in_range = (ut >= 0) & (ut < expected[uf])
+    n_present = np.bincount(uf[in_range], minlength=n_files)
+    sessions: list[dict[str, Any]] = []
+    for k in np.flatnonzero(keep_file):
+        m, rel, side = meta[k], rels[k], sides[k]
+        if n_dup_trial[k]:
+            issues.append(
+                dict(
+                    source=rel,
+                    session=m["session"],
+                    issue="duplicate_trial",
+                    n=int(n_dup_trial[k]),
+                    detail="trial index logged again: " + dup_detail[k],
+                )
+            )
+        if n_dup_item[k]:
+            items_again = df.loc[dup_item & (fcode == k), "item"]
+            issues.append(
+                dict(
+                    source=rel,
+                    session=m["session"],
+                    issue="duplicate_item",
+                    n=int(n_dup_item[k]),
+                    detail="item presented again under another trial index: "
+                    + ", ".join(items_again.unique()[:3]),
+                )
+            )
+        exp_k = int(expected[k])
+        n_missing = 0
+        if exp_k >= 0:
+            if exp_k > n_unique[k]:
+                n_missing = exp_k - int(n_present[k])
+                issues.append(
+                    dict(
+                        source=rel,
+                        session=m["session"],
+                        issue="missing_trials",
+                        n=n_missing,
+                        detail=f"sidecar n_trials={exp_k}; {int(n_unique[k])} trials logged "
+                        f"(session status {side.get('status', 'unknown')})",
+                    )
+                )
+            elif n_unique[k] > exp_k:
+                issues.append(
+                    dict(
+                        source=rel,
+                        session=m["session"],
+                        issue="extra_trials",
+                        n=int(n_unique[k]) - exp_k,
+                        detail=f"sidecar n_trials={exp_k}; {int(n_unique[k])} trials logged",
+                    )
+                )
+        sessions.append(
+            dict(
+                session=m["session"],
+                respondent=m["respondent"],
+                kind=m["kind"],
+                group=m["group"],
+                seed=m["seed"],
+                synthetic=m["synthetic"],
+                status=side.get("status"),
+                n_trials_expected=exp_k if exp_k >= 0 else pd.NA,
+                n_rows=int(n_rows[k]),
+                n_trials=int(n_kept[k]),
+                n_duplicates=int(n_rows[k] - n_unique[k]),
+                n_missing=n_missing,
+                source=rel,
+            )
+        )
+    raw = _raw_trials(df, fcode, meta, sides, rels)
+    sess = pd.DataFrame(sessions, columns=list(SESSION_COLUMNS))
+    sess["seed"] = sess["seed"].astype("Int64")
+    sess["n_trials_expected"] = sess["n_trials_expected"].astype("Int64")
+    iss = pd.DataFrame(issues, columns=list(ISSUE_COLUMNS))
+    _text_as_object(sess)
+    _text_as_object(iss)
+    return raw, sess, iss, study_name
+
+
+def _raw_trials(
+    df: pd.DataFrame,
+    fcode: np.ndarray,
+    meta: list[dict[str, Any]],
+    sides: list[dict[str, Any]],
+    rels: list[str],
+) -> pd.DataFrame:
+    """The log rows with their session's group, seed, status and source, in table order."""
+    df = df.drop(columns=_DROPPED)
+    per_file = pd.DataFrame(
+        {
+            "group": [m["group"] for m in meta],
+            "seed": pd.array([m["seed"] for m in meta], dtype="Int64"),
+            "session_status": [s.get("status") for s in sides],
+            "source": rels,
+            "_syn": [m["synthetic"] for m in meta],
+        }
+    )
+    for col in ("group", "seed", "session_status", "source"):
+        df[col] = per_file[col].to_numpy()[fcode] if len(per_file) else per_file[col]
+    if len(per_file):
+        syn = per_file["_syn"].to_numpy(dtype=bool)[fcode]
+        df["synthetic"] = df["synthetic"].fillna(pd.Series(syn, index=df.index))
+    df["seed"] = df["seed"].astype("Int64")
+    df["synthetic"] = df["synthetic"].astype("boolean")
+    df = df.drop(columns="_file")
+    _text_as_object(df)
+    df = df.sort_values(["kind", "group", "session", "trial"], kind="stable")
+    return df.reset_index(drop=True)
 
 
 def _check_hash(rel: str, side: dict[str, Any], df: pd.DataFrame, bank: Bank) -> None:
@@ -461,21 +703,95 @@ def _check_hash(rel: str, side: dict[str, Any], df: pd.DataFrame, bank: Bank) ->
         )
 
 
-def _assemble(frames: list[pd.DataFrame], items: pd.DataFrame) -> pd.DataFrame:
+def _with_items(raw: pd.DataFrame, items: pd.DataFrame) -> pd.DataFrame:
+    """Join the bank's item columns (family, parents, factors) to the rows, keeping their order."""
     factors = [c for c in items.columns if c.startswith("factor_")]
     cols = list(BASE_COLUMNS) + factors
-    if not frames:
-        empty = pd.DataFrame({c: pd.Series(dtype=object) for c in cols})
-        return empty
-    df = pd.concat(frames, ignore_index=True)
-    df = df.merge(items, on="item", how="left", validate="many_to_one")
-    df["seed"] = df["seed"].astype("Int64")
-    df["synthetic"] = df["synthetic"].astype("boolean")
+    if raw.empty:
+        return pd.DataFrame({c: pd.Series(dtype=object) for c in cols})
+    df = raw.merge(items, on="item", how="left", validate="many_to_one")
     df["isomorph"] = df["isomorph"].astype(bool)
-    df = df[cols]
-    return df.sort_values(["kind", "group", "session", "trial"], kind="stable").reset_index(
-        drop=True
-    )
+    return df[cols]
+
+
+# -- cache ---------------------------------------------------------------------------------------
+#: bump when the cached tables' layout or the reading rules change
+CACHE_VERSION = 1
+
+
+def _digest(path: Path) -> str | None:
+    try:
+        with open(path, "rb") as fh:
+            return hashlib.file_digest(fh, "sha256").hexdigest()
+    except FileNotFoundError:
+        return None
+
+
+def _cache_key(
+    paths: list[Path], rels: list[str], bank: Bank, duplicates: str, synthetic: str
+) -> str:
+    record = {
+        "version": CACHE_VERSION,
+        "bank_hash": bank.hash,
+        "duplicates": duplicates,
+        "synthetic": synthetic,
+        "files": [
+            [rel, _digest(p), _digest(p.with_suffix(".json"))]
+            for p, rel in zip(paths, rels, strict=True)
+        ],
+    }
+    return hashlib.sha256(json.dumps(record, sort_keys=True).encode()).hexdigest()
+
+
+class _Cache:
+    """The trials, sessions and issues tables as Parquet files plus ``cache.json`` (the key).
+
+    ``cache.json`` is written last and atomically, so a half-written cache never matches.
+    """
+
+    TABLES = ("trials", "sessions", "issues")
+
+    def __init__(self, folder: Path, logs_dir: Path) -> None:
+        here, logs = folder.resolve(), logs_dir.resolve()
+        if here == logs or logs in here.parents:
+            raise fail(
+                "cache_dir",
+                str(folder),
+                "a folder outside the logs folder (e.g. the analysis results folder)",
+            )
+        self.folder = folder
+
+    def load(self, key: str) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame, str] | None:
+        try:
+            meta = json.loads((self.folder / "cache.json").read_text("utf-8"))
+            if meta.get("key") != key:
+                return None
+            tables = [pd.read_parquet(self.folder / f"{t}.parquet") for t in self.TABLES]
+        except (OSError, ValueError):  # missing or unreadable: rebuild
+            return None
+        raw, sess, iss = tables
+        for df in tables:
+            _text_as_object(df)
+        return raw, sess, iss, str(meta.get("study", ""))
+
+    def save(
+        self, key: str, raw: pd.DataFrame, sess: pd.DataFrame, iss: pd.DataFrame, study: str
+    ) -> None:
+        self.folder.mkdir(parents=True, exist_ok=True)
+        (self.folder / "cache.json").unlink(missing_ok=True)
+        for name, df in zip(self.TABLES, (raw, sess, iss), strict=True):
+            fd, tmp = tempfile.mkstemp(prefix=f".{name}.", suffix=".parquet", dir=self.folder)
+            os.close(fd)
+            try:
+                df.to_parquet(tmp, index=False)
+                os.replace(tmp, self.folder / f"{name}.parquet")
+            except BaseException:
+                Path(tmp).unlink(missing_ok=True)
+                raise
+        write_json_atomic(
+            self.folder / "cache.json",
+            {"key": key, "version": CACHE_VERSION, "study": study, "rows": len(raw)},
+        )
 
 
 def load_study_data(
@@ -484,6 +800,7 @@ def load_study_data(
     bank: Bank | None = None,
     duplicates: Literal["first", "raise", "keep"] = "first",
     synthetic: Literal["keep", "drop", "only"] = "keep",
+    cache_dir: str | Path | None = None,
 ) -> StudyData:
     """Load every session log of a study with its bank into tidy tables.
 
@@ -493,8 +810,8 @@ def load_study_data(
         A loaded study or the path of its ``study.toml`` (or folder).
     bank : Bank, optional
         The bank; by default the study's bank folder is loaded (never generated here).
-    duplicates, synthetic
-        See :func:`read_logs`.
+    duplicates, synthetic, cache_dir
+        See :func:`read_logs` (``twofold analyze`` caches in ``<results>/cache``).
 
     Returns
     -------
@@ -509,7 +826,9 @@ def load_study_data(
             "human/<session>.csv or machine/<session>.csv files (run sessions first).",
             where=str(st.logs_dir),
         )
-    data = read_logs(st.logs_dir, bank, duplicates=duplicates, synthetic=synthetic)
+    data = read_logs(
+        st.logs_dir, bank, duplicates=duplicates, synthetic=synthetic, cache_dir=cache_dir
+    )
     return dataclasses.replace(data, study=st.name)
 
 

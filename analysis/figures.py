@@ -277,7 +277,7 @@ def error_type_composition(counts: pd.DataFrame) -> Figure:
     return fig
 
 
-def error_consistency(pairs: pd.DataFrame) -> Figure:
+def error_consistency(pairs: pd.DataFrame, *, summary: pd.DataFrame | None = None) -> Figure:
     """Pairwise error consistency: machine–machine and machine–human matrix, human ceiling beside.
 
     Parameters
@@ -286,6 +286,11 @@ def error_consistency(pairs: pd.DataFrame) -> Figure:
         Columns ``group_a``, ``group_b``, ``kind_pair`` (``human-human``, ``human-machine``,
         ``machine-machine``), ``kappa`` (Cohen's kappa on correct/incorrect; NaN when undefined).
         Human rows use ``group = "human"`` with one row per pair of people.
+    summary : DataFrame, optional
+        Per group pair ``group_a, group_b, pair_type, n_pairs, mean, median, q_low, q_high``
+        (``error_consistency_distribution``); used for group pairs without rows in ``pairs``
+        (the human-human pairs, which are summarised rather than listed by default): the
+        ceiling is then drawn as its median and central quantile band.
     """
     fig = Figure(figsize=(8.2, 3.8), layout="constrained")
     ax_m, ax_h = fig.subplots(1, 2, width_ratios=[1.3, 1])
@@ -297,6 +302,15 @@ def error_consistency(pairs: pd.DataFrame) -> Figure:
             v = float(np.nanmean(d["kappa"])) if d["kappa"].notna().any() else np.nan
             i, j = labels.index(a), labels.index(b)
             mat[i, j] = mat[j, i] = v
+    listed = set(zip(pairs["group_a"], pairs["group_b"], strict=True))
+    hh_summary = None
+    for r in (summary if summary is not None else pd.DataFrame()).itertuples(index=False):
+        if (r.group_a, r.group_b) in listed or r.group_a not in labels or r.group_b not in labels:
+            continue
+        i, j = labels.index(r.group_a), labels.index(r.group_b)
+        mat[i, j] = mat[j, i] = r.mean
+        if r.pair_type == "human-human":
+            hh_summary = r
     im = ax_m.imshow(mat, vmin=-0.2, vmax=1, cmap="cividis")
     ax_m.set_xticks(range(len(labels)), labels, rotation=30, ha="right", fontsize=8)
     ax_m.set_yticks(range(len(labels)), labels, fontsize=8)
@@ -318,6 +332,17 @@ def error_consistency(pairs: pd.DataFrame) -> Figure:
     if len(hh):
         ax_h.hist(hh, bins=20, color="#bbbbbb", edgecolor="#555555", label="human–human pairs")
         ax_h.axvline(hh.median(), color="#1b1b1b", linestyle="-", label="human median (ceiling)")
+    elif hh_summary is not None and np.isfinite(hh_summary.median):
+        ax_h.axvspan(
+            hh_summary.q_low,
+            hh_summary.q_high,
+            color="#bbbbbb",
+            alpha=0.6,
+            label=f"human–human central {hh_summary.conf_level:.0%}",
+        )
+        ax_h.axvline(
+            hh_summary.median, color="#1b1b1b", linestyle="-", label="human median (ceiling)"
+        )
     for g in machines:
         d = hm[(hm["group_a"] == g) | (hm["group_b"] == g)]["kappa"].dropna()
         if len(d):
@@ -335,7 +360,8 @@ def error_consistency(pairs: pd.DataFrame) -> Figure:
     _caption(
         fig,
         f"Trial-level error consistency (Cohen's κ on correct/incorrect, Geirhos et al. "
-        f"2020) on shared items; {len(hh)} human–human pairs.",
+        f"2020) on shared items; "
+        f"{len(hh) if hh_summary is None else hh_summary.n_pairs} human–human pairs.",
     )
     return fig
 

@@ -26,9 +26,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from scipy.special import expit
-from scipy.stats import rankdata
 from twofold.study._check import check_int, check_number, fail
 
+from ._ranks import spearman_rows
 from .irt import IRTResult, fit_irt, response_matrix
 
 __all__ = [
@@ -64,17 +64,6 @@ def _item_parameters(items: Any) -> tuple[np.ndarray, np.ndarray]:
     raise fail("items", type(items).__name__, "an IRTResult or a table with columns a and b")
 
 
-def _spearman_rows(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """Spearman correlation of matching rows of x and y (average ranks; NaN if constant)."""
-    rx = rankdata(x, axis=1)
-    ry = rankdata(y, axis=1)
-    rx -= rx.mean(axis=1, keepdims=True)
-    ry -= ry.mean(axis=1, keepdims=True)
-    den = np.sqrt((rx * rx).sum(1) * (ry * ry).sum(1))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(den > 0, (rx * ry).sum(1) / den, np.nan)
-
-
 def _simulate_block(task: tuple) -> tuple[np.ndarray, np.ndarray]:
     """One block of simulated studies: returns (profile correlations, kind effects)."""
     a, d, machine_error, n_humans, n_seeds, n_sim, missing, mean, sd, seed = task
@@ -101,7 +90,7 @@ def _simulate_block(task: tuple) -> tuple[np.ndarray, np.ndarray]:
             human_acc = correct.mean((1, 2))
         mach_wrong = rng.random((k, n_seeds, J)) < machine_error
         mach_err = mach_wrong.mean(1)
-        rho[start : start + k] = _spearman_rows(human_err, mach_err)
+        rho[start : start + k] = spearman_rows(human_err, mach_err)
         effect[start : start + k] = (1.0 - mach_err.mean(1)) - human_acc
     return rho, effect
 
@@ -111,7 +100,7 @@ def _true_values(a, d, machine_error, mean, sd) -> tuple[float, float]:
     weights = weights / weights.sum()
     p = expit(a * (mean + sd * nodes[:, None]) + d)  # nodes x items
     human_err = 1.0 - weights @ p
-    rho = float(_spearman_rows(human_err[None], machine_error[None])[0])
+    rho = float(spearman_rows(human_err[None], machine_error[None])[0])
     return rho, float((1.0 - machine_error.mean()) - (1.0 - human_err.mean()))
 
 

@@ -370,13 +370,19 @@ def build_report(
     # -- error consistency ------
     cp, cs = _read(results, "consistency_pairs"), _read(results, "consistency_summary")
     if cp is not None:
-        fig = F.error_consistency(cp.rename(columns={"pair_type": "kind_pair"}))
+        fig = F.error_consistency(cp.rename(columns={"pair_type": "kind_pair"}), summary=cs)
         hh = cp.loc[cp["pair_type"] == "human-human", "kappa"].dropna()
         reading = (
             "Error consistency asks whether two respondents err on the same trials beyond "
             "what their accuracies predict (0 = independent, 1 = identical errors)."
         )
-        if len(hh):
+        hh_row = cs[cs["pair_type"] == "human-human"] if cs is not None else cs
+        if hh_row is not None and len(hh_row) and pd.notna(hh_row["median"].iloc[0]):
+            reading += (
+                f" Between people the median is {hh_row['median'].iloc[0]:.2f} (the ceiling), "
+                f"over {int(hh_row['n_pairs'].iloc[0])} pairs."
+            )
+        elif len(hh):
             reading += f" Between people the median is {hh.median():.2f} (the ceiling)."
         hm = cp[cp["pair_type"] == "human-machine"]
         for g in groups:

@@ -14,14 +14,16 @@ mixed        accuracy_fixed.csv, accuracy_random.csv, log_rt_fixed.csv, log_rt_r
 factors      factor_effects.csv
 agreement    item_difficulty.csv, machine_error_rates.csv, difficulty_agreement.csv,
              difficulty_reliability.csv (the human split-half ceiling)
-consistency  consistency_pairs.csv, consistency_summary.csv
+consistency  consistency_pairs.csv (pairs with a machine; every pair with human_pairs = "all"),
+             consistency_summary.csv (all pairs, streamed: the human-human row is the ceiling)
 errors       error_types.csv, error_type_tests.csv, error_type_odds.csv
 robustness   robustness.csv, robustness_test_fixed.csv, robustness_test_random.csv
 export       dataset/ (Psych-DS-style folder with a Frictionless data package)
 ============ ==============================================================================
 
 Options come from the study file's ``[analysis]`` table (``conf_level``, ``n_boot``, ``seed``,
-``irt_model``, ``min_items``, ``synthetic``, ``parts``) and can be overridden by keyword.
+``irt_model``, ``min_items``, ``synthetic``, ``human_pairs``, ``parts``) and can be overridden by
+keyword.
 """
 
 from __future__ import annotations
@@ -66,6 +68,7 @@ OPTIONS: dict[str, tuple[Any, str]] = {
     "irt_model": ("2pl", "one of 1pl, 2pl, rasch"),
     "min_items": (10, "a positive integer"),
     "synthetic": ("keep", "one of drop, keep, only"),
+    "human_pairs": ("summary", "one of all, summary"),
     "parts": (list(PARTS), "a list of parts: " + ", ".join(PARTS)),
 }
 
@@ -80,6 +83,8 @@ def _ok(key: str, value: Any) -> bool:
         return value in ("1pl", "2pl", "rasch")
     if key == "synthetic":
         return value in ("drop", "keep", "only")
+    if key == "human_pairs":
+        return value in ("all", "summary")
     if key == "parts":
         return isinstance(value, list) and all(v in PARTS for v in value)
     return False
@@ -204,6 +209,7 @@ def analyze_study(
     out_dir: str | Path | None = None,
     parts: Iterable[str] | str | None = None,
     progress: Callable[[str], None] | None = None,
+    timing: Callable[[str, float], None] | None = None,
     **options: Any,
 ) -> AnalysisRun:
     """Run the selected analysis parts of a study and write their tables.
@@ -218,9 +224,12 @@ def analyze_study(
         Parts to run (see the module docstring); default: ``[analysis] parts`` or all.
     progress : callable, optional
         Called with each part's name when it finishes.
+    timing : callable, optional
+        Called with ``("load", seconds)`` after reading the logs, then ``(part, seconds)`` as
+        each part finishes (the same times go to ``summary.json``).
     **options
         Override ``[analysis]`` options (``conf_level``, ``n_boot``, ``seed``, ``irt_model``,
-        ``min_items``, ``synthetic``).
+        ``min_items``, ``synthetic``, ``human_pairs``).
 
     Returns
     -------
@@ -236,9 +245,13 @@ def analyze_study(
     chosen = parse_parts(parts) if parts is not None else parse_parts(opts["parts"])
     out = Path(out_dir) if out_dir is not None else st.results_dir
     out.mkdir(parents=True, exist_ok=True)
+    t_load = time.perf_counter()
     with warnings.catch_warnings(record=True) as load_warn:
         warnings.simplefilter("always", TwofoldWarning)
-        data = load_study_data(st, synthetic=opts["synthetic"])
+        data = load_study_data(st, synthetic=opts["synthetic"], cache_dir=out / "cache")
+    load_seconds = round(time.perf_counter() - t_load, 3)
+    if timing is not None:
+        timing("load", load_seconds)
     t = data.trials
     tables: dict[str, pd.DataFrame] = {}
     summary: dict[str, Any] = {
@@ -254,6 +267,7 @@ def analyze_study(
         ),
         "options": {k: v for k, v in opts.items() if k != "parts"},
         "load_warnings": [str(w.message) for w in load_warn],
+        "load_seconds": load_seconds,
         "parts": {},
     }
     irt_items: pd.DataFrame | None = None
@@ -286,6 +300,8 @@ def analyze_study(
         entry["seconds"] = round(time.perf_counter() - t0, 3)
         entry.update(_highlights(part, made))
         summary["parts"][part] = entry
+        if timing is not None:
+            timing(part, entry["seconds"])
         if progress is not None:
             progress(part)
     write_json_atomic(out / "summary.json", json.loads(json.dumps(summary, default=_json)))
@@ -336,11 +352,10 @@ def _run_part(
             ),
         }
     if part == "consistency":
-        pairs = compare.error_consistency(t, min_items=opts["min_items"])
-        return {
-            "consistency_pairs": pairs,
-            "consistency_summary": compare.error_consistency_summary(pairs, conf_level=lvl),
-        }
+        pairs, summ = compare.consistency_tables(
+            t, min_items=opts["min_items"], human_pairs=opts["human_pairs"], conf_level=lvl
+        )
+        return {"consistency_pairs": pairs, "consistency_summary": summ}
     if part == "errors":
         return {
             "error_types": compare.error_types(t),

@@ -61,6 +61,7 @@ def test_output_folder_option(toy, tmp_path):
     rc = main(["analyze", str(toy), "-o", str(tmp_path / "elsewhere"), "--only", "consistency"])
     assert rc == 0
     assert sorted(p.name for p in (tmp_path / "elsewhere").iterdir()) == [
+        "cache",  # the Parquet copy of the tables read from the logs
         "consistency_pairs.csv",
         "consistency_summary.csv",
         "summary.json",

@@ -16,6 +16,7 @@ from twofold.analysis import (
     bootstrap_ci,
     difficulty_agreement,
     error_consistency,
+    error_consistency_distribution,
     error_consistency_kappa,
     error_consistency_summary,
     error_type_odds,
@@ -25,13 +26,14 @@ from twofold.analysis import (
     load_study_data,
     robustness,
 )
+from twofold.analysis._ranks import kendall_rows as _kendall_rows
+from twofold.analysis._ranks import spearman_rows as _spearman_rows
 from twofold.analysis.compare import (
     AGREEMENT_COLUMNS,
     CONSISTENCY_COLUMNS,
+    CONSISTENCY_SUMMARY_COLUMNS,
     ERROR_TEST_COLUMNS,
     ROBUSTNESS_COLUMNS,
-    _kendall_rows,
-    _spearman_rows,
 )
 from twofold.study.exceptions import DegenerateWarning, InputError
 
@@ -89,7 +91,7 @@ def test_kappa_is_defined_when_one_is_always_right_and_the_other_always_wrong():
 
 
 def test_all_pairs_agree_with_the_pairwise_definition_and_scikit_learn(trials):
-    pairs = error_consistency(trials)
+    pairs = error_consistency(trials, human_pairs="all")
     assert list(pairs.columns) == list(CONSISTENCY_COLUMNS)
     n_resp = trials["respondent"].nunique()
     assert len(pairs) == n_resp * (n_resp - 1) // 2
@@ -110,15 +112,15 @@ def test_pairs_on_too_few_shared_items_get_nan_with_a_warning(trials):
     few = trials[trials["respondent"].isin(["S001", "S002"])]
     few = few[few["item"].isin(sorted(few["item"].unique())[:5])]
     with pytest.warns(DegenerateWarning, match="fewer than 10 items"):
-        pairs = error_consistency(few)
+        pairs = error_consistency(few, human_pairs="all")
     assert len(pairs) == 1 and np.isnan(pairs["kappa"].iloc[0])
 
 
 def test_summary_puts_the_human_ceiling_first(trials):
-    summ = error_consistency_summary(error_consistency(trials))
+    summ = error_consistency_summary(error_consistency(trials, human_pairs="all"))
     assert summ.iloc[0][["group_a", "group_b"]].tolist() == ["human", "human"]
     assert summ.iloc[0]["n_pairs"] == 12 * 11 // 2
-    hh = error_consistency(trials[trials["kind"] == "human"])["kappa"]
+    hh = error_consistency(trials[trials["kind"] == "human"], human_pairs="all")["kappa"]
     assert summ.iloc[0]["mean"] == pytest.approx(hh.mean())
     assert summ.iloc[0]["q_low"] <= summ.iloc[0]["median"] <= summ.iloc[0]["q_high"]
 
@@ -336,3 +338,87 @@ def test_difficulty_reliability_is_nan_with_too_few_people():
             _two_pl_trials(np.linspace(-2, 2, 10), n_people=3), by_family=False
         )
     assert np.isnan(out["split_half"].iloc[0])
+
+
+# -- pair agreement by blocks of matrix products -------------------------------------------------
+def _random_trials(n_humans, n_machines, n_items, seed, missing=0.2):
+    """Respondents answering a random subset of items (each kept with prob 1 - missing)."""
+    rng = np.random.default_rng(seed)
+    rows = []
+    for r in range(n_humans + n_machines):
+        kind = "human" if r < n_humans else "machine"
+        group = "human" if kind == "human" else f"bot{r % 2}"
+        p = rng.uniform(0.2, 0.9)
+        for i in range(n_items):
+            if rng.random() < missing:
+                continue
+            rows.append((f"r{r:03d}", kind, group, f"i{i:03d}", bool(rng.random() < p)))
+    return pd.DataFrame(rows, columns=["respondent", "kind", "group", "item", "correct"])
+
+
+@pytest.mark.parametrize("max_cells", [1, 7, 1 << 21])
+def test_block_pair_kappa_equals_scikit_learn_on_random_pairs(max_cells):
+    t = _random_trials(9, 4, 30, seed=11)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DegenerateWarning)
+        pairs = error_consistency(t, human_pairs="all", min_items=1, max_cells=max_cells)
+    assert len(pairs) == 13 * 12 // 2
+    wide = t.pivot(index="item", columns="respondent", values="correct")
+    for row in pairs.itertuples(index=False):
+        both = wide[[row.respondent_a, row.respondent_b]].dropna()
+        a, b = both.iloc[:, 0].astype(bool), both.iloc[:, 1].astype(bool)
+        assert row.n_items == len(both) and row.p_a == pytest.approx(a.mean())
+        if np.isnan(row.kappa):
+            assert a.nunique() == b.nunique() == 1 and a.iloc[0] == b.iloc[0]
+            continue
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            ref = cohen_kappa_score(a, b)
+        # reference: scikit-learn cohen_kappa_score on each pair's shared items
+        np.testing.assert_allclose(row.kappa, ref, rtol=1e-10, atol=1e-12)
+
+
+def test_default_pairs_are_those_with_a_machine(trials):
+    some = error_consistency(trials)
+    every = error_consistency(trials, human_pairs="all")
+    assert set(some["pair_type"]) == {"human-machine", "machine-machine"}
+    key = ["respondent_a", "respondent_b"]
+    sub = every[every["pair_type"] != "human-human"].sort_values(key).reset_index(drop=True)
+    pd.testing.assert_frame_equal(some.sort_values(key).reset_index(drop=True), sub)
+
+
+def test_streamed_distribution_equals_the_summary_of_every_pair(trials):
+    full = error_consistency_summary(error_consistency(trials, human_pairs="all"))
+    streamed = error_consistency_distribution(trials, max_cells=5)
+    assert list(streamed.columns) == list(CONSISTENCY_SUMMARY_COLUMNS)
+    cols = ["group_a", "group_b", "pair_type", "n_pairs", "n_defined", "quantiles"]
+    pd.testing.assert_frame_equal(streamed[cols], full[cols])
+    num = ["mean", "sd", "median", "q_low", "q_high"]
+    np.testing.assert_allclose(streamed[num].to_numpy(), full[num].to_numpy(), rtol=1e-12)
+
+
+def test_binned_quantiles_stay_within_half_a_bin_of_the_exact_ones():
+    t = _random_trials(60, 0, 40, seed=4, missing=0.0)
+    exact = error_consistency_distribution(t)
+    binned = error_consistency_distribution(t, exact_limit=100, max_cells=50)
+    assert exact["quantiles"].tolist() == ["exact"] and binned["quantiles"].tolist() == ["binned"]
+    assert exact["n_pairs"].iloc[0] == binned["n_pairs"].iloc[0] == 60 * 59 // 2
+    np.testing.assert_allclose(binned[["mean", "sd"]], exact[["mean", "sd"]], rtol=1e-10)
+    half_bin = 1 / 65536
+    for col in ("median", "q_low", "q_high"):
+        assert abs(binned[col].iloc[0] - exact[col].iloc[0]) <= half_bin
+
+
+def test_permutation_test_uses_the_hypergeometric_law_without_materialising_permutations():
+    # reference: the permutation law of a 2 x k table with fixed margins is multivariate
+    # hypergeometric (common practice); 40,000 errors x 9999 permutations would need 3 GB as a
+    # permutation array
+    rows = [("human", "human", "a")] * 30000 + [("human", "human", "b")] * 9990
+    rows += [("human", "human", "c")] * 3 + [("machine", "bot", "a")] * 5
+    rows += [("machine", "bot", "c")] * 2
+    t = pd.DataFrame(rows, columns=["kind", "group", "error_type"]).assign(
+        family="f", correct=False, respondent="x", item="i"
+    )
+    out = error_type_tests(t, n_perm=999, seed=1)
+    assert out["test"].iloc[0] == "permutation_g"
+    assert 0 < out["p_val"].iloc[0] < 0.01  # type c is 100x more common among the machine's

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import re
 import shutil
+import warnings
 
 import frictionless
 import numpy as np
@@ -249,3 +250,89 @@ def test_a_study_without_logs_is_a_clear_error(registered, tmp_path):
     toy = make_study(tmp_path, n_parents=2, n_humans=0, machines={})
     with pytest.raises(LogError, match="no session logs found"):
         load_study_data(toy)
+
+
+# -- bulk reading and the Parquet cache ----------------------------------------------------------
+def _per_file(logs_dir, bank):
+    """Every log read one by one through study.logs.read_trials (the reader the bulk path must
+    match), in the trials table's order."""
+    from twofold.study.logs import read_trials
+
+    frames = []
+    for sub in ("human", "machine"):
+        for p in sorted((logs_dir / sub).glob("*.csv")):
+            df = read_trials(p)
+            df = df.loc[~df["trial"].duplicated(keep="first")]
+            frames.append(df.assign(source=pd.Series(f"{sub}/{p.name}", df.index, object)))
+    df = pd.concat(frames, ignore_index=True)
+    return df.sort_values(["kind", "session", "trial"], kind="stable").reset_index(drop=True)
+
+
+def test_bulk_reader_matches_the_row_by_row_reader_including_a_cut_last_line(fresh):
+    bank = load_study(fresh).bank(create=False)
+    path = write_session(
+        fresh / "logs", bank, respondent="P005", kind="human", ability=0.0,
+        rng=np.random.default_rng(6), synthetic=False,
+    )  # fmt: skip
+    with open(path, "a", encoding="utf-8") as fh:  # a crash in the middle of a row
+        fh.write("toy," + bank.hash + ',P005,human,false,P005,F1,main,16,"tly-')
+    with warnings.catch_warnings(record=True) as bulk_warnings:
+        warnings.simplefilter("always", LogWarning)
+        d = load_study_data(fresh)
+    with warnings.catch_warnings(record=True) as ref_warnings:
+        warnings.simplefilter("always", LogWarning)
+        ref = _per_file(fresh / "logs", bank)
+    # whatever the row-by-row reader says about the cut row, the bulk reader says too
+    assert [str(w.message) for w in bulk_warnings] == [str(w.message) for w in ref_warnings]
+    got = d.trials.sort_values(["kind", "session", "trial"], kind="stable").reset_index(drop=True)
+    assert len(got) == len(ref) == 16 * (5 + 4 + 1)
+    for col in ("respondent", "session", "trial", "item", "response", "correct", "error_type",
+                "status", "rt_ms", "effort", "effort_unit", "source"):  # fmt: skip
+        pd.testing.assert_series_equal(got[col], ref[col], check_names=False, check_dtype=True)
+
+
+def test_cache_is_reused_and_rebuilt_when_a_log_changes(fresh, monkeypatch):
+    import twofold.analysis.data as data_mod
+
+    cache = fresh / "results" / "cache"
+    first = load_study_data(fresh, cache_dir=cache)
+    assert (cache / "trials.parquet").is_file() and (cache / "cache.json").is_file()
+    assert not list((fresh / "logs").rglob("*.parquet"))  # never beside the logs
+
+    def no_parse(*args, **kwargs):
+        raise AssertionError("the logs were parsed although the cache matches")
+
+    with monkeypatch.context() as m:
+        m.setattr(data_mod, "_read_bulk", no_parse)
+        again = load_study_data(fresh, cache_dir=cache)
+    pd.testing.assert_frame_equal(again.trials, first.trials)
+    pd.testing.assert_frame_equal(again.sessions, first.sessions)
+    assert again.study == first.study
+    # flip the first trial's correct cell of one log (true <-> false: a content change)
+    path = sorted((fresh / "logs" / "human").glob("*.csv"))[0]
+    lines = path.read_text().splitlines(keepends=True)
+    cells = lines[1].split(",")
+    idx = [c.name for c in data_mod.TRIAL_COLUMNS].index("correct")
+    assert cells[idx] in ("true", "false")
+    cells[idx] = "false" if cells[idx] == "true" else "true"
+    lines[1] = ",".join(cells)
+    path.write_text("".join(lines))
+    with monkeypatch.context() as m:
+        m.setattr(data_mod, "_read_bulk", no_parse)
+        with pytest.raises(AssertionError, match="parsed although"):
+            load_study_data(fresh, cache_dir=cache)
+    changed = load_study_data(fresh, cache_dir=cache)
+    src = f"human/{path.name}"
+    a = first.trials[(first.trials["source"] == src) & (first.trials["trial"] == 0)]["correct"]
+    b = changed.trials[(changed.trials["source"] == src) & (changed.trials["trial"] == 0)]
+    assert bool(b["correct"].iloc[0]) != bool(a.iloc[0])
+    # another option is another key
+    with monkeypatch.context() as m:
+        m.setattr(data_mod, "_read_bulk", no_parse)
+        with pytest.raises(AssertionError, match="parsed although"):
+            load_study_data(fresh, cache_dir=cache, synthetic="drop")
+
+
+def test_cache_inside_the_logs_folder_is_refused(fresh):
+    with pytest.raises(InputError, match="field 'cache_dir'"):
+        load_study_data(fresh, cache_dir=fresh / "logs" / "cache")

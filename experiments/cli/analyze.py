@@ -31,7 +31,13 @@ def analyze(
     parts = parse_parts(only)
     st = load_study(study)
     with progress("analysing", len(parts)) as bar:
-        run = analyze_study(st, out_dir=out, parts=parts, progress=lambda part: bar.advance(1))
+        run = analyze_study(
+            st,
+            out_dir=out,
+            parts=parts,
+            progress=lambda part: bar.advance(1),
+            timing=lambda name, secs: bar.note(f"{name}: {secs:.1f} s"),
+        )
     for part, entry in run.summary["parts"].items():
         if entry["status"] != "ok":
             console.print(f"{part}: skipped ({entry['reason']})", markup=False)
