@@ -1,7 +1,7 @@
 """The subprocess adapter: a long-running child process speaking JSON lines.
 
 Protocol ``twofold-jsonl``, version 1 (also in ``PROTOCOL.md`` beside this module)
----------------------------------------------------------------------------------
+----------------------------------------------------------------------------------
 The child is started once with the spec's argv and kept running. Every message is one JSON object
 on one line (UTF-8, ``\\n``-terminated); the runner writes to the child's stdin and reads its
 stdout; the child's stderr is kept in a file and its last lines are quoted in failure reasons.
@@ -222,7 +222,7 @@ class CommandSolver:
                 "an integer from 1024 to 2147483648."
             )
         self.max_reply_bytes = limit
-        #: values the runner writes as *** wherever they would appear
+        #: values the runner writes as ``***`` wherever they would appear
         self.secrets = [str(v) for v in (self.env or {}).values()]
         #: the version the child declares in its hello reply (part of the trial-cache key)
         self.version: str | None = None

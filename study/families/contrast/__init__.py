@@ -15,17 +15,17 @@ different attributes joined by ``+`` (``dome+large``: a large dome).
 form                     meaning                                               length
 =======================  ====================================================  ======
 ``n=3``, ``n>=3``        the panel holds exactly / at least 3 objects          1
-``every[D]``             every object fits description D                       1+|D|
-``some[D]``, ``no[D]``   at least one / no object fits D                       1+|D|
+``every[D]``             every object fits description D                       ``1+|D|``
+``some[D]``, ``no[D]``   at least one / no object fits D                       ``1+|D|``
 ``#[v]=2``               exactly 2 objects have value v                        2
-``above[a,b]``           an object fitting a is above (higher row than) one     1+args
+``above[a,b]``           an object fitting a is above (higher row than) one     ``1+args``
                          fitting b; ``leftof``, ``bigger``, ``inside`` alike;
                          an argument is one value or ``*`` (any object)
-``~F``                   F does not hold                                       1+|F|
-``F & G``                both hold                                             1+|F|+|G|
+``~F``                   F does not hold                                       ``1+|F|``
+``F & G``                both hold                                             ``1+|F|+|G|``
 =======================  ====================================================  ======
 
-|D| counts values and ``+`` signs (``dome+large`` has length 3), ``*`` counts 0. Parentheses
+``|D|`` counts values and ``+`` signs (``dome+large`` has length 3), ``*`` counts 0. Parentheses
 group. The description length of a rule is the sum of these counts; it orders the hypothesis
 space (shorter rules first).
 

@@ -154,7 +154,7 @@ def _tile(g: Grid, r: int, c: int) -> Grid | None:
     return np.tile(g, (r, c))
 
 
-#: name -> (kind, function(grid, *args) -> grid or None when not applicable)
+#: name -> ``(kind, function(grid, *args) -> grid or None when not applicable)``
 OPS: dict[str, tuple[str, Callable[..., Grid | None]]] = {
     "flip_lr": ("geometric", lambda g: g[:, ::-1]),
     "flip_ud": ("geometric", lambda g: g[::-1, :]),
