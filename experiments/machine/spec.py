@@ -27,20 +27,18 @@ from __future__ import annotations
 
 import dataclasses
 import hashlib
-import importlib
-import inspect
 import re
-import shlex
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from twofold.experiments.solvers import Answer, Solver, builtin_solvers, make_builtin
+from twofold.experiments.solvers import Solver, builtin_solvers, make_builtin
 from twofold.study._check import check_choice, check_number, fail
 from twofold.study.exceptions import InputError, SolverError, SpecError
 from twofold.study.item import MODES, canonical_json
 from twofold.study.render import MEDIA
 
-from ._core import coerce_answer, redact_mapping
+from ._core import redact_mapping
+from .adapters import adapter_for, spec_forms
 
 __all__ = [
     "DEFAULT_TIMEOUT",
@@ -58,7 +56,6 @@ _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 SECRET_OPTIONS = ("api_key",)
 #: option tables whose values may hold secrets; recorded with every value shown as ``***``
 REDACTED_TABLES = ("headers", "env")
-_INTERPRETERS = ("python", "node", "ruby", "perl", "julia", "Rscript", "bash", "sh", "java")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -96,7 +93,7 @@ class SolverSpec:
 
     @property
     def kind(self) -> str:
-        """``builtin``, ``python``, ``command`` or ``http``."""
+        """``builtin``, or the adapter claiming the spec (``python``, ``command``, ``http``...)."""
         return _kind(self.spec)
 
     def config(self) -> dict[str, Any]:
@@ -152,36 +149,15 @@ class SolverSpec:
 
 
 def _kind(spec: str) -> str:
-    if spec.startswith("python:"):
-        return "python"
-    if spec.startswith("command:"):
-        return "command"
-    if spec.startswith(("http:", "https:")):
-        return "http"
-    return "builtin"
+    adapter = adapter_for(spec)
+    return "builtin" if adapter is None else adapter.name
 
 
 def _default_name(spec: str) -> str:
-    kind = _kind(spec)
-    if kind == "python":
-        name = spec.rsplit(":", 1)[-1].replace("_", "-")
-    elif kind == "command":
-        argv = shlex.split(spec[len("command:") :]) or ["command"]
-        prog = argv[0]
-        if prog.rsplit("/", 1)[-1].startswith(_INTERPRETERS):
-            scripts = [a for a in argv[1:] if not a.startswith("-")]
-            prog = scripts[0] if scripts else prog
-        name = prog.rsplit("/", 1)[-1].rsplit(".", 1)[0].replace("_", "-")
-    elif kind == "http":
-        name = "http-" + re.sub(r"[^A-Za-z0-9]+", "-", _url(spec).split("://", 1)[-1]).strip("-")
-    else:
-        name = spec
+    adapter = adapter_for(spec)
+    name = spec if adapter is None else adapter.default_name(spec)
     name = re.sub(r"^[^A-Za-z0-9]+", "", re.sub(r"[^A-Za-z0-9_.-]", "-", name))[:64]
     return name or "solver"
-
-
-def _url(spec: str) -> str:
-    return spec[len("http:") :] if spec.startswith("http:http") else spec
 
 
 def _seeds(value: Any, *, where: str) -> tuple[int, ...]:
@@ -219,7 +195,7 @@ def parse_solver_entry(entry: Any, *, where: str = "study.toml: solvers") -> Sol
         raise fail(
             "spec",
             spec,
-            "a solver spec: a built-in name, python:MODULE:ATTRIBUTE, command:ARGV or http:URL",
+            "a solver spec: " + spec_forms(),
             where=where,
             error=SpecError,
         )
@@ -365,36 +341,20 @@ def build_solver(spec: SolverSpec, seed: int = 0) -> Solver:
         that does not speak the protocol, an endpoint that is down).
     """
     where = f"solver '{spec.name}'"
-    kind = spec.kind
-    if kind == "builtin":
+    adapter = adapter_for(spec.spec)
+    if adapter is None:
         try:
             solver = make_builtin(spec.spec, seed=seed, **spec.options)
         except InputError:
             raise SolverError(
-                f"{where}: unknown solver spec {spec.spec!r}; use a built-in name ("
-                + ", ".join(builtin_solvers())
-                + "), python:MODULE:ATTRIBUTE, command:ARGV or http:URL."
+                f"{where}: unknown solver spec {spec.spec!r}; use "
+                + spec_forms(f"a built-in name ({', '.join(builtin_solvers())})")
+                + "."
             ) from None
         except TypeError as err:
             raise SolverError(f"{where}: bad options for {spec.spec!r}: {err}.") from err
-    elif kind == "python":
-        solver = _python_solver(spec, seed, where=where)
-    elif kind == "command":
-        from .command import CommandSolver
-
-        solver = CommandSolver(
-            spec.spec[len("command:") :],
-            options=spec.options,
-            seed=seed,
-            timeout=spec.timeout,
-            name=spec.name,
-        )
     else:
-        from .chat import ChatSolver
-
-        solver = ChatSolver(
-            _url(spec.spec), options=spec.options, seed=seed, timeout=spec.timeout, name=spec.name
-        )
+        solver = adapter.build(spec, seed, where)
     medium = spec.medium or getattr(solver, "medium", None)
     if medium not in MEDIA:
         raise SolverError(
@@ -402,87 +362,3 @@ def build_solver(spec: SolverSpec, seed: int = 0) -> Solver:
             "(set medium in the [[solvers]] entry or a medium attribute on the solver)."
         )
     return solver
-
-
-class _FunctionSolver:
-    """Wraps a user's ``solve(view, mode)`` (function or method) so it returns an Answer."""
-
-    def __init__(self, fn: Any, medium: str, owner: Any = None):
-        self._fn = fn
-        self._owner = owner
-        self.medium = medium
-        self.max_in_flight = int(getattr(owner, "max_in_flight", 1) or 1)
-        #: the version the user's solver declares (part of the trial-cache key)
-        self.version = getattr(owner if owner is not None else fn, "version", None)
-
-    def solve(self, view: Any, mode: str) -> Answer:
-        return coerce_answer(self._fn(view, mode))
-
-
-def _check_signature(fn: Any, attr: str, where: str) -> None:
-    """Refuse a solve function that cannot be called as ``solve(view, mode)``."""
-    try:
-        sig = inspect.signature(fn)
-    except (TypeError, ValueError):  # builtins without a signature: trust them
-        return
-    try:
-        sig.bind(None, "generate")
-    except TypeError as err:
-        raise SolverError(
-            f"{where}: {attr} cannot be called as solve(view, mode) ({err}); fix its signature."
-        ) from None
-
-    def close(self) -> None:
-        close = getattr(self._owner, "close", None)
-        if callable(close):
-            close()
-
-
-def _python_solver(spec: SolverSpec, seed: int, *, where: str) -> Solver:
-    target = spec.spec[len("python:") :]
-    module_name, sep, attr = target.partition(":")
-    if not sep or not module_name or not attr:
-        raise SolverError(
-            f"{where}: spec {spec.spec!r} is not python:MODULE:ATTRIBUTE (e.g. "
-            "python:my_pkg.solvers:solve)."
-        )
-    try:
-        module = importlib.import_module(module_name)
-    except ImportError as err:
-        raise SolverError(
-            f"{where}: cannot import module {module_name!r} ({err}); install it or fix the spec."
-        ) from err
-    obj: Any = module
-    for part in attr.split("."):
-        if not hasattr(obj, part):
-            raise SolverError(
-                f"{where}: module {module_name!r} has no attribute {attr!r}; fix the spec."
-            )
-        obj = getattr(obj, part)
-    options = {k: v for k, v in spec.options.items() if k != "medium"}
-    if inspect.isclass(obj):
-        params = inspect.signature(obj).parameters
-        takes_seed = "seed" in params or any(
-            p.kind is inspect.Parameter.VAR_KEYWORD for p in params.values()
-        )
-        try:
-            obj = obj(**({"seed": seed} if takes_seed else {}), **options)
-        except TypeError as err:
-            raise SolverError(
-                f"{where}: cannot build {attr} with options {options}: {err}."
-            ) from err
-    elif options:
-        raise SolverError(
-            f"{where}: options {sorted(options)} given but {attr} is not a class to build with "
-            "them; remove the options or point the spec at a class."
-        )
-    medium = spec.options.get("medium") or getattr(obj, "medium", None) or "structured"
-    if hasattr(obj, "solve") and callable(obj.solve):
-        _check_signature(obj.solve, f"{attr}.solve", where)
-        return _FunctionSolver(obj.solve, medium, owner=obj)
-    if callable(obj):
-        _check_signature(obj, attr, where)
-        return _FunctionSolver(obj, medium)
-    raise SolverError(
-        f"{where}: {attr} is neither callable nor an object with a solve(view, mode) method."
-    )
