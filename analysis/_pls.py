@@ -160,9 +160,7 @@ class CrossProducts:
         w1 = m[: self.q1] / sd[:, None]
         if self.qc == 0:
             return w1
-        w2 = linalg.solve_triangular(
-            l22, m[self.q1 :] - l21 @ w1, lower=True, check_finite=False
-        )
+        w2 = linalg.solve_triangular(l22, m[self.q1 :] - l21 @ w1, lower=True, check_finite=False)
         return np.vstack([w1, w2])
 
     def _backward(self, sd, l21, l22, r: np.ndarray) -> np.ndarray:

@@ -125,8 +125,14 @@ class Design:
 
 
 def mstep(
-    design: Design, r: np.ndarray, n: np.ndarray, phi: np.ndarray, nodes: np.ndarray,
-    *, newton_steps: int = 8, tol: float = 1e-9,
+    design: Design,
+    r: np.ndarray,
+    n: np.ndarray,
+    phi: np.ndarray,
+    nodes: np.ndarray,
+    *,
+    newton_steps: int = 8,
+    tol: float = 1e-9,
 ) -> np.ndarray:
     """Maximise the expected complete-data log-likelihood given expected counts.
 
@@ -277,7 +283,11 @@ def run_em(
 
 
 def score_vector(
-    X: np.ndarray, M: np.ndarray | None, W: np.ndarray, a: np.ndarray, d: np.ndarray,
+    X: np.ndarray,
+    M: np.ndarray | None,
+    W: np.ndarray,
+    a: np.ndarray,
+    d: np.ndarray,
     nodes: np.ndarray,
 ) -> np.ndarray:
     """Gradient of the marginal log-likelihood with respect to (a_1..a_J, d_1..d_J)."""
@@ -293,7 +303,11 @@ def chunks(n_rows: int, n_cols: int, budget: int = 2_000_000) -> list[slice]:
 
 
 def louis_information(
-    X: np.ndarray, M: np.ndarray | None, W: np.ndarray, a: np.ndarray, d: np.ndarray,
+    X: np.ndarray,
+    M: np.ndarray | None,
+    W: np.ndarray,
+    a: np.ndarray,
+    d: np.ndarray,
     nodes: np.ndarray,
 ) -> np.ndarray:
     """Observed information of the marginal log-likelihood in (a_1..a_J, d_1..d_J), exact.
@@ -312,8 +326,11 @@ def louis_information(
     info[:J, :J] = np.diag(pq @ powers[2])
     info[:J, J:] = info[J:, :J] = np.diag(pq @ powers[1])
     info[J:, J:] += np.diag(pq @ powers[0])
-    blocks = [(slice(None, J), slice(None, J), 2), (slice(None, J), slice(J, None), 1),
-              (slice(J, None), slice(J, None), 0)]
+    blocks = [
+        (slice(None, J), slice(None, J), 2),
+        (slice(None, J), slice(J, None), 1),
+        (slice(J, None), slice(J, None), 0),
+    ]
     for rows in chunks(X.shape[0], J):
         Xc, Wc = X[rows], W[rows]
         Mc = np.ones_like(Xc) if M is None else M[rows]
@@ -343,8 +360,14 @@ def louis_information(
 
 
 def mle_theta(
-    X: np.ndarray, M: np.ndarray, a: np.ndarray, d: np.ndarray,
-    *, max_iter: int = 100, tol: float = 1e-8, bound: float = 15.0,
+    X: np.ndarray,
+    M: np.ndarray,
+    a: np.ndarray,
+    d: np.ndarray,
+    *,
+    max_iter: int = 100,
+    tol: float = 1e-8,
+    bound: float = 15.0,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Maximum-likelihood abilities by vectorised Fisher scoring.
 

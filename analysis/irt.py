@@ -72,13 +72,31 @@ _DESIGN = {"2pl": "2pl", "rasch": "rasch", "1pl": "rasch_common"}
 
 #: columns of :attr:`IRTResult.items`
 ITEM_COLUMNS = (
-    "item", "a", "b", "d", "a_se", "b_se", "d_se", "n", "p_correct", "infit", "outfit",
+    "item",
+    "a",
+    "b",
+    "d",
+    "a_se",
+    "b_se",
+    "d_se",
+    "n",
+    "p_correct",
+    "infit",
+    "outfit",
 )
 #: columns of every abilities table
 ABILITY_COLUMNS = ("respondent", "theta", "se", "method", "n_items", "n_correct", "lz")
 #: columns of :attr:`HumanScaleResult.departures`
 DEPARTURE_COLUMNS = (
-    "respondent", "solver", "pooled", "item", "n", "observed", "expected", "residual", "z",
+    "respondent",
+    "solver",
+    "pooled",
+    "item",
+    "n",
+    "observed",
+    "expected",
+    "residual",
+    "z",
     "rank",
 )
 _SEED_ID = re.compile(r"^(?P<solver>.+)-s(?P<seed>\d+)$")
@@ -135,9 +153,11 @@ def response_matrix(
     if unscored == "incorrect":
         values = values.fillna(0.0)
     tidy = pd.DataFrame(
-        {"respondent": df["respondent"].astype(str).to_numpy(),
-         "item": df["item"].astype(str).to_numpy(),
-         "value": values.to_numpy()}
+        {
+            "respondent": df["respondent"].astype(str).to_numpy(),
+            "item": df["item"].astype(str).to_numpy(),
+            "value": values.to_numpy(),
+        }
     )
     dup = tidy.duplicated(["respondent", "item"], keep=False)
     if dup.any():
@@ -170,8 +190,11 @@ def _as_matrix(data: Any, *, kind: str | None = None, name: str = "data") -> pd.
     else:
         arr = np.asarray(data)
         if arr.ndim != 2:
-            raise fail(name, f"an array of shape {arr.shape}",
-                       "a 2-D respondents x items matrix or a trials DataFrame")
+            raise fail(
+                name,
+                f"an array of shape {arr.shape}",
+                "a 2-D respondents x items matrix or a trials DataFrame",
+            )
         if arr.dtype != np.float64:
             try:
                 arr = arr.astype(np.float64)
@@ -319,8 +342,11 @@ class IRTResult:
         """
         check_choice("model", model, MODELS)
         if (b is None) == (d is None):
-            raise fail("b/d", "both" if b is not None else "neither",
-                       "exactly one of difficulties b or intercepts d")
+            raise fail(
+                "b/d",
+                "both" if b is not None else "neither",
+                "exactly one of difficulties b or intercepts d",
+            )
         given = np.atleast_1d(np.asarray(b if b is not None else d, dtype=np.float64))
         J = given.size
         slope = np.ones(J) if a is None else np.atleast_1d(np.asarray(a, dtype=np.float64))
@@ -332,14 +358,36 @@ class IRTResult:
             raise fail("items", f"{len(names)} names", f"one name per item ({J})")
         nan = np.full(J, np.nan)
         table = pd.DataFrame(
-            {"item": names, "a": slope, "b": -inter / slope, "d": inter, "a_se": nan,
-             "b_se": nan, "d_se": nan, "n": np.zeros(J, dtype=np.int64), "p_correct": nan,
-             "infit": nan, "outfit": nan}
+            {
+                "item": names,
+                "a": slope,
+                "b": -inter / slope,
+                "d": inter,
+                "a_se": nan,
+                "b_se": nan,
+                "d_se": nan,
+                "n": np.zeros(J, dtype=np.int64),
+                "p_correct": nan,
+                "infit": nan,
+                "outfit": nan,
+            }
         )
         return cls(
-            model=model, items=table, loglik=np.nan, n_persons=0, n_items=J,
-            n_params=0, converged=True, n_iter=0, n_estep=0, max_change=np.nan,
-            max_gradient=np.nan, history=(), dropped_items=(), dropped_persons=(), cov=None,
+            model=model,
+            items=table,
+            loglik=np.nan,
+            n_persons=0,
+            n_items=J,
+            n_params=0,
+            converged=True,
+            n_iter=0,
+            n_estep=0,
+            max_change=np.nan,
+            max_gradient=np.nan,
+            history=(),
+            dropped_items=(),
+            dropped_persons=(),
+            cov=None,
             quadrature_points=quadrature_points,
         )
 
@@ -381,15 +429,15 @@ class IRTResult:
         lines = [
             f"Item-response model: {self.model} (marginal ML, Bock-Aitkin EM, "
             f"{self.quadrature_points}-point {self.quadrature} quadrature)",
-            f"respondents: {self.n_persons}   items: {self.n_items}   parameters: "
-            f"{self.n_params}",
+            f"respondents: {self.n_persons}   items: {self.n_items}   parameters: {self.n_params}",
             f"log-likelihood: {self.loglik:.3f}   AIC: {self.aic:.1f}   BIC: {self.bic:.1f}",
             f"converged: {self.converged}   cycles: {self.n_iter}   E-steps: {self.n_estep}   "
             f"last change: {self.max_change:.2e}   max gradient: {self.max_gradient:.2e}",
         ]
         if self.dropped_items:
-            lines.append(f"dropped items ({len(self.dropped_items)}): "
-                         + ", ".join(self.dropped_items))
+            lines.append(
+                f"dropped items ({len(self.dropped_items)}): " + ", ".join(self.dropped_items)
+            )
         if self.dropped_persons:
             lines.append(f"dropped respondents with no answers: {len(self.dropped_persons)}")
         cols = ["item", "a", "b", "a_se", "b_se", "n", "p_correct", "infit", "outfit"]
@@ -541,15 +589,19 @@ def fit_irt(
     n_items = frame.shape[1]
     min_items = 1 if model == "rasch" else 2
     if n_items < min_items or frame.shape[0] < 2:
-        raise fail("data", f"{frame.shape[0]} respondents x {n_items} usable items",
-                   f"at least 2 respondents and {min_items} item(s) with variation")
+        raise fail(
+            "data",
+            f"{frame.shape[0]} respondents x {n_items} usable items",
+            f"at least 2 respondents and {min_items} item(s) with variation",
+        )
     X, Mk = _split(values)
     M = None if _full(Mk) else Mk
     design = _q.Design(_DESIGN[model], n_items)
     nodes, logw = _q.normal_quadrature(quadrature_points, quadrature)
     phi0 = _initial_phi(X, Mk, design.kind)
-    out = _q.run_em(X, M, design, phi0, nodes, logw,
-                    max_iter=max_iter, tol=tol, accelerate=accelerate)
+    out = _q.run_em(
+        X, M, design, phi0, nodes, logw, max_iter=max_iter, tol=tol, accelerate=accelerate
+    )
     if not out.converged:
         warnings.warn(
             f"EM stopped after max_iter={max_iter} cycles; last parameter change "
@@ -580,8 +632,11 @@ def fit_irt(
                 raise np.linalg.LinAlgError("non-finite information")
             cov = np.linalg.inv(info)
         except np.linalg.LinAlgError:
-            warnings.warn("observed information is singular; standard errors are NaN",
-                          DegenerateWarning, stacklevel=2)
+            warnings.warn(
+                "observed information is singular; standard errors are NaN",
+                DegenerateWarning,
+                stacklevel=2,
+            )
         if cov is not None:
             full = A @ cov @ A.T  # covariance of (a_1..a_J, d_1..d_J)
             J = n_items
@@ -704,8 +759,11 @@ def _aligned(result: IRTResult, data: Any, name: str = "data") -> pd.DataFrame:
     frame = _as_matrix(data, name=name)
     if not isinstance(data, pd.DataFrame):
         if frame.shape[1] != result.n_items:
-            raise fail(f"{name} columns", frame.shape[1],
-                       f"one column per calibrated item ({result.n_items}) for an array")
+            raise fail(
+                f"{name} columns",
+                frame.shape[1],
+                f"one column per calibrated item ({result.n_items}) for an array",
+            )
         frame.columns = pd.Index(result.item_names, name="item")
     unknown = [c for c in frame.columns if c not in set(result.item_names)]
     if unknown:
@@ -747,8 +805,11 @@ def score_abilities(
     check_choice("method", method, ("eap", "mle"))
     frame = _aligned(result, data)
     X, Mk = _split(frame.to_numpy(dtype=np.float64))
-    q = EAP_POINTS if quadrature_points is None else check_int(
-        "quadrature_points", quadrature_points, low=5, high=2001)
+    q = (
+        EAP_POINTS
+        if quadrature_points is None
+        else check_int("quadrature_points", quadrature_points, low=5, high=2001)
+    )
     theta, se = _scores(X, Mk, result.a, result.d, method, q)
     if method == "mle":
         _warn_extreme(theta)
@@ -842,12 +903,15 @@ def item_fit(
         t = np.asarray(theta, dtype=np.float64).ravel()
         if t.size != X.shape[0]:
             raise fail("theta", f"{t.size} values", f"one ability per row of data ({X.shape[0]})")
-    infit, outfit = _item_fit_arrays(X, Mk, t, result.a, result.d,
-                                     exclude_extreme=exclude_extreme)
+    infit, outfit = _item_fit_arrays(X, Mk, t, result.a, result.d, exclude_extreme=exclude_extreme)
     keep = _fit_rows(X, Mk, t, exclude_extreme)
     return pd.DataFrame(
-        {"item": result.item_names, "n": Mk[keep].sum(0).astype(np.int64),
-         "infit": infit, "outfit": outfit}
+        {
+            "item": result.item_names,
+            "n": Mk[keep].sum(0).astype(np.int64),
+            "infit": infit,
+            "outfit": outfit,
+        }
     )
 
 
@@ -932,8 +996,11 @@ def simulate_responses(
     else:
         mask = np.asarray(missing, dtype=bool)
         if mask.shape != out.shape:
-            raise fail("missing", f"a mask of shape {mask.shape}",
-                       f"a probability or a boolean mask of shape {out.shape}")
+            raise fail(
+                "missing",
+                f"a mask of shape {mask.shape}",
+                f"a probability or a boolean mask of shape {out.shape}",
+            )
         out[mask] = np.nan
     return out
 
@@ -986,8 +1053,9 @@ class HumanScaleResult:
                 f"{row.respondent} ({tag}): theta {row.theta:.2f} (SE {row.se:.2f}), "
                 f"lz {row.lz:.2f}, {row.n_correct}/{row.n_items} correct"
             )
-            dep = self.departures[(self.departures["respondent"] == row.respondent)
-                                  & (self.departures["rank"] <= top)]
+            dep = self.departures[
+                (self.departures["respondent"] == row.respondent) & (self.departures["rank"] <= top)
+            ]
             for drow in dep.sort_values("rank").itertuples(index=False):
                 lines.append(
                     f"    {drow.item}: observed {drow.observed:.2f}, expected "
@@ -1046,8 +1114,11 @@ def score_on_human_scale(
     check_choice("method", method, ("eap", "mle"))
     human = response_matrix(trials, kind="human", duplicates=duplicates)
     if human.shape[0] == 0:
-        raise fail("trials", "no rows with kind == 'human'",
-                   "a trials table with human respondents to calibrate on")
+        raise fail(
+            "trials",
+            "no rows with kind == 'human'",
+            "a trials table with human respondents to calibrate on",
+        )
     cal = fit_irt(human, model=model, **fit_options)
     a, d = cal.a, cal.d
     human_ab = cal.abilities if method == "eap" else score_abilities(cal, human, method=method)
@@ -1070,13 +1141,22 @@ def score_on_human_scale(
     X, Mk = X[keep], Mk[keep]
     ids = [str(r) for r in machine.index[keep]]
     if "solver" in trials.columns:
-        lookup = (trials[trials["kind"] == "machine"]
-                  .drop_duplicates("respondent").set_index("respondent")["solver"].astype(str))
+        lookup = (
+            trials[trials["kind"] == "machine"]
+            .drop_duplicates("respondent")
+            .set_index("respondent")["solver"]
+            .astype(str)
+        )
         solvers = [lookup.get(r, _solver_of(r)) for r in ids]
     else:
         solvers = [_solver_of(r) for r in ids]
-    rows_X, rows_M, labels, solver_col, pooled_col = [X], [Mk], list(ids), list(solvers), \
-        [False] * len(ids)
+    rows_X, rows_M, labels, solver_col, pooled_col = (
+        [X],
+        [Mk],
+        list(ids),
+        list(solvers),
+        [False] * len(ids),
+    )
     if pooled and ids:
         for s in sorted(set(solvers)):
             sel = np.array([v == s for v in solvers])
@@ -1117,8 +1197,14 @@ def score_on_human_scale(
             "z": z[r_idx, j_idx],
         }
     )
-    dep["rank"] = (dep["z"].abs().groupby([dep["respondent"], dep["pooled"]])
-                   .rank(ascending=False, method="first").astype("Int64"))
+    dep["rank"] = (
+        dep["z"]
+        .abs()
+        .groupby([dep["respondent"], dep["pooled"]])
+        .rank(ascending=False, method="first")
+        .astype("Int64")
+    )
     dep = dep.sort_values(["pooled", "respondent", "rank"], kind="stable").reset_index(drop=True)
-    return HumanScaleResult(calibration=cal, abilities=abilities, departures=dep,
-                            skipped_items=skipped)
+    return HumanScaleResult(
+        calibration=cal, abilities=abilities, departures=dep, skipped_items=skipped
+    )

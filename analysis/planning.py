@@ -42,9 +42,21 @@ __all__ = [
 QUANTITIES = ("profile_correlation", "kind_effect")
 #: columns of the table returned by :func:`plan_sample_size`
 PLAN_COLUMNS = (
-    "quantity", "n_humans", "n_seeds", "n_items", "n_sim", "n_undefined", "true_value",
-    "mean_estimate", "sd_estimate", "ci_low", "ci_high", "ci_width", "ci_level",
-    "target_width", "meets_target",
+    "quantity",
+    "n_humans",
+    "n_seeds",
+    "n_items",
+    "n_sim",
+    "n_undefined",
+    "true_value",
+    "mean_estimate",
+    "sd_estimate",
+    "ci_low",
+    "ci_high",
+    "ci_width",
+    "ci_level",
+    "target_width",
+    "meets_target",
 )
 _CELLS_PER_BLOCK = 4_000_000
 _SIMS_PER_TASK = 50
@@ -55,11 +67,17 @@ def _item_parameters(items: Any) -> tuple[np.ndarray, np.ndarray]:
         return items.a, items.d
     if isinstance(items, pd.DataFrame):
         if "a" not in items.columns or not ({"b", "d"} & set(items.columns)):
-            raise fail("items", sorted(map(str, items.columns)),
-                       "an IRTResult or a table with columns a and b (or d)")
+            raise fail(
+                "items",
+                sorted(map(str, items.columns)),
+                "an IRTResult or a table with columns a and b (or d)",
+            )
         a = items["a"].to_numpy(dtype=np.float64)
-        d = (items["d"].to_numpy(dtype=np.float64) if "d" in items.columns
-             else -a * items["b"].to_numpy(dtype=np.float64))
+        d = (
+            items["d"].to_numpy(dtype=np.float64)
+            if "d" in items.columns
+            else -a * items["b"].to_numpy(dtype=np.float64)
+        )
         return a, d
     raise fail("items", type(items).__name__, "an IRTResult or a table with columns a and b")
 
@@ -213,8 +231,7 @@ def plan_sample_size(
         b = -d / a
         rng = np.random.default_rng(made_up)
         zb = (b - b.mean()) / (b.std() or 1.0)
-        bm = b.mean() + b.std() * (alignment * zb
-                                   + np.sqrt(1 - alignment**2) * rng.normal(size=J))
+        bm = b.mean() + b.std() * (alignment * zb + np.sqrt(1 - alignment**2) * rng.normal(size=J))
         machine_error = 1.0 - expit(a * (machine_theta - bm))
     err = np.asarray(machine_error, dtype=np.float64).ravel()
     if err.size != J or np.any((err < 0) | (err > 1)) or np.isnan(err).any():
@@ -241,21 +258,26 @@ def plan_sample_size(
     rows = []
     for c, (n, s) in enumerate(cells):
         parts = [results[t] for t in range(len(tasks)) if owners[t] == c]
-        for q, (qname, truth) in enumerate(zip(QUANTITIES, (true_rho, true_effect),
-                                               strict=True)):
+        for q, (qname, truth) in enumerate(zip(QUANTITIES, (true_rho, true_effect), strict=True)):
             est = np.concatenate([p[q] for p in parts])
             ok = est[np.isfinite(est)]
-            lo, hi = (np.quantile(ok, [alpha / 2, 1 - alpha / 2]) if ok.size
-                      else (np.nan, np.nan))
+            lo, hi = np.quantile(ok, [alpha / 2, 1 - alpha / 2]) if ok.size else (np.nan, np.nan)
             width = hi - lo
             rows.append(
                 {
-                    "quantity": qname, "n_humans": n, "n_seeds": s, "n_items": J,
-                    "n_sim": n_sim, "n_undefined": int(est.size - ok.size),
+                    "quantity": qname,
+                    "n_humans": n,
+                    "n_seeds": s,
+                    "n_items": J,
+                    "n_sim": n_sim,
+                    "n_undefined": int(est.size - ok.size),
                     "true_value": truth,
                     "mean_estimate": ok.mean() if ok.size else np.nan,
                     "sd_estimate": ok.std(ddof=1) if ok.size > 1 else np.nan,
-                    "ci_low": lo, "ci_high": hi, "ci_width": width, "ci_level": ci,
+                    "ci_low": lo,
+                    "ci_high": hi,
+                    "ci_width": width,
+                    "ci_level": ci,
                     "target_width": target_width,
                     "meets_target": bool(np.isfinite(width) and width <= target_width),
                 }
@@ -280,14 +302,17 @@ def required_sample_size(curve: pd.DataFrame) -> pd.DataFrame:
     """
     missing = [c for c in PLAN_COLUMNS if c not in curve.columns]
     if missing:
-        raise fail("curve", f"a table without {', '.join(missing)}",
-                   "a table returned by plan_sample_size")
+        raise fail(
+            "curve", f"a table without {', '.join(missing)}", "a table returned by plan_sample_size"
+        )
     rows = []
     for (qname, s), grp in curve.groupby(["quantity", "n_seeds"], sort=True):
         ok = grp[grp["meets_target"]].sort_values("n_humans")
         rows.append(
             {
-                "quantity": qname, "n_seeds": s, "target_width": grp["target_width"].iloc[0],
+                "quantity": qname,
+                "n_seeds": s,
+                "target_width": grp["target_width"].iloc[0],
                 "n_humans": ok["n_humans"].iloc[0] if len(ok) else pd.NA,
                 "ci_width": ok["ci_width"].iloc[0] if len(ok) else np.nan,
             }
@@ -338,7 +363,10 @@ def plan_from_pilot(
     err = 1.0 - machine.mean(axis=0, skipna=True)
     answered = err.notna().to_numpy()
     if answered.sum() < 3:
-        raise fail("trials", f"{int(answered.sum())} calibrated items answered by the machine",
-                   "at least 3")
+        raise fail(
+            "trials",
+            f"{int(answered.sum())} calibrated items answered by the machine",
+            "at least 3",
+        )
     items = cal.items.loc[answered, ["item", "a", "b", "d"]].reset_index(drop=True)
     return plan_sample_size(items, machine_error=err.to_numpy()[answered], **options)

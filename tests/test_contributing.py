@@ -15,9 +15,7 @@ TEXT = (ROOT / "CONTRIBUTING.md").read_text(encoding="utf-8")
 BLOCKS = re.findall(r"```python\n(.*?)```", TEXT, flags=re.S)
 TICKED = re.findall(r"`([^`\n]+)`", re.sub(r"```.*?```", "", TEXT, flags=re.S))
 NAMES = sorted({t for t in TICKED if re.fullmatch(r"twofold(\.[A-Za-z_]\w*)+", t)})
-PATHS = sorted(
-    {t for t in TICKED if re.fullmatch(r"[\w.-]+(/[\w.<>-]*)+|[\w.-]+\.(md|yaml)", t)}
-)
+PATHS = sorted({t for t in TICKED if re.fullmatch(r"[\w.-]+(/[\w.<>-]*)+|[\w.-]+\.(md|yaml)", t)})
 
 
 def resolve(dotted: str) -> object:

@@ -18,9 +18,7 @@ from twofold.study.item import Item, canonical_json, validate_record
 from twofold.study.render import render, render_picture
 
 FAM = get_family("grids")
-SETTINGS = settings(
-    max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow]
-)
+SETTINGS = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 
 def make(seed: int, *, modes=("generate",), **params) -> Item:
@@ -78,9 +76,10 @@ def test_gravity_keeps_colours_and_is_stable(seed):
     g = ((rng.random((7, 6)) < 0.3) * rng.integers(1, 10, (7, 6))).astype(np.int8)
     for d in ("down", "up", "left", "right"):
         out = G.apply_op(g, ("gravity", d))
-        assert np.bincount(out.ravel(), minlength=10).tolist() == np.bincount(
-            g.ravel(), minlength=10
-        ).tolist()
+        assert (
+            np.bincount(out.ravel(), minlength=10).tolist()
+            == np.bincount(g.ravel(), minlength=10).tolist()
+        )
         again = G.apply_op(out, ("gravity", d))
         assert np.array_equal(again, out)
 
@@ -423,9 +422,7 @@ def test_choice_credit_matches_the_bank_audit(seed):
 
     rng = np.random.default_rng(seed)
     grids = [
-        rng.integers(0, 3, size=(int(rng.integers(1, 4)), int(rng.integers(1, 4)))).astype(
-            np.int8
-        )
+        rng.integers(0, 3, size=(int(rng.integers(1, 4)), int(rng.integers(1, 4)))).astype(np.int8)
         for _ in range(4)
     ]
     wins = choice_shortcuts([g.tolist() for g in grids])

@@ -49,7 +49,7 @@ def _marginal_loglik(x: np.ndarray, a: np.ndarray, d: np.ndarray, n_points: int 
     """Independent, unoptimised marginal log-likelihood (normal density on an equally spaced
     grid over [-6, 6]; persons x nodes x items)."""
     nodes = np.linspace(-6, 6, n_points)
-    weights = np.exp(-nodes**2 / 2)
+    weights = np.exp(-(nodes**2) / 2)
     logw = np.log(weights / weights.sum())
     p = expit(nodes[:, None] * a + d)  # nodes x items
     cell = np.where(x[:, None, :] == 1, np.log(p), np.log1p(-p))
@@ -162,8 +162,9 @@ def test_lsat6_infit_outfit_at_cml_estimates(lsat6):
 def test_standard_errors_match_numerical_hessian(model):
     rng = np.random.default_rng(11)
     J = 4
-    x = simulate_responses(rng.uniform(0.6, 1.6, J), np.linspace(-1, 1, J),
-                           rng.normal(size=300), rng, missing=0.2)
+    x = simulate_responses(
+        rng.uniform(0.6, 1.6, J), np.linspace(-1, 1, J), rng.normal(size=300), rng, missing=0.2
+    )
     res = fit_irt(x, model=model, tol=1e-9)
     a, d = res.a, res.d
     if model == "2pl":
@@ -228,8 +229,9 @@ def test_2pl_agrees_with_girth(sim2pl):
     assert_allclose(ours.a, ref["Discrimination"], atol=0.06)
     assert_allclose(ours.items["b"], ref["Difficulty"], atol=0.04)
     # our optimum must be at least as good as girth's under the same likelihood
-    ll_girth = _marginal_loglik(x, ref["Discrimination"],
-                                -ref["Discrimination"] * ref["Difficulty"])
+    ll_girth = _marginal_loglik(
+        x, ref["Discrimination"], -ref["Discrimination"] * ref["Difficulty"]
+    )
     assert ours.loglik >= ll_girth - 1e-6
 
 
@@ -312,8 +314,9 @@ def test_mle_abilities_match_scalar_optimiser():
         opt = minimize_scalar(neg, bounds=(-8, 8), method="bounded", options={"xatol": 1e-9})
         assert_allclose(ab["theta"].iloc[i], opt.x, atol=1e-5)
         p = expit(a[seen] * (opt.x - b[seen]))
-        assert_allclose(ab["se"].iloc[i], 1 / np.sqrt(np.sum(a[seen] ** 2 * p * (1 - p))),
-                        rtol=1e-4)
+        assert_allclose(
+            ab["se"].iloc[i], 1 / np.sqrt(np.sum(a[seen] ** 2 * p * (1 - p))), rtol=1e-4
+        )
 
 
 def test_lz_formula_and_aberrant_pattern():
@@ -514,8 +517,12 @@ def test_machines_on_the_human_scale():
     a = rng.uniform(0.8, 1.8, J)
     b = np.linspace(-2, 2, J)
     items = [f"it{j:02d}" for j in range(J)]
-    humans = _trials_from_matrix(simulate_responses(a, b, rng.normal(size=n), rng),
-                                 [f"P{i:03d}" for i in range(n)], "human", items)
+    humans = _trials_from_matrix(
+        simulate_responses(a, b, rng.normal(size=n), rng),
+        [f"P{i:03d}" for i in range(n)],
+        "human",
+        items,
+    )
     # a model-like solver (theta 1) with three seeds, and one that solves exactly the hard half
     like = simulate_responses(a, b, np.full(3, 1.0), rng)
     odd = np.tile((b > 0).astype(float), (3, 1))
@@ -525,8 +532,14 @@ def test_machines_on_the_human_scale():
             _trials_from_matrix(odd, ["odd-s1", "odd-s2", "odd-s3"], "machine", items),
         ]
     )
-    extra = pd.DataFrame({"respondent": ["odd-s1", "lost-s1"], "kind": ["machine"] * 2,
-                          "item": ["new", "new"], "correct": [True, False]})
+    extra = pd.DataFrame(
+        {
+            "respondent": ["odd-s1", "lost-s1"],
+            "kind": ["machine"] * 2,
+            "item": ["new", "new"],
+            "correct": [True, False],
+        }
+    )
     with pytest.warns(DegenerateWarning, match="answered no calibrated item.*lost-s1"):
         out = score_on_human_scale(pd.concat([humans, machines, extra]), model="2pl")
     assert out.skipped_items == ("new",)

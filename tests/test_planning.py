@@ -24,23 +24,25 @@ ERR = np.linspace(0.05, 0.9, J)
 
 
 def test_table_columns_and_worker_independence():
-    one = plan_sample_size(ITEMS, machine_error=ERR, n_humans=[15, 60], n_seeds=[3, 8],
-                           n_sim=60, seed=5, workers=1)
+    one = plan_sample_size(
+        ITEMS, machine_error=ERR, n_humans=[15, 60], n_seeds=[3, 8], n_sim=60, seed=5, workers=1
+    )
     assert list(one.columns) == list(PLAN_COLUMNS)
     assert len(one) == 2 * 2 * 2
     assert set(one["quantity"]) == set(planning.QUANTITIES)
-    two = plan_sample_size(ITEMS, machine_error=ERR, n_humans=[15, 60], n_seeds=[3, 8],
-                           n_sim=60, seed=5, workers=2)
+    two = plan_sample_size(
+        ITEMS, machine_error=ERR, n_humans=[15, 60], n_seeds=[3, 8], n_sim=60, seed=5, workers=2
+    )
     pd.testing.assert_frame_equal(one, two)
-    other = plan_sample_size(ITEMS, machine_error=ERR, n_humans=[15, 60], n_seeds=[3, 8],
-                             n_sim=60, seed=6)
+    other = plan_sample_size(
+        ITEMS, machine_error=ERR, n_humans=[15, 60], n_seeds=[3, 8], n_sim=60, seed=6
+    )
     assert not np.allclose(one["mean_estimate"], other["mean_estimate"])
 
 
 def test_kind_effect_spread_matches_the_variance_of_two_means():
     n, s = 40, 4
-    curve = plan_sample_size(ITEMS, machine_error=ERR, n_humans=n, n_seeds=s, n_sim=3000,
-                             seed=1)
+    curve = plan_sample_size(ITEMS, machine_error=ERR, n_humans=n, n_seeds=s, n_sim=3000, seed=1)
     row = curve.set_index("quantity").loc["kind_effect"]
     # common practice: Var(mean) = Var(single) / count, for independent humans and seeds
     nodes, w = np.polynomial.hermite_e.hermegauss(61)
@@ -60,8 +62,15 @@ def test_kind_effect_spread_matches_the_variance_of_two_means():
 
 
 def test_profile_correlation_converges_and_narrows():
-    curve = plan_sample_size(ITEMS, machine_error=ERR, n_humans=[10, 2000], n_seeds=400,
-                             n_sim=50, seed=3, target_width=0.15)
+    curve = plan_sample_size(
+        ITEMS,
+        machine_error=ERR,
+        n_humans=[10, 2000],
+        n_seeds=400,
+        n_sim=50,
+        seed=3,
+        target_width=0.15,
+    )
     rho = curve[curve["quantity"] == "profile_correlation"].set_index("n_humans")
     # with this many people and seeds the estimate reaches the error-rate correlation
     assert_allclose(rho.loc[2000, "mean_estimate"], rho.loc[2000, "true_value"], atol=0.03)
@@ -85,8 +94,9 @@ def test_spearman_rows_matches_scipy_with_ties():
 
 
 def test_constant_machine_profile_is_counted_as_undefined():
-    curve = plan_sample_size(ITEMS, machine_error=np.zeros(J), n_humans=20, n_seeds=2,
-                             n_sim=20, seed=0)
+    curve = plan_sample_size(
+        ITEMS, machine_error=np.zeros(J), n_humans=20, n_seeds=2, n_sim=20, seed=0
+    )
     rho = curve.set_index("quantity").loc["profile_correlation"]
     assert rho["n_undefined"] == 20 and np.isnan(rho["ci_width"]) and not rho["meets_target"]
     need = required_sample_size(curve).set_index("quantity")
@@ -95,8 +105,7 @@ def test_constant_machine_profile_is_counted_as_undefined():
 
 def test_made_up_machine_and_result_input():
     res = IRTResult.from_parameters(a=ITEMS["a"], b=ITEMS["b"])
-    aligned = plan_sample_size(res, alignment=1.0, machine_theta=0.5, n_humans=50,
-                               n_sim=20)
+    aligned = plan_sample_size(res, alignment=1.0, machine_theta=0.5, n_humans=50, n_sim=20)
     rho = aligned.set_index("quantity").loc["profile_correlation", "true_value"]
     assert rho > 0.95
     unrelated = plan_sample_size(res, alignment=0.0, n_humans=50, n_sim=20, seed=4)

@@ -88,6 +88,5 @@ def progress(label: str, total: int | None = None) -> Iterator[Progress]:
 
 def error(text: str) -> None:
     """One clear line for an expected error."""
-    console.print(f"error: {text}", style="bold red", markup=False, highlight=False,
-                  soft_wrap=True)
+    console.print(f"error: {text}", style="bold red", markup=False, highlight=False, soft_wrap=True)
     sys.stderr.flush()

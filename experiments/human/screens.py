@@ -382,7 +382,6 @@ class TextScreen(ChoiceOrTypingMixin, Screen):
         return static
 
 
-
 # -- matrices --------------------------------------------------------------------------------
 def _panel_stims(
     ctx: Ctx, panel: dict[str, Any] | None, centre: tuple[float, float], side: float, maxc: int
@@ -792,7 +791,6 @@ class StringsScreen(ChoiceOrTypingMixin, Screen):
             self.add_button("delete", "DELETE", (-90, yb), (140, 46), height=18)
             self.add_button("done", "DONE", (90, yb), (140, 46), height=18)
         return static
-
 
     def press(self, pos: Sequence[float], t: float) -> Answer | None:
         if self.mode == "select":
