@@ -370,6 +370,10 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="also run girth at 50,000 x 200 (minutes)")
     parser.add_argument("--mixed-large", action="store_true",
                         help="also fit the mixed models at 100,000 trials (many minutes)")
+    parser.add_argument("--scale-size", default="quick", choices=("quick", "100k", "1m"),
+                        help="study size of the scale section (default quick)")
+    parser.add_argument("--scale-keep", default=None,
+                        help="folder to build and keep the scale section's study in")
     parser.add_argument("--threads", type=int, default=0,
                         help="BLAS threads (re-runs the script with the thread variables set)")
     args = parser.parse_args(argv)
@@ -387,10 +391,34 @@ def main(argv: Sequence[str] | None = None) -> int:
         kwargs: dict[str, Any] = {}
         if name == "irt":
             kwargs = {"girth_all": args.girth_all}
+        elif name == "scale":
+            kwargs = {"size": args.scale_size, "keep": args.scale_keep}
         elif name == "mixed":
             kwargs = {"large": args.mixed_large}
         print_table(name, SECTIONS[name](args.quick, **kwargs))
     return 0
+
+
+# -- scale ---------------------------------------------------------------------------------------
+# Full ``analyze_study`` on simulated studies (bench/analysis_scale.py builds them: the example's
+# families at 100 items, simulated people, the reference solver under three budgets x 3 seeds):
+# seconds of loading and of every part, peak memory of the analysing process, cold (logs parsed)
+# and warm (Parquet cache found). Targets: 100k trials <= 60 s; 1M trials <= 600 s within 4 GB.
+# ``--scale-size`` picks quick (100 people, the default), 100k (1,000) or 1m (10,000; long:
+# run it once in the background), ``--scale-keep DIR`` keeps the built study for the next run.
+
+
+def bench_scale(
+    quick: bool = False, *, size: str = "quick", keep: str | None = None
+) -> list[dict[str, Any]]:
+    """Full analyze at one study size; one row per run (cold, warm)."""
+    sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+    from analysis_scale import bench_scale as run_scale
+
+    return run_scale("quick" if quick else size, keep=keep)
+
+
+SECTIONS["scale"] = bench_scale
 
 
 if __name__ == "__main__":
