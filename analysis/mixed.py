@@ -1083,8 +1083,10 @@ def factor_effects(
 
     Notes
     -----
-    The effect in a non-reference group is ``beta_term + beta_term:group``; its SD under the
-    mean-field variational posterior is ``sqrt(sd_term^2 + sd_interaction^2)``.
+    The effect in a non-reference group is ``beta_term + beta_term:group``; its SE is
+    ``sqrt(var_term + var_interaction + 2 cov)`` from the fit's covariance of the estimates.
+    Fits are Laplace ML (:func:`fit_glmm`); ``note`` carries the fit's separation note for the
+    affected rows (their intervals are then unbounded).
     """
     check_choice("by", by, ("group", "kind"))
     level = _check_conf(conf_level)
@@ -1133,6 +1135,7 @@ def factor_effects(
                     z,
                     level,
                     res.n_obs,
+                    base["note"],
                 )
             )
             for g in groups[1:]:
@@ -1141,9 +1144,10 @@ def factor_effects(
                     continue
                 it = fx.loc[inter]
                 est = base["estimate"] + it["estimate"]
-                se = float(np.hypot(base["se"], it["se"]))
+                se = _sum_se(res, name, inter)
+                both = "; ".join(dict.fromkeys(v for v in (base["note"], it["note"]) if v))
                 rows.append(
-                    _effect_row(fam, factor, term, g, "effect", est, se, z, level, res.n_obs)
+                    _effect_row(fam, factor, term, g, "effect", est, se, z, level, res.n_obs, both)
                 )
                 rows.append(
                     _effect_row(
@@ -1157,12 +1161,27 @@ def factor_effects(
                         z,
                         level,
                         res.n_obs,
+                        it["note"],
                     )
                 )
     return pd.DataFrame(rows, columns=list(FACTOR_EFFECT_COLUMNS))
 
 
-def _effect_row(fam, factor, term, group, quantity, est, se, z, level, n) -> dict[str, Any]:
+def _sum_se(res: MixedResult, a: str, b: str) -> float:
+    """SE of the sum of two fixed effects, with their covariance when the fit gives it."""
+    fx = res.fixed.set_index("term")
+    cov = getattr(res.raw, "cov_beta", None)
+    sa, sb = float(fx.loc[a, "se"]), float(fx.loc[b, "se"])
+    if cov is None or not (np.isfinite(sa) and np.isfinite(sb)):
+        return float(np.hypot(sa, sb))
+    terms = list(res.fixed["term"])
+    i, j = terms.index(a), terms.index(b)
+    return float(np.sqrt(max(cov[i, i] + cov[j, j] + 2 * cov[i, j], 0.0)))
+
+
+def _effect_row(
+    fam, factor, term, group, quantity, est, se, z, level, n, note=""
+) -> dict[str, Any]:
     est, se = float(est), float(se)
     return dict(
         family=fam,
@@ -1175,6 +1194,7 @@ def _effect_row(fam, factor, term, group, quantity, est, se, z, level, n) -> dic
         ci_low=est - z * se,
         ci_high=est + z * se,
         conf_level=level,
-        p_val=float(2 * stats.norm.sf(abs(est / se))) if se > 0 else float("nan"),
+        p_val=float(2 * stats.norm.sf(abs(est / se))) if 0 < se < np.inf else float("nan"),
         n_obs=n,
+        note=note,
     )

@@ -44,14 +44,19 @@ SECTIONS = (
 METHODS = (
     "Item-response models: Rasch (Rasch, 1960) and two-parameter logistic (Birnbaum, 1968) "
     "models fitted by marginal maximum likelihood with the EM algorithm of Bock & Aitkin "
-    "(1981, Psychometrika 46, 443–459) on a Gauss–Hermite grid; abilities by EAP (Bock & "
+    "(1981, Psychometrika 46, 443–459), integrating over abilities on 41 equally spaced "
+    "nodes on [-6, 6] weighted by the normal density; abilities by EAP (Bock & "
     "Mislevy, 1982) and maximum likelihood.",
     "Item fit by infit and outfit mean squares (Wright & Masters, 1982); person fit by the "
     "standardised log-likelihood statistic lz (Drasgow, Levine & Williams, 1985).",
     "Machines are scored on the scale calibrated on human respondents only.",
     "Mixed-effects models with crossed random intercepts for respondents and items (Baayen, "
-    "Davidson & Bates, 2008): logistic models of accuracy by variational Bayes and linear models "
-    "of log response time / log effort by REML, as implemented in statsmodels.",
+    "Davidson & Bates, 2008): logistic models of accuracy by Laplace maximum likelihood "
+    "(penalised iteratively reweighted least squares for the conditional modes; Bates, "
+    "Mächler, Bolker & Walker, 2015, J. Stat. Softw. 67(1)) with standard errors from the "
+    "observed information and Wald intervals, separation detected by a linear programme "
+    "(Konis, 2007) and reported beside the affected rows; linear models of log response time / "
+    "log effort by REML (penalised least squares).",
     "Difficulty-profile agreement: Spearman and Kendall rank correlations between human item "
     "difficulty and machine item error rates, with percentile and BCa bootstrap intervals over "
     "items (Efron, 1987, JASA 82, 171–185).",
@@ -470,6 +475,7 @@ def build_report(
                             "ci_low",
                             "ci_high",
                             "p_val",
+                            "note",
                         ],
                     )
                 ],
