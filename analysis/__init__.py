@@ -4,6 +4,8 @@ Reads logs and banks through :mod:`twofold.study`; never imports :mod:`twofold.e
 Heavy fits happen only when called.
 """
 
+from twofold.study import __version__ as __version__
+
 from ._ranks import bootstrap_ci
 from .agreement import difficulty_agreement, item_difficulty, machine_error_rates
 from .consistency import (

@@ -12,7 +12,7 @@ import base64
 import datetime as _dt
 import json
 from collections.abc import Callable
-from importlib import metadata, resources
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -20,6 +20,8 @@ import numpy as np
 import pandas as pd
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
+from twofold.study import __version__
+from twofold.study._version import package_version
 from twofold.study.audit import audit_bank
 from twofold.study.logs import write_json_atomic
 from twofold.study.studyfile import Study, load_study
@@ -71,13 +73,6 @@ METHODS = (
 )
 
 _SOFTWARE = ("twofold", "numpy", "scipy", "pandas", "statsmodels", "matplotlib", "jsonschema")
-
-
-def _version(name: str) -> str:
-    try:
-        return metadata.version(name)
-    except metadata.PackageNotFoundError:
-        return "not installed"
 
 
 def _read(results: Path, name: str) -> pd.DataFrame | None:
@@ -566,8 +561,8 @@ def build_report(
         },
         "sections": sections,
         "methods": METHODS,
-        "software": [(n, _version(n)) for n in _SOFTWARE],
-        "version": _version("twofold"),
+        "software": [(n, package_version(n) or "not installed") for n in _SOFTWARE],
+        "version": __version__,
         "generated": _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
     }
     import jinja2

@@ -62,6 +62,10 @@ __all__ = [
 
 
 def __getattr__(name: str) -> _typing.Any:
+    if name == "__version__":  # one version for the three packages, kept in twofold.study
+        from twofold.study import __version__
+
+        return __version__
     home = _HOME.get(name)
     if home is None:
         raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -1,6 +1,7 @@
 """twofold.study: what is presented. Items, families, banks, renderers, audits, the trial log."""
 
 from . import families
+from ._version import __version__ as __version__
 from .bank import Bank, bank_hash, load_bank, write_bank
 from .exceptions import (
     BankError,

@@ -18,6 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from ._check import fail
+from ._version import __version__
 from .exceptions import BankError, ItemError
 from .families import get_family
 from .item import Item, content_id
@@ -27,15 +28,6 @@ __all__ = ["BANK_FORMAT", "Bank", "bank_hash", "load_bank", "write_bank"]
 BANK_FORMAT = "twofold-bank/1"
 ITEMS_FILE = "items.jsonl"
 META_FILE = "bank.json"
-
-
-def _version() -> str:
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version("twofold")
-    except PackageNotFoundError:  # pragma: no cover - running from a source tree
-        return "0+unknown"
 
 
 def bank_hash(items: Iterable[Item]) -> str:
@@ -134,7 +126,7 @@ class Bank:
             "spec": spec or {},
             "generation": generation or {},
             "created": created,
-            "twofold_version": _version(),
+            "twofold_version": __version__,
         }
         return cls(items=items, meta=meta)
 

@@ -38,7 +38,8 @@ import time
 from pathlib import Path
 from typing import Any
 
-from twofold.study import get_family, render
+from twofold.study import __version__, get_family, render
+from twofold.study._version import package_version
 from twofold.study.exceptions import ResponseError, RunnerError
 
 from .prepare import SessionPlan, reflow
@@ -66,15 +67,6 @@ class _Restart(Exception):  # noqa: N818 - control flow
 
 def _now() -> str:
     return _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
-
-
-def _version(name: str) -> str | None:
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version(name)
-    except PackageNotFoundError:
-        return None
 
 
 class SessionResult:
@@ -436,8 +428,8 @@ class _Session:
             details=dict(
                 form_list=form.list,
                 form_order=form.order,
-                twofold_version=_version("twofold"),
-                psychopy_version=_version("psychopy-lib"),
+                twofold_version=__version__,
+                psychopy_version=package_version("psychopy-lib"),
                 python_version=sys.version.split()[0],
                 platform=platform.platform(),
                 n_form_trials=len(plan.trials),

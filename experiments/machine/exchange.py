@@ -33,6 +33,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from twofold.study import __version__
 from twofold.study._check import check_choice, fail
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError
@@ -41,7 +42,7 @@ from twofold.study.logs import SessionRecord, read_sidecar, session_id, write_se
 from twofold.study.render import MEDIA, render, render_picture
 
 from ._core import FreeText, coerce_answer
-from .runner import _now, _session_row, _version, rebuild_session, run_trial
+from .runner import _now, _session_row, rebuild_session, run_trial
 
 __all__ = ["EXPORT_FORMAT", "export_items", "import_answers"]
 
@@ -146,7 +147,7 @@ def export_items(
             "n_entries": len(entries),
             "families": bank.families(),
             "created": _now(),
-            "twofold_version": _version(),
+            "twofold_version": __version__,
             "answers_file": ANSWERS_DOC,
             "entries": entries,
         }
@@ -307,7 +308,7 @@ def import_answers(
             ended=_now(),
             n_trials=len(rows),
             details={
-                "twofold_version": _version(),
+                "twofold_version": __version__,
                 "solver": name,
                 "seed": seed,
                 "solver_spec": f"import:{path.name}",

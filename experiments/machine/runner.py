@@ -44,6 +44,7 @@ from collections.abc import Iterable, Iterator, Mapping, Sequence
 from pathlib import Path
 from typing import Any, Protocol
 
+from twofold.study import __version__
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError, ResponseError, RunnerError, SolverError
 from twofold.study.families import get_family
@@ -100,15 +101,6 @@ class ProgressSink(Protocol):
 
 def _now() -> str:
     return _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
-
-
-def _version() -> str:
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version("twofold")
-    except PackageNotFoundError:  # pragma: no cover - running from a source tree
-        return "0+unknown"
 
 
 def plan_trials(bank: Bank, spec: SolverSpec) -> list[tuple[Item, str]]:
@@ -534,7 +526,7 @@ def _sidecar_base(
         synthetic=False,
         form="all",
         details={
-            "twofold_version": _version(),
+            "twofold_version": __version__,
             "solver": spec.name,
             "seed": seed,
             "solver_spec": spec.spec,
