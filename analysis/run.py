@@ -244,11 +244,19 @@ def analyze_study(
     opts = analysis_options(st, options)
     chosen = parse_parts(parts) if parts is not None else parse_parts(opts["parts"])
     out = Path(out_dir) if out_dir is not None else st.results_dir
+    created = not out.exists()
     out.mkdir(parents=True, exist_ok=True)
     t_load = time.perf_counter()
-    with warnings.catch_warnings(record=True) as load_warn:
-        warnings.simplefilter("always", TwofoldWarning)
-        data = load_study_data(st, synthetic=opts["synthetic"], cache_dir=out / "cache")
+    try:
+        with warnings.catch_warnings(record=True) as load_warn:
+            warnings.simplefilter("always", TwofoldWarning)
+            data = load_study_data(st, synthetic=opts["synthetic"], cache_dir=out / "cache")
+    except BaseException:
+        if created:  # a failed command leaves no empty or half-written output folder
+            import shutil
+
+            shutil.rmtree(out, ignore_errors=True)
+        raise
     load_seconds = round(time.perf_counter() - t_load, 3)
     if timing is not None:
         timing("load", load_seconds)

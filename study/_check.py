@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from collections.abc import Iterable
 from typing import Any
 
@@ -113,3 +114,60 @@ def check_keys(
                 where=where,
                 error=error,
             )
+
+
+#: deepest nesting of arrays and objects accepted in a record (far above any family's needs)
+MAX_DEPTH = 32
+
+
+def _depth_ok(text: str) -> bool:
+    depth = 0
+    in_str = esc = False
+    for ch in text:
+        if in_str:
+            if esc:
+                esc = False
+            elif ch == "\\":
+                esc = True
+            elif ch == '"':
+                in_str = False
+        elif ch == '"':
+            in_str = True
+        elif ch in "[{":
+            depth += 1
+            if depth > MAX_DEPTH:
+                return False
+        elif ch in "]}":
+            depth -= 1
+    return True
+
+
+def _no_constant(name: str) -> Any:
+    raise ValueError(name)
+
+
+def parse_json(data: bytes, *, where: str, error: type[InputError] = InputError) -> Any:
+    """Parse strict JSON: UTF-8, no NaN/Infinity, nesting at most :data:`MAX_DEPTH` deep."""
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as err:
+        raise error(
+            f"{where}: byte {err.start}: not UTF-8 text; accepted: JSON saved as UTF-8.",
+            where=where,
+        ) from None
+    if not _depth_ok(text):
+        raise error(
+            f"{where}: JSON nested more than {MAX_DEPTH} levels deep; accepted: a record at most "
+            f"{MAX_DEPTH} levels deep.",
+            where=where,
+        )
+    try:
+        return json.loads(text, parse_constant=_no_constant)
+    except json.JSONDecodeError as err:
+        raise error(
+            f"{where}: not valid JSON ({err.msg} at column {err.colno}).", where=where
+        ) from None
+    except ValueError as err:
+        raise error(
+            f"{where}: {err} is not a JSON number; accepted: finite numbers only.", where=where
+        ) from None

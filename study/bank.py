@@ -17,7 +17,7 @@ from collections.abc import Iterable, Iterator
 from pathlib import Path
 from typing import Any
 
-from ._check import fail
+from ._check import fail, parse_json
 from ._version import __version__
 from .exceptions import BankError, ItemError
 from .families import get_family
@@ -198,28 +198,18 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
                 f"{folder}: {p.name} is missing; a bank folder holds {ITEMS_FILE} and {META_FILE}.",
                 where=str(p),
             )
-    try:
-        meta = json.loads(meta_path.read_text("utf-8"))
-    except json.JSONDecodeError as err:
-        raise BankError(
-            f"{META_FILE} line {err.lineno}: not valid JSON ({err.msg}).", where=META_FILE
-        ) from err
+    meta = parse_json(meta_path.read_bytes(), where=META_FILE, error=BankError)
     if not isinstance(meta, dict) or meta.get("format") != BANK_FORMAT:
         got = meta.get("format") if isinstance(meta, dict) else meta
         raise fail("format", got, BANK_FORMAT, where=META_FILE, error=BankError)
     items: list[Item] = []
     seen: dict[str, int] = {}
-    with open(items_path, encoding="utf-8") as fh:
-        for lineno, line in enumerate(fh, start=1):
+    with open(items_path, "rb") as fh:
+        for lineno, raw in enumerate(fh, start=1):
             where = f"{ITEMS_FILE} line {lineno}"
-            if not line.strip():
+            if not raw.strip():
                 continue
-            try:
-                rec = json.loads(line)
-            except json.JSONDecodeError as err:
-                raise ItemError(
-                    f"{where}: not valid JSON ({err.msg} at column {err.colno}).", where=where
-                ) from err
+            rec = parse_json(raw, where=where, error=ItemError)
             item = Item.from_record(rec, where=where)
             if check_families:
                 fam = get_family(item.family, where=where, error=ItemError)
@@ -231,9 +221,7 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
                         where=where,
                         error=ItemError,
                     )
-                validate = getattr(fam, "validate_item", None)
-                if validate is not None:
-                    validate(item, where=where)
+                fam.validate_item(item, where=where)
             if item.id in seen:
                 raise BankError(
                     f"{where}: item id {item.id} already on line {seen[item.id]}.",
@@ -242,6 +230,13 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
                 )
             seen[item.id] = lineno
             items.append(item)
+    if not items:
+        raise BankError(
+            f"{ITEMS_FILE}: field 'items': got 0 items; accepted: a bank of at least one item "
+            "(generate it again from its spec).",
+            where=ITEMS_FILE,
+            field="items",
+        )
     actual = bank_hash(items)
     if meta.get("bank_hash") != actual:
         raise BankError(

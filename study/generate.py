@@ -70,9 +70,14 @@ def load_spec(path: str | Path) -> GenerationSpec:
     """Read and check a generation spec file (TOML)."""
     p = Path(path)
     try:
-        raw = tomllib.loads(p.read_text("utf-8"))
-    except FileNotFoundError:
+        raw = tomllib.loads(p.read_bytes().decode("utf-8"))
+    except (FileNotFoundError, IsADirectoryError):
         raise SpecError(f"{p}: no such spec file.", where=str(p)) from None
+    except UnicodeDecodeError as err:
+        raise SpecError(
+            f"{p}: byte {err.start}: not UTF-8 text; accepted: a TOML file saved as UTF-8.",
+            where=str(p),
+        ) from None
     except tomllib.TOMLDecodeError as err:
         raise SpecError(f"{p}: not valid TOML ({err}).", where=str(p)) from err
     return parse_spec(raw, where=p.name)

@@ -263,17 +263,21 @@ _SESSION_BY_NAME = {f.name: f for f in SESSION_FIELDS}
 _CORE = tuple(f.name for f in SESSION_FIELDS if f.required)
 
 
+def _a(type_name: str) -> str:
+    return ("an " if type_name[0] in "aeiou" else "a ") + type_name
+
+
 def _check_field(f: SessionField, value: Any, *, where: str) -> None:
     if value is None:
         if f.required:
-            raise fail(f.name, value, f"a {f.type} (required)", where=where, error=LogError)
+            raise fail(f.name, value, f"{_a(f.type)} (required)", where=where, error=LogError)
         return
     types = _PY_TYPES[f.type]
     ok = isinstance(value, types) and (f.type == "boolean" or not isinstance(value, bool))
     if ok and f.type == "number" and not math.isfinite(value):
         ok = False
     if not ok:
-        raise fail(f.name, value, f"a {f.type}", where=where, error=LogError)
+        raise fail(f.name, value, _a(f.type), where=where, error=LogError)
     if f.enum and value not in f.enum:
         raise fail(f.name, value, "one of " + ", ".join(f.enum), where=where, error=LogError)
 
@@ -302,7 +306,7 @@ def check_session(
         for name in _CORE:
             if name not in out and not (name == "format" and "columns" in out):
                 raise fail(
-                    name, None, f"a {_SESSION_BY_NAME[name].type} (required)", where=where,
+                    name, None, f"{_a(_SESSION_BY_NAME[name].type)} (required)", where=where,
                     error=LogError,
                 )  # fmt: skip
     return out

@@ -25,6 +25,7 @@ from twofold.study._check import check_choice, check_int, check_keys, fail
 from twofold.study.exceptions import RunnerError, SpecError
 from twofold.study.forms import Form, form_for, parse_blocks, parse_forms
 from twofold.study.logs import read_sidecar, read_trials
+from twofold.study.studyfile import STUDY_FIELDS
 
 __all__ = [
     "BANNER",
@@ -47,16 +48,7 @@ BANNER = (
     "enter names or contact details."
 )
 
-_RUNNER_KEYS = (
-    "fullscreen",
-    "size",
-    "respondent_pattern",
-    "consent",
-    "background",
-    "end_text",
-    "allow_template_consent",
-    "redraw",
-)
+_RUNNER_KEYS = tuple(STUDY_FIELDS["runner"].keys or ())  # declared once, in study.toml's spec
 
 
 @dataclasses.dataclass(frozen=True)

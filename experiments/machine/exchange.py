@@ -34,7 +34,7 @@ from pathlib import Path
 from typing import Any
 
 from twofold.study import __version__
-from twofold.study._check import check_choice, fail
+from twofold.study._check import check_choice, fail, parse_json
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError
 from twofold.study.families import get_family
@@ -203,16 +203,11 @@ def import_answers(
     records: dict[int, list[tuple[int, dict[str, Any]]]] = defaultdict(list)
     seen: dict[tuple[int, str, str], int] = {}
     hashes = 0
-    for lineno, raw_line in enumerate(data.decode("utf-8").splitlines(), start=1):
+    for lineno, raw_line in enumerate(data.splitlines(), start=1):
         where = f"{path.name} line {lineno}"
         if not raw_line.strip():
             continue
-        try:
-            rec = json.loads(raw_line)
-        except json.JSONDecodeError as err:
-            raise InputError(
-                f"{where}: not valid JSON ({err.msg} at column {err.colno}).", where=where
-            ) from err
+        rec = parse_json(raw_line, where=where)  # UTF-8, finite numbers, bounded nesting
         if not isinstance(rec, dict):
             raise fail("(line)", rec, "a JSON object", where=where)
         for key in rec:

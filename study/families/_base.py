@@ -219,6 +219,43 @@ class Family(abc.ABC):
         """Re-run the validity checks on a stored item; return problems (empty when valid)."""
         return []
 
+    def validate_item(self, item: Item, *, where: str | None = None) -> None:
+        """Check that a stored item is usable before anything else touches it.
+
+        Runs on every item :func:`~twofold.study.bank.load_bank` reads: the family's own
+        :meth:`check`, the text and structured renderings in each of the item's modes, and the
+        scoring of its answer (which must score correct) and of one typical wrong response. A
+        family whose stimulus needs more (a scene drawn for participants) overrides this and
+        calls ``super().validate_item``. Any failure becomes one :class:`ItemError`.
+        """
+        from ..exceptions import ItemError
+
+        prefix = f"{where}: " if where else ""
+        try:
+            problems = list(self.check(item))
+            for mode in item.modes:
+                self.render_text(item, mode)
+                self.render_structured(item, mode)
+                sc = self.score(item, self.correct_response(item, mode), mode)
+                if sc.correct is not True:
+                    problems.append(f"its answer does not score correct in {mode} mode")
+                try:
+                    wrong, _ = self.sample_error(item, mode, np.random.default_rng(item.seed))
+                except Rejected:
+                    continue
+                self.score(item, wrong, mode)
+        except Exception as err:  # junk payloads fail deep inside the family code
+            reason = f"{type(err).__name__}: {err}"
+            problems = [reason if len(reason) <= 120 else reason[:117] + "..."]
+        if problems:
+            raise ItemError(
+                f"{prefix}field 'stimulus': the {self.name} family cannot use item {item.id} "
+                f"({problems[0]}); accepted: a record its family renders and scores "
+                "(generate the bank again).",
+                where=where,
+                field="stimulus",
+            )
+
     def default_params(self) -> dict[str, Any]:
         """Every parameter at its default."""
         return {p.name: p.default for p in self.params}
