@@ -310,12 +310,31 @@ class Family(abc.ABC):
     def classify_error(self, item: Item, response: Any, mode: str) -> str:
         """Error type (a key of :attr:`error_types`) of a wrong, normalised response."""
 
-    @abc.abstractmethod
     def sample_error(self, item: Item, mode: str, rng: np.random.Generator) -> tuple[Any, str]:
         """A plausible wrong response and its error type, for simulated respondents.
 
         The response is in the form :meth:`score` accepts; scoring it must give that error type.
+        The default draws a wrong choice (:meth:`sample_wrong_choice`) in select mode when the
+        item offers whole-item choices, and asks :meth:`sample_wrong_answer` otherwise.
         """
+        if mode == "select" and item.choices is not None:
+            return self.sample_wrong_choice(item, rng)
+        return self.sample_wrong_answer(item, mode, rng)
+
+    def sample_wrong_choice(self, item: Item, rng: np.random.Generator) -> tuple[int, str]:
+        """A wrong choice number drawn uniformly from the item's choices, and its error type."""
+        wrong = [k for k in range(1, len(item.choices or ()) + 1) if k != item.answer_choice]
+        k = wrong[int(rng.integers(len(wrong)))]
+        return k, self.classify_error(item, k, "select")
+
+    def sample_wrong_answer(
+        self, item: Item, mode: str, rng: np.random.Generator
+    ) -> tuple[Any, str]:
+        """A plausible wrong answer where no choices are offered (generate mode), and its type.
+
+        Families override this (or :meth:`sample_error` itself); the default has none to give.
+        """
+        raise NotImplementedError(f"family {self.name}: no wrong {mode} answers to sample")
 
     def parse_text(self, item: Item, text: str, mode: str) -> Any:
         """Extract a response from free text (a language model's reply).

@@ -765,11 +765,9 @@ class MatricesFamily(Family):
             return "multiple-wrong"
         return "other"
 
-    def sample_error(self, item: Item, mode: str, rng: np.random.Generator) -> tuple[Any, str]:
-        if mode == "select":
-            wrong = [k for k in range(1, len(item.choices or ()) + 1) if k != item.answer_choice]
-            k = wrong[int(rng.integers(len(wrong)))]
-            return k, self.classify_error(item, k, mode)
+    def sample_wrong_answer(
+        self, item: Item, mode: str, rng: np.random.Generator
+    ) -> tuple[Any, str]:
         rules = item.stimulus["rules"]
         bound = [a for a in ATTRIBUTES if rules[a] != "irrelevant"]
         kind = int(rng.integers(4))

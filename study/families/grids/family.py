@@ -333,11 +333,9 @@ class GridsFamily(GridsDrawing, Family):
             raise ValueError("classify_error called with the correct answer")
         return _classify(item, _arr(response))
 
-    def sample_error(self, item: Item, mode: str, rng: np.random.Generator) -> tuple[Any, str]:
-        if mode == "select":
-            wrong = [k for k in range(1, len(item.choices or ()) + 1) if k != item.answer_choice]
-            k = wrong[int(rng.integers(len(wrong)))]
-            return k, self.classify_error(item, k, mode)
+    def sample_wrong_answer(
+        self, item: Item, mode: str, rng: np.random.Generator
+    ) -> tuple[Any, str]:
         answer = _arr(item.answer)
         test = _arr(item.stimulus["test"])
         program = item.stimulus["program"]

@@ -554,12 +554,9 @@ class StringsFamily(StringsDrawing, Family):
             return "partial"
         return "other"
 
-    def sample_error(self, item: Item, mode: str, rng: np.random.Generator) -> tuple[Any, str]:
-        if mode == "select":
-            assert item.choices is not None
-            wrong = [k for k in range(1, len(item.choices) + 1) if k != item.answer_choice]
-            k = wrong[int(rng.integers(len(wrong)))]
-            return k, self.classify_error(item, k, mode)
+    def sample_wrong_answer(
+        self, item: Item, mode: str, rng: np.random.Generator
+    ) -> tuple[Any, str]:
         correct = {item.answer} | {a["answer"] for a in item.accepted}
         related = self._info(item)["related"]
         options: list[tuple[str, str]] = []
