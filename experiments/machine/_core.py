@@ -76,11 +76,11 @@ def coerce_answer(value: Any) -> Answer:
         if ans is None and value.get("text") is not None:
             ans = FreeText(str(value["text"]))
         effort = value.get("effort")
-        if isinstance(effort, bool) or not isinstance(effort, int | float):
-            effort = None
+        if isinstance(effort, int) and not isinstance(effort, bool):
+            effort = float(effort)  # anything else but a float is left for check_answer to refuse
         return Answer(
             ans,
-            effort=None if effort is None else float(effort),
+            effort=effort,
             effort_unit=value.get("effort_unit") if effort is not None else None,
             explanation=value.get("explanation"),
             raw=value.get("raw"),
@@ -89,7 +89,10 @@ def coerce_answer(value: Any) -> Answer:
 
 
 def _what(value: Any) -> str:
-    text = repr(value)
+    try:
+        text = repr(value)
+    except (RecursionError, ValueError, TypeError):  # too deep, or a broken __repr__
+        text = "(unprintable)"
     return f"{type(value).__name__} {text[:60] + '...' if len(text) > 60 else text}"
 
 
