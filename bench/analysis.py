@@ -293,7 +293,8 @@ def bench_mixed(quick: bool = False, *, large: bool = False) -> list[dict[str, A
                     "true": "0.24/0.1/0.15",
                 }
             )
-    return rows
+    cols = list(dict.fromkeys(c for r in rows for c in r))
+    return [{c: r.get(c, np.nan) for c in cols} for r in rows]
 
 
 # -- lmm ---------------------------------------------------------------------------------------
