@@ -6,6 +6,10 @@
    machine, so server and client share the 2 cores) with 32 requests in flight. Target >= 200/s.
 3. Accuracy and mean effort of every reference solver (``<family>-ref`` in the registry) per
    family and difficulty level; families without a reference solver are skipped.
+4. Subprocess adapter: seconds for one 1 MB reply line from a child, through
+   ``CommandSolver`` (buffered line reads on a reader thread), beside a reference measured in the
+   same run: the same child's bytes read with one ``readline`` on a buffered pipe. Target: within
+   a few times the reference (reading one byte per system call took about 25x longer).
 """
 
 from __future__ import annotations
@@ -279,6 +283,64 @@ modes = ["generate"]
                 )
 
 
+_BIG_CHILD = r"""
+import json, sys
+size = int(sys.argv[1])
+for line in sys.stdin:
+    msg = json.loads(line)
+    if msg.get("type") == "hello":
+        print(json.dumps({"protocol": "twofold-jsonl", "version": 1, "type": "hello",
+                          "medium": "structured"}), flush=True)
+    else:
+        print(json.dumps({"version": 1, "id": msg.get("id", "x"), "answer": 1,
+                          "explanation": "x" * size}), flush=True)
+"""
+
+
+def bench_command(size: int = 1_000_000, repeats: int = 5) -> None:
+    import subprocess
+
+    from twofold.experiments.machine import CommandSolver
+
+    with tempfile.TemporaryDirectory() as tmp:
+        script = Path(tmp) / "big_child.py"
+        script.write_text(_BIG_CHILD, "utf-8")
+        solver = CommandSolver(
+            f"{sys.executable} {script} {size}",
+            options={"max_reply_bytes": 4 * size},
+            timeout=60,
+        )
+        adapter = []
+        try:
+            for _ in range(repeats):
+                t = time.perf_counter()
+                solver.solve({"x": 1}, "generate", item="i", family="f")
+                adapter.append(time.perf_counter() - t)
+        finally:
+            solver.close()
+        proc = subprocess.Popen(
+            [sys.executable, str(script), str(size)],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            bufsize=-1,
+        )
+        assert proc.stdin is not None and proc.stdout is not None
+        raw = []
+        for _ in range(repeats):
+            t = time.perf_counter()
+            proc.stdin.write(b'{"type": "solve", "id": "t"}\n')
+            proc.stdin.flush()
+            proc.stdout.readline()
+            raw.append(time.perf_counter() - t)
+        proc.stdin.close()
+        proc.wait()
+    print(
+        f"subprocess reply of {size / 1e6:.1f} MB: adapter median "
+        f"{np.median(adapter) * 1000:.1f} ms; reference (one buffered readline, same run) "
+        f"{np.median(raw) * 1000:.1f} ms; ratio {np.median(adapter) / np.median(raw):.2f}"
+    )
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes (a smoke run)")
@@ -286,6 +348,7 @@ def main(argv: list[str] | None = None) -> int:
     args = ap.parse_args(argv)
     bench_overhead(1000 if args.quick else 10_000)
     bench_http(400 if args.quick else 3000)
+    bench_command(1_000_000, 3 if args.quick else 7)
     bench_reference(3 if args.quick else 12, args.workers)
     return 0
 
