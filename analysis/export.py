@@ -21,12 +21,11 @@ and ending in ``_data.csv``); values keep only letters and digits (``strings-ref
 from __future__ import annotations
 
 import re
-import shutil
-import tempfile
 from pathlib import Path
 from typing import Any
 
 import pandas as pd
+from twofold.study._io import atomic_folder
 from twofold.study.exceptions import InputError
 from twofold.study.logs import read_sidecar, write_json_atomic
 
@@ -185,16 +184,8 @@ def export_dataset(
             where=str(dest),
             field="out_dir",
         )
-    dest.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{dest.name}.", dir=dest.parent))
-    try:
+    with atomic_folder(dest) as tmp:
         _write(data, tmp, logs_dir=logs_dir, description=description)
-        if dest.exists():
-            shutil.rmtree(dest)
-        tmp.rename(dest)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
     return dest
 
 

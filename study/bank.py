@@ -11,13 +11,12 @@ import datetime as _dt
 import hashlib
 import json
 import os
-import shutil
-import tempfile
 from collections.abc import Iterable, Iterator
 from pathlib import Path
 from typing import Any
 
 from ._check import fail, parse_json
+from ._io import atomic_folder, read_json_lines
 from ._version import __version__
 from .exceptions import BankError, ItemError
 from .families import get_family
@@ -143,9 +142,7 @@ def write_bank(bank: Bank, path: str | os.PathLike[str], *, overwrite: bool = Fa
             f"{dest}: folder exists; choose another output folder or pass overwrite.",
             where=str(dest),
         )
-    dest.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{dest.name}.", dir=dest.parent))
-    try:
+    with atomic_folder(dest) as tmp:
         with open(tmp / ITEMS_FILE, "w", encoding="utf-8", newline="\n") as fh:
             for it in bank.items:
                 fh.write(it.to_json())
@@ -157,17 +154,6 @@ def write_bank(bank: Bank, path: str | os.PathLike[str], *, overwrite: bool = Fa
             fh.write("\n")
             fh.flush()
             os.fsync(fh.fileno())
-        if dest.exists():
-            old = dest.with_name(f".{dest.name}.old")
-            shutil.rmtree(old, ignore_errors=True)
-            dest.rename(old)
-            tmp.rename(dest)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            tmp.rename(dest)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
     return dataclasses.replace(bank, path=dest)
 
 
@@ -204,32 +190,27 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
         raise fail("format", got, BANK_FORMAT, where=META_FILE, error=BankError)
     items: list[Item] = []
     seen: dict[str, int] = {}
-    with open(items_path, "rb") as fh:
-        for lineno, raw in enumerate(fh, start=1):
-            where = f"{ITEMS_FILE} line {lineno}"
-            if not raw.strip():
-                continue
-            rec = parse_json(raw, where=where, error=ItemError)
-            item = Item.from_record(rec, where=where)
-            if check_families:
-                fam = get_family(item.family, where=where, error=ItemError)
-                if content_id(fam.prefix, rec) != item.id:
-                    raise fail(
-                        "id",
-                        item.id,
-                        f"{content_id(fam.prefix, rec)} (the id is a hash of the record's content)",
-                        where=where,
-                        error=ItemError,
-                    )
-                fam.validate_item(item, where=where)
-            if item.id in seen:
-                raise BankError(
-                    f"{where}: item id {item.id} already on line {seen[item.id]}.",
+    for lineno, where, rec in read_json_lines(items_path, name=ITEMS_FILE, error=ItemError):
+        item = Item.from_record(rec, where=where)
+        if check_families:
+            fam = get_family(item.family, where=where, error=ItemError)
+            if content_id(fam.prefix, rec) != item.id:
+                raise fail(
+                    "id",
+                    item.id,
+                    f"{content_id(fam.prefix, rec)} (the id is a hash of the record's content)",
                     where=where,
-                    field="id",
+                    error=ItemError,
                 )
-            seen[item.id] = lineno
-            items.append(item)
+            fam.validate_item(item, where=where)
+        if item.id in seen:
+            raise BankError(
+                f"{where}: item id {item.id} already on line {seen[item.id]}.",
+                where=where,
+                field="id",
+            )
+        seen[item.id] = lineno
+        items.append(item)
     if not items:
         raise BankError(
             f"{ITEMS_FILE}: field 'items': got 0 items; accepted: a bank of at least one item "

@@ -32,13 +32,13 @@ import json
 import math
 import os
 import re
-import tempfile
 import warnings
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any, Literal
 
 from ._check import describe, fail
+from ._io import atomic_file
 from .exceptions import LogError, LogWarning
 from .item import canonical_json
 
@@ -132,19 +132,9 @@ def table_schema() -> dict[str, Any]:
 
 def write_json_atomic(path: str | os.PathLike[str], data: Mapping[str, Any]) -> None:
     """Write JSON to ``path`` through a temporary file, fsync and rename (never half-written)."""
-    p = Path(path)
-    p.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", dir=p.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump(dict(data), fh, indent=2, ensure_ascii=False, default=str)
-            fh.write("\n")
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    with atomic_file(path) as fh:
+        json.dump(dict(data), fh, indent=2, ensure_ascii=False, default=str)
+        fh.write("\n")
 
 
 def _cell(col: Column, value: Any, *, where: str) -> str:

@@ -26,15 +26,14 @@ import datetime as _dt
 import hashlib
 import json
 import os
-import shutil
-import tempfile
 from collections import defaultdict
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 from twofold.study import __version__
-from twofold.study._check import check_choice, fail, parse_json
+from twofold.study._check import check_choice, fail
+from twofold.study._io import atomic_folder, read_json_lines
 from twofold.study.bank import Bank
 from twofold.study.exceptions import InputError
 from twofold.study.families import get_family
@@ -100,10 +99,8 @@ def export_items(
             "--overwrite.",
             where=str(dest),
         )
-    dest.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{dest.name}.", dir=dest.parent))
     entries = []
-    try:
+    with atomic_folder(dest) as tmp:
         fh = None
         if medium in _FILES:
             fh = open(tmp / _FILES[medium], "w", encoding="utf-8", newline="\n")  # noqa: SIM115
@@ -154,12 +151,6 @@ def export_items(
         (tmp / "manifest.json").write_text(
             json.dumps(manifest, indent=1, ensure_ascii=False) + "\n", encoding="utf-8"
         )
-        if dest.exists():
-            shutil.rmtree(dest)
-        tmp.rename(dest)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
     return manifest
 
 
@@ -199,15 +190,12 @@ def import_answers(
     if not path.is_file():
         raise InputError(f"{path}: no such answers file.", where=str(path))
     bank = study.bank(create=False)
-    data = path.read_bytes()
+    data = path.read_bytes()  # its hash is recorded with the imported sessions
     records: dict[int, list[tuple[int, dict[str, Any]]]] = defaultdict(list)
     seen: dict[tuple[int, str, str], int] = {}
     hashes = 0
-    for lineno, raw_line in enumerate(data.splitlines(), start=1):
-        where = f"{path.name} line {lineno}"
-        if not raw_line.strip():
-            continue
-        rec = parse_json(raw_line, where=where)  # UTF-8, finite numbers, bounded nesting
+    # strict JSON per line: UTF-8, finite numbers, bounded nesting
+    for lineno, where, rec in read_json_lines(path):
         if not isinstance(rec, dict):
             raise fail("(line)", rec, "a JSON object", where=where)
         for key in rec:
