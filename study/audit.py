@@ -35,7 +35,7 @@ from .bank import Bank
 from .families import get_family
 from .item import Item, canonical_json
 
-__all__ = ["audit_bank", "choice_shortcuts", "flatten", "print_audit"]
+__all__ = ["audit_bank", "choice_shortcuts", "flatten"]
 
 _PNG = b"\x89PNG\r\n\x1a\n"
 _ABSENT = "\x00absent"
@@ -392,108 +392,3 @@ def _flags(report: Mapping[str, Any]) -> list[dict[str, Any]]:
                 }
             )
     return flags
-
-
-# -- printing --------------------------------------------------------------------------------
-def print_audit(report: Mapping[str, Any], console: Any) -> None:
-    """Print an audit report (from :func:`audit_bank`) on a rich ``Console``.
-
-    Flagged findings, and shortcut rows significantly above chance, are printed in red.
-    """
-    from rich.markup import escape
-    from rich.table import Table
-
-    bh = str(report.get("bank_hash") or "")
-    console.print(f"[bold]Bank audit[/bold]: {report['n_items']} items (bank hash {bh[:16]}…)")
-
-    t = Table(title="Items per family")
-    for col in ("family", "items", "parents", "variants", "modes", "distractor schemes"):
-        t.add_column(col)
-    for fam, f in report["families"].items():
-        t.add_row(
-            fam,
-            str(f["n_items"]),
-            str(f["n_parents"]),
-            str(f["n_variants"]),
-            _pairs(f["modes"]),
-            _pairs(f["distractor_schemes"]) or "-",
-        )
-    console.print(t)
-
-    t = Table(title="Items per factor level")
-    for col in ("family", "factor", "levels (items)"):
-        t.add_column(col)
-    for fam, f in report["families"].items():
-        for name, levels in f["factors"].items():
-            t.add_row(fam, name, _pairs(levels))
-    console.print(t)
-
-    dup = report["duplicates"]
-    n_dup = len(dup["same_content"]) + len(dup["same_stimulus_answer"])
-    style = "red" if n_dup else "green"
-    console.print(
-        f"[{style}]Duplicates: {len(dup['same_content'])} groups with the same content, "
-        f"{len(dup['same_stimulus_answer'])} with the same stimulus and answer[/{style}]"
-    )
-    uq = report["uniqueness"]
-    style = "red" if uq else "green"
-    console.print(f"[{style}]Answer uniqueness: {len(uq)} problems[/{style}]")
-    rend = report["rendering"]
-    ch = rend["checked"]
-    note = (
-        f" (pictures sampled: at most {rend['picture_sample_per_family']} items per family)"
-        if rend["picture_sampled"]
-        else " (pictures: every item)"
-    )
-    style = "red" if rend["failures"] else "green"
-    console.print(
-        f"[{style}]Rendering: {len(rend['failures'])} failures in {ch['text']} text, "
-        f"{ch['structured']} structured, {ch['picture']} picture renders{note}[/{style}]"
-    )
-
-    if report["shortcuts"]:
-        t = Table(title="Context-blind shortcut audit (choices only)")
-        for col in (
-            "family",
-            "scheme",
-            "choices",
-            "items",
-            "chance",
-            "majority",
-            "p",
-            "centroid",
-            "p ",
-            "verdict",
-        ):
-            t.add_column(col)
-        for s in report["shortcuts"]:
-            t.add_row(
-                s["family"],
-                s["distractor_scheme"],
-                str(s["n_choices"]),
-                str(s["n_items"]),
-                f"{s['chance']:.1%}",
-                f"{s['majority_accuracy']:.1%}",
-                f"{s['majority_p']:.2g}",
-                f"{s['centroid_accuracy']:.1%}",
-                f"{s['centroid_p']:.2g}",
-                "LEAKS THE ANSWER" if s["flagged"] else "ok",
-                style="bold red" if s["flagged"] else None,
-            )
-        console.print(t)
-    else:
-        console.print("Context-blind shortcut audit: no select-mode items.")
-
-    flags = report["flags"]
-    if flags:
-        console.print(f"[bold red]{len(flags)} flags:[/bold red]")
-        for f in flags[:50]:
-            console.print(f"[red]  {f['kind']}: {escape(f['message'])}[/red]")
-        if len(flags) > 50:
-            console.print(f"[red]  … and {len(flags) - 50} more (see --json)[/red]")
-    else:
-        console.print("[bold green]No flags.[/bold green]")
-
-
-def _pairs(d: Mapping[str, Any]) -> str:
-    return ", ".join(f"{k}: {v}" for k, v in d.items())

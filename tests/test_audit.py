@@ -8,8 +8,9 @@ import math
 
 import pytest
 from rich.console import Console
+from twofold.experiments.cli.items import print_audit
 from twofold.study import Bank, generate_bank, parse_spec, write_bank
-from twofold.study.audit import audit_bank, choice_shortcuts, flatten, print_audit
+from twofold.study.audit import audit_bank, choice_shortcuts, flatten
 
 
 def matrices_bank(scheme, n=120, seed=4, **extra):
