@@ -52,7 +52,8 @@ times = {}
 t0 = time.perf_counter()
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")
-    run = analyze_study(st, timing=lambda name, s: times.__setitem__(name, s))
+    parts = None if sys.argv[2] == "all" else sys.argv[2]
+    run = analyze_study(st, parts=parts, timing=lambda name, s: times.__setitem__(name, s))
 total = time.perf_counter() - t0
 status = {p: e["status"] for p, e in run.summary["parts"].items()}
 print(json.dumps({"times": times, "total": total, "n_trials": run.summary["n_trials"],
@@ -98,11 +99,11 @@ def build_study(folder: Path, n_people: int, *, workers: int = 2) -> Path:
     return folder
 
 
-def _analyse(folder: Path) -> tuple[dict[str, Any], float]:
+def _analyse(folder: Path, parts: str) -> tuple[dict[str, Any], float]:
     """One ``analyze_study`` in a child process: its report and its peak RSS in MB."""
     before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
     out = subprocess.run(
-        [sys.executable, "-c", _CHILD, str(folder / "study.toml")],
+        [sys.executable, "-c", _CHILD, str(folder / "study.toml"), parts],
         check=True,
         capture_output=True,
         text=True,
@@ -113,8 +114,13 @@ def _analyse(folder: Path) -> tuple[dict[str, Any], float]:
     return json.loads(out.stdout.strip().splitlines()[-1]), max(peak, before) / 1024
 
 
-def bench_scale(size: str = "quick", *, keep: str | None = None) -> list[dict[str, Any]]:
-    """Rows: one per analysis run (cold = logs parsed, warm = cache found)."""
+def bench_scale(
+    size: str = "quick", *, keep: str | None = None, parts: str = "all"
+) -> list[dict[str, Any]]:
+    """Rows: one per analysis run (cold = logs parsed, warm = cache found).
+
+    ``parts`` (comma-separated, default all) restricts the analysis, e.g. to time the parts
+    that do not fit models at the largest size."""
     n_people = SIZES[size]
     root = Path(keep) if keep else Path(tempfile.mkdtemp(prefix="twofold-scale-"))
     folder = build_study(root / f"study-{size}", n_people)
@@ -125,7 +131,7 @@ def bench_scale(size: str = "quick", *, keep: str | None = None) -> list[dict[st
         shutil.rmtree(results)
     rows = []
     for label in ("cold", "warm"):
-        rep, peak_mb = _analyse(folder)
+        rep, peak_mb = _analyse(folder, parts)
         row: dict[str, Any] = {"size": size, "run": label, "trials": f"{rep['n_trials']:,}"}
         row.update({k: float(v) for k, v in rep["times"].items()})
         row["total_s"] = rep["total"]
@@ -142,10 +148,11 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--size", choices=sorted(SIZES), default="quick")
     parser.add_argument("--keep", help="folder to build the study in and keep (reused)")
+    parser.add_argument("--parts", default="all", help="comma-separated parts (default all)")
     args = parser.parse_args(argv)
     load = os.getloadavg()
     print(f"load average: {load[0]:.2f} {load[1]:.2f} {load[2]:.2f} on {os.cpu_count()} cores")
-    for row in bench_scale(args.size, keep=args.keep):
+    for row in bench_scale(args.size, keep=args.keep, parts=args.parts):
         cells = (f"{k}={v:.2f}" if isinstance(v, float) else f"{k}={v}" for k, v in row.items())
         print("  ".join(cells))
     return 0
