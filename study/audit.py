@@ -20,13 +20,22 @@ so a set where every choice ties scores exactly chance. Per (family, distractor 
 choices) the audit reports accuracy, chance (``1/n_choices``) and a one-sided exact binomial test
 of the (rounded) number of hits against chance; a set with ``p < alpha`` for either solver is
 flagged: its distractors leak the answer.
+
+The **answer-position audit** counts, per family and number of choices (and over all families
+sharing a number of choices), how often the answer is choice 1, 2, ... among select-mode items,
+and tests the counts against a uniform distribution (:func:`position_uniformity`): Pearson's
+chi-square goodness-of-fit test when every expected count is at least 5, otherwise the exact
+multinomial test (outcomes ordered by their probability), enumerated when the outcomes are few
+and estimated by Monte-Carlo draws when they are many. A row with ``p < alpha`` is flagged. Beside
+it sits the **position-only baseline**: always answer the family's commonest position; its
+accuracy is the share of that position (shown in the shortcut table too).
 """
 
 from __future__ import annotations
 
 import json
 from collections import Counter, defaultdict
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -35,7 +44,14 @@ from .bank import Bank
 from .families import get_family
 from .item import Item, canonical_json
 
-__all__ = ["audit_bank", "choice_shortcuts", "flatten"]
+__all__ = [
+    "answer_positions",
+    "audit_bank",
+    "choice_shortcuts",
+    "commonest_positions",
+    "flatten",
+    "position_uniformity",
+]
 
 _PNG = b"\x89PNG\r\n\x1a\n"
 _ABSENT = "\x00absent"
@@ -135,8 +151,10 @@ def audit_bank(
         (``same_content``: groups of ids whose records agree apart from id and seed;
         ``same_stimulus_answer``: groups with identical stimulus and answer), ``uniqueness``
         (answer-uniqueness problems per item), ``rendering`` (counts checked per medium, whether
-        pictures were sampled, failures), ``shortcuts`` (one row per family, scheme and number
-        of choices), ``flags`` (every finding that needs attention; empty for a clean bank).
+        pictures were sampled, failures), ``positions`` (answer positions per family and number of
+        choices, see :func:`answer_positions`), ``shortcuts`` (one row per family, scheme and
+        number of choices, with the position-only baseline's accuracy), ``flags`` (every
+        finding that needs attention; empty for a clean bank).
     """
     items = list(bank.items)
     report: dict[str, Any] = {
@@ -187,7 +205,9 @@ def audit_bank(
         "picture_sample_per_family": picture_sample,
         "failures": failures,
     }
+    report["positions"] = answer_positions(items, alpha=alpha, seed=seed)
     report["shortcuts"] = _shortcuts(items, alpha=alpha)
+    _add_position_baseline(report["shortcuts"], items)
     report["alpha"] = alpha
     report["flags"] = _flags(report)
     return report
@@ -337,6 +357,191 @@ def _shortcuts(items: list[Item], *, alpha: float) -> list[dict[str, Any]]:
     return rows
 
 
+# -- answer positions ------------------------------------------------------------------------
+#: largest number of possible count vectors enumerated by the exact test
+EXACT_MAX_OUTCOMES = 20_000
+#: Monte-Carlo draws of the exact test when the outcomes are too many to enumerate
+MC_DRAWS = 20_000
+
+
+def position_uniformity(counts: Sequence[int], *, seed: int = 0) -> dict[str, Any]:
+    """Test whether answer-position counts are uniform over the positions.
+
+    Parameters
+    ----------
+    counts : sequence of int
+        How often the answer sits at position 1, 2, ... (one entry per position, zeros
+        included).
+    seed : int, default 0
+        Seeds the Monte-Carlo draws (used only when the exact test has too many outcomes).
+
+    Returns
+    -------
+    dict
+        ``statistic`` (Pearson's X^2), ``p_val``, ``method`` (``"chi-square"``,
+        ``"exact multinomial"`` or ``"monte-carlo multinomial"``) and ``n``.
+
+    Notes
+    -----
+    With ``n`` answers over ``k`` positions the expected count is ``e = n / k`` and
+    ``X^2 = sum_i (c_i - e)^2 / e``. When ``e >= 5``, ``p = P(chi2_{k-1} >= X^2)`` (Pearson's
+    goodness-of-fit test). Otherwise the exact multinomial test is used: ``p`` is the probability,
+    under equal position probabilities, of every count vector no more probable than the observed
+    one. Under the uniform null the probability of a vector is proportional to
+    ``1 / prod_i c_i!``, so vectors are ordered by ``sum_i log c_i!``. The vectors are enumerated
+    when there are at most :data:`EXACT_MAX_OUTCOMES` of them (``C(n + k - 1, k - 1)``);
+    otherwise ``p`` is estimated from :data:`MC_DRAWS` seeded draws as ``(1 + hits) / (1 +
+    draws)``.
+
+    References
+    ----------
+    Pearson, K. (1900). On the criterion that a given system of deviations from the probable...
+    Philosophical Magazine 50, 157-175.
+    """
+    from math import comb
+
+    from scipy.special import gammaln
+    from scipy.stats import chi2
+
+    c = np.asarray(list(counts), dtype=float)
+    k, n = len(c), int(c.sum())
+    if k < 2 or n == 0:
+        return {"statistic": float("nan"), "p_val": float("nan"), "method": "none", "n": n}
+    e = n / k
+    stat = float(((c - e) ** 2 / e).sum())
+    if e >= 5:
+        return {
+            "statistic": stat,
+            "p_val": float(chi2.sf(stat, k - 1)),
+            "method": "chi-square",
+            "n": n,
+        }
+    # log(1/prob) up to a constant; tolerance guards ties against rounding
+    obs = float(gammaln(c + 1).sum())
+    tol = 1e-9 * max(1.0, abs(obs))
+    if comb(n + k - 1, k - 1) <= EXACT_MAX_OUTCOMES:
+        vecs = np.array(list(_compositions(n, k)), dtype=float)
+        log_w = gammaln(n + 1) - gammaln(vecs + 1).sum(axis=1) - n * np.log(k)
+        keep = gammaln(vecs + 1).sum(axis=1) >= obs - tol
+        p = float(np.exp(log_w[keep]).sum())
+        return {"statistic": stat, "p_val": min(p, 1.0), "method": "exact multinomial", "n": n}
+    draws = np.random.default_rng(seed).multinomial(n, [1.0 / k] * k, size=MC_DRAWS)
+    hits = int((gammaln(draws + 1).sum(axis=1) >= obs - tol).sum())
+    return {
+        "statistic": stat,
+        "p_val": (1 + hits) / (1 + MC_DRAWS),
+        "method": "monte-carlo multinomial",
+        "n": n,
+    }
+
+
+def _compositions(n: int, k: int) -> Iterable[tuple[int, ...]]:
+    """Every vector of ``k`` non-negative integers summing to ``n``."""
+    if k == 1:
+        yield (n,)
+        return
+    for first in range(n + 1):
+        for rest in _compositions(n - first, k - 1):
+            yield (first, *rest)
+
+
+def _select_positions(items: Iterable[Item]) -> list[tuple[str, int, int]]:
+    """``(family, n_choices, answer position)`` of every select-mode item with choices."""
+    out = []
+    for it in items:
+        if it.choices is None or "select" not in it.modes:
+            continue
+        pos = it.answer_choice
+        if pos is not None:
+            out.append((it.family, len(it.choices), pos))
+    return out
+
+
+def answer_positions(
+    items: Iterable[Item], *, alpha: float = 0.05, seed: int = 0
+) -> list[dict[str, Any]]:
+    """Answer positions of the select-mode items, per family and overall, tested for balance.
+
+    Parameters
+    ----------
+    items : iterable of Item
+        The items (a bank's ``items``); items without choices are skipped.
+    alpha : float, default 0.05
+        Rows with ``p_val < alpha`` are flagged.
+    seed : int, default 0
+        Seeds the Monte-Carlo test (see :func:`position_uniformity`).
+
+    Returns
+    -------
+    list of dict
+        One row per family and number of choices, then one per number of choices shared by
+        two or more families (``family`` = ``"all families"``): ``family``, ``n_choices``,
+        ``n_items``, ``counts`` (items per position 1..n_choices), ``commonest_position``
+        (the lowest of tied positions), ``commonest_share`` (the position-only baseline's
+        accuracy), ``chance``, ``statistic``, ``p_val``, ``method``, ``flagged``.
+    """
+    rows = _select_positions(items)
+    groups: dict[tuple[str, int], list[int]] = defaultdict(list)
+    pooled: dict[int, list[int]] = defaultdict(list)
+    fams: dict[int, set[str]] = defaultdict(set)
+    for fam, n_choices, pos in rows:
+        groups[(fam, n_choices)].append(pos)
+        pooled[n_choices].append(pos)
+        fams[n_choices].add(fam)
+    keys: list[tuple[str, int, list[int]]] = [(f, k, p) for (f, k), p in sorted(groups.items())]
+    keys += [("all families", k, p) for k, p in sorted(pooled.items()) if len(fams[k]) > 1]
+    out = []
+    for fam, n_choices, positions in keys:
+        counts = [positions.count(k) for k in range(1, n_choices + 1)]
+        test = position_uniformity(counts, seed=seed)
+        top = max(counts)
+        out.append(
+            {
+                "family": fam,
+                "n_choices": n_choices,
+                "n_items": len(positions),
+                "counts": counts,
+                "commonest_position": counts.index(top) + 1,
+                "commonest_share": top / len(positions),
+                "chance": 1.0 / n_choices,
+                "statistic": test["statistic"],
+                "p_val": test["p_val"],
+                "method": test["method"],
+                "flagged": bool(test["p_val"] < alpha),
+            }
+        )
+    return out
+
+
+def commonest_positions(items: Iterable[Item]) -> dict[str, int]:
+    """The commonest answer position of each family's select-mode items (ties: the lowest).
+
+    This is what the position-only baseline answers (``twofold`` solver ``position-only`` with
+    option ``positions``); families without choices are left out.
+    """
+    counts: dict[str, Counter[int]] = defaultdict(Counter)
+    for fam, _, pos in _select_positions(items):
+        counts[fam][pos] += 1
+    return {
+        fam: min(c, key=lambda p: (-c[p], p))  # most common, then lowest
+        for fam, c in sorted(counts.items())
+    }
+
+
+def _add_position_baseline(shortcuts: list[dict[str, Any]], items: list[Item]) -> None:
+    """Add each shortcut row's accuracy of always answering the family's commonest position."""
+    best = commonest_positions(items)
+    hits: dict[tuple[str, str, int], list[int]] = defaultdict(list)
+    for it in items:
+        if it.choices is None or "select" not in it.modes or it.answer_choice is None:
+            continue
+        key = (it.family, it.distractor_scheme or "(none)", len(it.choices))
+        hits[key].append(int(it.answer_choice == best[it.family]))
+    for row in shortcuts:
+        h = hits.get((row["family"], row["distractor_scheme"], row["n_choices"]), [])
+        row["position_accuracy"] = sum(h) / len(h) if h else float("nan")
+
+
 def _flags(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     flags: list[dict[str, Any]] = []
     dup = report["duplicates"]
@@ -375,6 +580,21 @@ def _flags(report: Mapping[str, Any]) -> list[dict[str, Any]]:
                 "message": f"{f['item']}: {f['medium']} view ({f['mode']}) failed: {f['error']}",
             }
         )
+    for pr in report.get("positions", []):
+        if pr["flagged"]:
+            flags.append(
+                {
+                    "kind": "answer-position",
+                    "family": pr["family"],
+                    "message": (
+                        f"{pr['family']} ({pr['n_items']} items, {pr['n_choices']} choices): "
+                        f"answer positions are unbalanced ({_counts_text(pr['counts'])}; "
+                        f"{pr['method']} p = {pr['p_val']:.2g}); always answering "
+                        f"{pr['commonest_position']} scores {pr['commonest_share']:.1%} "
+                        f"(chance {pr['chance']:.1%})"
+                    ),
+                }
+            )
     for s in report["shortcuts"]:
         if s["flagged"]:
             flags.append(
@@ -392,3 +612,7 @@ def _flags(report: Mapping[str, Any]) -> list[dict[str, Any]]:
                 }
             )
     return flags
+
+
+def _counts_text(counts: Sequence[int]) -> str:
+    return " ".join(f"{k}:{c}" for k, c in enumerate(counts, start=1))

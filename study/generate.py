@@ -36,6 +36,13 @@ from .bank import Bank
 from .exceptions import GenerationError, SpecError
 from .families import Family, Rejected, get_family
 from .item import MODES, Item
+from .positions import (
+    PLACEMENT,
+    balanced_positions,
+    place_answer,
+    reshuffle_variant,
+    variant_positions,
+)
 
 __all__ = ["FamilySpec", "GenerationSpec", "generate_bank", "item_rng", "load_spec", "parse_spec"]
 
@@ -259,6 +266,12 @@ def generate_family(
     rejections: Counter[str] = Counter()
     items: list[Item] = []
     n_variants = 0
+    # answer positions: balanced per family for parents and for each isomorph slot
+    _, prng = item_rng(seed, fs.family, "answer-positions")
+    positions = balanced_positions(fs.n, fs.n_choices, prng)
+    vpositions = [
+        variant_positions(positions, fs.n_choices, prng) for _ in range(fs.variants_per_item)
+    ]
     for idx, params in enumerate(_design(fs, seed)):
         parent = None
         for attempt in range(MAX_ATTEMPTS):
@@ -275,6 +288,7 @@ def generate_family(
             except Rejected as rej:
                 rejections[rej.reason] += 1
                 continue
+            cand = place_answer(cand, positions[idx], rng)
             if cand.id in seen:
                 rejections["duplicate"] += 1
                 continue
@@ -303,6 +317,7 @@ def generate_family(
                 except Rejected as rej:
                     rejections[f"variant {op}: {rej.reason}"] += 1
                     continue
+                var = reshuffle_variant(var, parent, vpositions[made][idx], vrng)
                 if var.id in seen:
                     rejections[f"variant {op}: duplicate"] += 1
                     continue
@@ -317,6 +332,8 @@ def generate_family(
         "variants": n_variants,
         "rejections": dict(sorted(rejections.items())),
     }
+    if "select" in fs.modes:
+        stats["answer_placement"] = PLACEMENT
     return items, stats
 
 

@@ -1,4 +1,8 @@
-"""Make isomorphs of a whole bank with one variant operator."""
+"""Make isomorphs of a whole bank with one variant operator.
+
+Every isomorph gets a choice order of its own (:func:`~twofold.study.positions.reshuffle_variant`):
+the answer positions of a family's new isomorphs are balanced and differ from their parents'.
+"""
 
 from __future__ import annotations
 
@@ -10,6 +14,8 @@ from .bank import Bank, load_bank
 from .exceptions import SpecError
 from .families import Rejected, get_family, known_families
 from .generate import item_rng
+from .item import Item
+from .positions import reshuffle_variant, variant_positions
 
 __all__ = ["vary_bank"]
 
@@ -37,16 +43,17 @@ def vary_bank(
         check_choice("--operator", operator, ops, error=SpecError)
     items = list(src.items)
     seen = {it.id for it in items}
+    parents = [it for it in src.items if it.family in having and it.variant_of is None]
+    targets = _targets(parents, operator, seed)
     made = skipped = 0
-    for it in src.items:
-        if it.family not in having or it.variant_of is not None:
-            continue
+    for it in parents:
         _, rng = item_rng(seed, it.id, operator)
         try:
             var = get_family(it.family).vary(it, operator, rng)
         except Rejected:
             skipped += 1
             continue
+        var = reshuffle_variant(var, it, targets.get(it.id), rng)
         if var.id in seen:
             skipped += 1
             continue
@@ -60,3 +67,17 @@ def vary_bank(
     )
     new = Bank.from_items(items, spec=meta.get("spec"), seed=meta.get("seed"), generation=gen)
     return new, {"made": made, "skipped": skipped}
+
+
+def _targets(parents: list[Item], operator: str, seed: int) -> dict[str, int]:
+    """Balanced answer positions for the isomorphs, per family and number of choices."""
+    groups: dict[tuple[str, int], list[Item]] = {}
+    for it in parents:
+        if it.choices is not None and it.answer_choice is not None:
+            groups.setdefault((it.family, len(it.choices)), []).append(it)
+    out: dict[str, int] = {}
+    for (fam, n_choices), group in sorted(groups.items()):
+        _, rng = item_rng(seed, fam, operator, "answer-positions")
+        pos = variant_positions([int(it.answer_choice or 1) for it in group], n_choices, rng)
+        out.update((it.id, p) for it, p in zip(group, pos, strict=True))
+    return out

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 
 import pytest
 from twofold.experiments.cli import main
@@ -88,7 +89,7 @@ def test_generate_show_vary_audit_round(tmp_path, capsys, spec):
     assert code == 0 and png.read_bytes().startswith(b"\x89PNG")
     code, out, err = _run(capsys, "items", "show", str(bank), "str-000000000000")
     assert code == 2 and "field 'item': got 'str-000000000000'" in err
-    code, out, _ = _run(
+    code, out, err = _run(
         capsys,
         "items",
         "vary",
@@ -98,7 +99,9 @@ def test_generate_show_vary_audit_round(tmp_path, capsys, spec):
         "-o",
         str(tmp_path / "bank2"),
     )
-    assert code == 0 and "wrote 12 items" in out
+    # each isomorph's draw is seeded by its parent's id, so how many succeed depends on the bank
+    made = int(re.search(r"(\d+) variants made", err).group(1))
+    assert code == 0 and 1 <= made <= 4 and f"wrote {8 + made} items" in out
     code, _, err = _run(
         capsys, "items", "vary", str(bank), "--operator", "nope", "-o", str(tmp_path / "bank3")
     )

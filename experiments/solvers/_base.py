@@ -122,6 +122,7 @@ SOLVERS: Registry[BuiltinSolver] = Registry(
         "grids-ref": f"{_PKG}.grids",
         "literal": f"{_PKG}.strings",
         "matrices-ref": f"{_PKG}.matrices",
+        "position-only": f"{_PKG}.baselines",
         "random": f"{_PKG}.baselines",
         "reference": f"{_PKG}.reference",
         "strings-ref": f"{_PKG}.strings",

@@ -1,4 +1,4 @@
-"""Context-free baselines: ``random`` and ``choices-only``.
+"""Context-free baselines: ``random``, ``choices-only`` and ``position-only``.
 
 Both read the structured view and use nothing but its ``choices`` (select mode), so they give the
 floor a real solver must beat and show how much the choices alone give away. Where a select
@@ -25,7 +25,7 @@ from twofold.study.item import canonical_json
 
 from ._base import Answer, ItemSeeded, register_solver
 
-__all__ = ["ChoicesOnlySolver", "RandomSolver", "flatten_payload"]
+__all__ = ["ChoicesOnlySolver", "PositionOnlySolver", "RandomSolver", "flatten_payload"]
 
 _ABSTAIN = "baseline abstains in generate mode (no answer without the item)"
 
@@ -184,3 +184,72 @@ def _random(**options: Any) -> RandomSolver:
 )
 def _choices_only(**options: Any) -> ChoicesOnlySolver:
     return ChoicesOnlySolver(**options)
+
+
+class PositionOnlySolver:
+    """Always answer one choice position (select); abstain (generate).
+
+    Sees neither the stimulus nor the choices' content: it shows what a respondent gains from
+    where answers tend to sit. Given the bank's commonest position per family
+    (:func:`twofold.study.audit.commonest_positions`), its accuracy is the share of that
+    position, the position-only baseline of the bank audit. Trials that ask for one label per
+    test panel (``contrast``) get the first label for every panel.
+
+    Parameters
+    ----------
+    position : int, default 1
+        The 1-based choice to answer (wrapped into range when an item has fewer choices).
+    positions : dict, optional
+        Per-family positions, e.g. ``{"matrices": 3}``; families not listed use ``position``.
+    seed : int, default 0
+        Accepted for a uniform solver interface; the answers do not depend on it.
+    """
+
+    medium = "structured"
+    #: declared solver version (part of the trial-cache key)
+    version = "1"
+
+    def __init__(
+        self, *, position: int = 1, positions: Mapping[str, int] | None = None, seed: int = 0
+    ):
+        _check_seed(seed, "position-only")
+        self.seed = seed
+        self.position = self._check_position(position, "position")
+        self.positions = {
+            str(fam): self._check_position(k, f"positions.{fam}")
+            for fam, k in dict(positions or {}).items()
+        }
+
+    @staticmethod
+    def _check_position(k: Any, field: str) -> int:
+        if isinstance(k, bool) or not isinstance(k, int) or k < 1:
+            raise SolverError(
+                f"position-only: field '{field}': got {k!r}; accepted: an integer >= 1."
+            )
+        return k
+
+    def solve(self, view: Any, mode: str) -> Answer:
+        if mode != "select":
+            return Answer(None, effort=0.0, effort_unit="choices", explanation=_ABSTAIN)
+        choices = _choices(view)
+        panels = _panels(view, choices)
+        if panels is not None:
+            return Answer(
+                choices[0] * panels,
+                effort=0.0,
+                effort_unit="choices",
+                explanation="position only: the first label for every panel",
+            )
+        k = self.positions.get(str(view.get("family")), self.position)
+        k = (k - 1) % len(choices) + 1
+        return Answer(
+            k, effort=0.0, effort_unit="choices", explanation=f"position only: always choice {k}"
+        )
+
+
+@register_solver(
+    "position-only",
+    "baseline: always the same choice position (set position, or positions per family)",
+)
+def _position_only(**options: Any) -> PositionOnlySolver:
+    return PositionOnlySolver(**options)
