@@ -134,8 +134,8 @@ def simulate_humans(
     """Write ``n`` synthetic human sessions for ``study`` through the trial-log writer.
 
     Each respondent answers every item of the bank once, in a random order, in the item's
-    first response mode. Sessions are ``S001``, ``S002``... in ``logs/human/``; the generating
-    parameters go to ``logs/simulation.json``.
+    first response mode. Sessions are ``S001``, ``S002``... in ``logs/simulated/`` (never beside
+    real sessions in ``logs/human/``); the generating parameters go to ``logs/simulation.json``.
 
     Returns
     -------
@@ -146,7 +146,7 @@ def simulate_humans(
     n = settings.humans if n is None else check_int("humans", n, low=1, high=100_000)
     seed = study.seed if seed is None else seed
     bank = study.bank()
-    out_dir = study.logs_dir / "human"
+    out_dir = study.logs_dir / "simulated"
     existing = sorted(out_dir.glob("S[0-9][0-9][0-9]*.csv")) if out_dir.exists() else []
     if existing and not replace:
         raise SpecError(

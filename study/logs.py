@@ -715,10 +715,14 @@ def is_session_log(path: str | os.PathLike[str]) -> bool:
 
 
 def session_logs(logs_dir: str | os.PathLike[str]) -> list[Path]:
-    """Every session log under ``logs_dir/human`` and ``logs_dir/machine`` (sorted per folder)."""
+    """Every session log in the ``human``, ``simulated`` and ``machine`` folders of ``logs_dir``.
+
+    Simulated respondents (``twofold simulate``) have a folder of their own so that they never
+    sit beside real participant sessions; their rows are marked synthetic.
+    """
     root = Path(logs_dir)
     files: list[Path] = []
-    for sub in ("human", "machine"):
+    for sub in ("human", "simulated", "machine"):
         d = root / sub
         if d.is_dir():
             files.extend(sorted(p for p in d.glob("*.csv") if is_session_log(p)))

@@ -147,7 +147,7 @@ def _consistent_junk(field: str, value: object) -> Damage:
 
 def _log_cell(column: str, value: str) -> Damage:
     def damage(root: Path) -> None:
-        p = root / "logs" / "human" / "S001.csv"
+        p = root / "logs" / "simulated" / "S001.csv"
         lines = p.read_text().splitlines()
         names = lines[0].split(",")
         import csv
@@ -165,7 +165,7 @@ def _log_cell(column: str, value: str) -> Damage:
 
 def _side(change: Callable[[dict], None]) -> Damage:
     def damage(root: Path) -> None:
-        p = root / "logs" / "human" / "S001.json"
+        p = root / "logs" / "simulated" / "S001.json"
         d = json.loads(p.read_text())
         change(d)
         p.write_text(json.dumps(d))
@@ -254,17 +254,17 @@ CASES: list[tuple[str, Damage, list[str], str]] = [
     ("log-kind", _log_cell("kind", "robot"), ANALYZE, "field 'kind': got 'robot'"),
     ("log-item", _log_cell("item", "str-000000000000"), ANALYZE, "field 'item': got 'str-000000000000'"),
     ("log-bank-hash", _log_cell("bank_hash", "ab" * 32), ANALYZE, "field 'bank_hash'"),
-    ("log-not-utf8", _bytes("logs/human/S001.csv", b"S001", b"S\xff01"), ANALYZE, "S001.csv: byte"),
-    ("log-middle-row", _replace("logs/human/S001.csv", "\nbad-input,", "\nbad-input\nbad-input,"), ANALYZE, "cells; accepted: 22 cells"),
-    ("log-header", _replace("logs/human/S001.csv", "study,bank_hash", "studies,bank_hash"), ANALYZE, "header does not match"),
+    ("log-not-utf8", _bytes("logs/simulated/S001.csv", b"S001", b"S\xff01"), ANALYZE, "S001.csv: byte"),
+    ("log-middle-row", _replace("logs/simulated/S001.csv", "\nbad-input,", "\nbad-input\nbad-input,"), ANALYZE, "cells; accepted: 22 cells"),
+    ("log-header", _replace("logs/simulated/S001.csv", "study,bank_hash", "studies,bank_hash"), ANALYZE, "header does not match"),
     ("side-status", _side(lambda d: d.update(status="finished")), ANALYZE, "field 'status': got 'finished'; accepted: one of running"),
     ("side-synthetic", _side(lambda d: d.update(synthetic="yes")), ANALYZE, "field 'synthetic': got 'yes'; accepted: a boolean"),
     ("side-n-trials", _side(lambda d: d.update(n_trials="six")), ANALYZE, "field 'n_trials': got 'six'; accepted: an integer"),
     ("side-missing-kind", _side(lambda d: d.pop("kind")), ANALYZE, "field 'kind': got None"),
-    ("side-not-json", _write("logs/human/S001.json", "{"), ANALYZE, "S001.json: not valid JSON"),
-    ("side-not-utf8", _write("logs/human/S001.json", b'{"study": "\xff"}'), ANALYZE, "S001.json: byte"),
-    ("side-nan", _write("logs/human/S001.json", '{"study": NaN}'), ANALYZE, "S001.json: not valid JSON (NaN is not a JSON number)"),
-    ("side-missing", lambda root: (root / "logs" / "human" / "S001.json").unlink(), ANALYZE, "session sidecar is missing"),
+    ("side-not-json", _write("logs/simulated/S001.json", "{"), ANALYZE, "S001.json: not valid JSON"),
+    ("side-not-utf8", _write("logs/simulated/S001.json", b'{"study": "\xff"}'), ANALYZE, "S001.json: byte"),
+    ("side-nan", _write("logs/simulated/S001.json", '{"study": NaN}'), ANALYZE, "S001.json: not valid JSON (NaN is not a JSON number)"),
+    ("side-missing", lambda root: (root / "logs" / "simulated" / "S001.json").unlink(), ANALYZE, "session sidecar is missing"),
     ("side-session-mismatch", _side(lambda d: d.update(session="S009")), ANALYZE, "sidecar field 'session': got 'S009'"),
     # -- answers files -----------------------------------------------------------------------------
     ("answers-not-utf8", _bytes("answers.jsonl", b'"answer"', b'"ans\xffwer"'), IMPORT, "answers.jsonl line 1: byte"),

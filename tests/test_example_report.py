@@ -39,7 +39,7 @@ def test_example_writes_every_stage(example):
     assert (example / "bank" / "items.jsonl").exists()
     assert (example / "results" / "audit.json").exists()
     assert len(list((example / "forms").glob("F*.json"))) == 4
-    humans = list((example / "logs" / "human").glob("S*.csv"))
+    humans = list((example / "logs" / "simulated").glob("S*.csv"))
     machines = list((example / "logs" / "machine").glob("*.csv"))
     assert len(humans) == 16
     assert {p.stem.rsplit("-s", 1)[0] for p in machines} == {"thorough", "hasty", "uneven"}

@@ -54,7 +54,7 @@ def simulated(tmp_path_factory):
 
 
 def _all_trials(study):
-    return pd.concat([read_trials(p) for p in sorted((study.logs_dir / "human").glob("S*.csv"))])
+    return pd.concat([read_trials(p) for p in sorted((study.logs_dir / "simulated").glob("S*.csv"))])
 
 
 def test_every_row_and_sidecar_is_marked_synthetic(simulated):
@@ -64,7 +64,7 @@ def test_every_row_and_sidecar_is_marked_synthetic(simulated):
     assert trials["synthetic"].all()
     assert (trials["kind"] == "human").all()
     for sid in out["sessions"]:
-        side = read_sidecar(study.logs_dir / "human" / f"{sid}.json")
+        side = read_sidecar(study.logs_dir / "simulated" / f"{sid}.json")
         assert side["synthetic"] is True and side["status"] == "complete"
     truth = json.loads((study.logs_dir / "simulation.json").read_text())
     assert truth["synthetic"] is True

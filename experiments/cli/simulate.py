@@ -31,5 +31,5 @@ def simulate(
     console.print("[bold]synthetic data[/bold]: never mix it with real sessions.")
     stdout.print(
         f"wrote {len(out['sessions'])} synthetic sessions ({out['n_trials']} trials) "
-        f"to {study.logs_dir / 'human'}"
+        f"to {study.logs_dir / 'simulated'}"
     )
