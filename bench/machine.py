@@ -199,7 +199,7 @@ def _server() -> tuple[ThreadingHTTPServer, str]:
 def bench_http(n_requests: int, in_flight: int = 32) -> None:
     httpd, url = _server()
     try:
-        solver = ChatSolver(url, options={"concurrency": in_flight}, timeout=30)
+        solver = ChatSolver(url, options={"model": "bench", "concurrency": in_flight}, timeout=30)
         prompt = "What is 3 + 4?\nReply with an integer."
         for _ in range(in_flight):  # open the connections
             solver.solve(prompt, "generate")

@@ -8,6 +8,7 @@ Top-level tables::
     [forms]      form design                                    (twofold.study.forms)
     [runner]     participant window and screen options          (participant runner)
     [[solvers]]  machine respondents                            (machine runner)
+    [machine]    machine-session options: [machine.prompt]      (machine runner)
     [simulate]   simulated respondents                          (simulation)
     [analysis]   analysis options                               (twofold.analysis)
 
@@ -33,7 +34,17 @@ from .generate import GenerationSpec, generate_bank, load_spec, parse_spec
 
 __all__ = ["STUDY_FIELDS", "TABLES", "Field", "Study", "check_fields", "load_study"]
 
-TABLES = ("study", "bank", "blocks", "forms", "runner", "solvers", "simulate", "analysis")
+TABLES = (
+    "study",
+    "bank",
+    "blocks",
+    "forms",
+    "runner",
+    "solvers",
+    "machine",
+    "simulate",
+    "analysis",
+)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -137,6 +148,20 @@ STUDY_FIELDS: dict[str, Field] = {
             "modes": _f("array", "response modes"),
             "medium": _f("string", "rendering medium"),
             "families": _f("array", "families"),
+        },
+    ),
+    "machine": _f(
+        "table",
+        "machine sessions",
+        {
+            "prompt": _f(
+                "table",
+                "prompt template of chat solvers",
+                {
+                    "system": _f("string", "system text"),
+                    "user": _f("string", "user text holding {view}"),
+                },
+            ),
         },
     ),
     "simulate": _f(

@@ -120,7 +120,8 @@ class ChatServer:
 
 
 def entry(url: str, **options) -> dict:
-    opts = {"backoff": 0.01, "backoff_max": 0.05, "request_timeout": 1.5, **options}
+    opts = {"model": "toy-model", "backoff": 0.01, "backoff_max": 0.05, "request_timeout": 1.5}
+    opts.update(options)
     return {"spec": f"http:{url}", "name": "chat", "options": opts}
 
 
@@ -171,7 +172,7 @@ def test_api_key_is_sent_but_never_written(tmp_path, monkeypatch, capsys):
     monkeypatch.setenv("TWOFOLD_TEST_KEY", SECRET)
     extra = (
         '[[solvers]]\nname = "keyed"\nspec = "http:{url}"\n'
-        '[solvers.options]\napi_key_env = "TWOFOLD_TEST_KEY"\nbackoff = 0.01\n'
+        '[solvers.options]\nmodel = "toy-model"\napi_key_env = "TWOFOLD_TEST_KEY"\nbackoff = 0.01\n'
     )
     with ChatServer(["500", "broken"]) as srv:
         make_study(tmp_path, extra.format(url=srv.url))
@@ -203,7 +204,8 @@ def _free_port() -> int:
 def test_endpoint_down_at_start_fails_before_writing(tmp_path, capsys):
     url = f"http://127.0.0.1:{_free_port()}/v1/chat"
     make_study(tmp_path)
-    code = main(["run", "machine", str(tmp_path / "study.toml"), "--solver", f"http:{url}"])
+    args = ["--solver", f"http:{url}", "--option", "model=toy-model"]
+    code = main(["run", "machine", str(tmp_path / "study.toml"), *args])
     # rich may wrap the line at the console width; compare the words
     err = " ".join(capsys.readouterr().err.split())
     port = url.split(":")[2].split("/")[0]
@@ -217,7 +219,9 @@ def test_endpoint_down_at_start_fails_before_writing(tmp_path, capsys):
 
 def test_retries_exhausted_and_client_errors_fail_the_trial_only():
     with ChatServer(["500"] * 3 + ["400"]) as srv:
-        solver = ChatSolver(srv.url, options={"retries": 2, "backoff": 0.01}, timeout=2)
+        solver = ChatSolver(
+            srv.url, options={"model": "toy-model", "retries": 2, "backoff": 0.01}, timeout=2
+        )
         with pytest.raises(TrialFailure) as err:
             solver.solve("What is 1 + 2?\nReply with an integer.", "generate")
         assert err.value.status == "failed" and "HTTP 500; gave up after 3 attempts" in str(

@@ -608,7 +608,7 @@ def test_secrets_never_reach_a_file(template, tmp_path):
         env = _env(template.parent, TWOFOLD_TEST_KEY=KEY)
         res = _twofold(
             "run", "machine", str(study / "study.toml"), "--solver", url, "--name", "echo",
-            "--option", "api_key_env=TWOFOLD_TEST_KEY",
+            "--option", "model=echo-model", "--option", "api_key_env=TWOFOLD_TEST_KEY",
             "--option", "headers=" + json.dumps({"X-Token": HEADER_SECRET}),
             "--option", "retries=0", "--option", "request_timeout=5", "--option", "concurrency=2",
             env=env, timeout=120,

@@ -1,11 +1,20 @@
-"""The HTTP adapter: a chat-style endpoint that answers the text view in free text.
+"""The HTTP adapter: a chat-style endpoint that answers an item's view in free text.
 
 Request (POST, JSON) -- the widely used open chat-completions shape::
 
     {"model": "<options.model>",
-     "messages": [{"role": "system", "content": "<options.system>"},   (only when set)
-                  {"role": "user", "content": "<the item's text view>"}],
+     "messages": [{"role": "system", "content": "<system text>"},       (only when set)
+                  {"role": "user", "content": "<user text around the item's text view>"}],
      "temperature": 0.0, "max_tokens": 512, "seed": <session seed>}
+
+With the picture medium (``medium = "picture"`` in the ``[[solvers]]`` entry, or the option
+``medium = "picture"``) the user message carries a list of content parts instead, the item's
+picture as a base64 PNG data URL where the template places the view, for vision-language models::
+
+    {"role": "user", "content": [
+        {"type": "text", "text": "<user text before the view>"},
+        {"type": "image_url", "image_url": {"url": "data:image/png;base64,iVBORw0KGgo..."}},
+        {"type": "text", "text": "<user text after the view>"}]}         (empty parts left out)
 
 Response (JSON)::
 
@@ -16,14 +25,27 @@ The reply text goes to the item's family (``parse_text``) to extract the respons
 reply works. Effort is ``usage.completion_tokens`` in ``tokens`` when given, else wall-clock
 ``seconds``.
 
+Prompt template
+---------------
+The system and user text around the view come from the study's ``[machine.prompt]`` table
+(``system``, ``user``), which an entry's options ``system`` / ``user`` override. ``user`` holds
+``{view}`` exactly once, where the item's view goes; ``{mode}`` (``generate`` or ``select``) may
+appear in either text; other braces are sent as written. Without a template the user message is
+the text view alone (:data:`DEFAULT_USER`), or :data:`DEFAULT_PICTURE_USER` for pictures. The
+SHA-256 of the template in force (:attr:`ChatSolver.prompt_sha256`) is written to each session's
+sidecar as ``prompt_sha256``, and the template is part of the solver's identity: a new template
+starts a new session instead of replaying old answers.
+
 Options (``[solvers.options]``)
 -------------------------------
-model, temperature (0.0), max_tokens (512), system (none), headers (a table of extra headers),
-api_key_env (name of the environment variable holding the key, sent as ``Authorization: Bearer``;
-the key itself is never written anywhere), concurrency (4 requests in flight), per_minute (requests
-per minute, none = unlimited), retries (4), backoff (0.5 s, doubled per retry, with jitter, capped
-at ``backoff_max`` 30 s), request_timeout (the trial timeout), probe (true: check at start that the
-endpoint answers at all).
+model (required: the model name the endpoint expects, sent in every request), medium (``text``
+or ``picture``), system, user (the prompt template above), temperature (0.0), max_tokens (512),
+headers (a table of extra headers), api_key_env (name of the environment variable holding the
+key, sent as ``Authorization: Bearer``; the key itself is never written anywhere), concurrency (4
+requests in flight), per_minute (requests per minute, none = unlimited), retries (4), backoff
+(0.5 s, doubled per retry, with jitter, capped at ``backoff_max`` 30 s), request_timeout (the
+trial timeout), probe (true: check at start that the endpoint answers at all). Every option is
+checked when the solver is built, before the first trial.
 
 Timeouts, connection errors, 429 and 5xx are retried with exponential backoff and jitter (a 429's
 ``Retry-After`` is honoured up to ``backoff_max``); other 4xx fail the trial; a 200 whose body is
@@ -32,23 +54,58 @@ not the JSON above is logged ``invalid`` with the raw body.
 
 from __future__ import annotations
 
+import base64
+import dataclasses
+import hashlib
 import os
 import random
 import threading
 import time
 from collections.abc import Mapping
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import httpx
 from twofold.experiments.solvers import Answer
-from twofold.study.exceptions import SolverError
+from twofold.study._check import fail
+from twofold.study.exceptions import InputError, SolverError, SpecError
+from twofold.study.item import canonical_json
 
 from ._core import FreeText, TrialFailure, scrub
 
-__all__ = ["ChatSolver", "RateLimiter"]
+if TYPE_CHECKING:  # pragma: no cover
+    from .spec import SolverSpec
+
+__all__ = [
+    "CHAT_MEDIA",
+    "DEFAULT_PICTURE_USER",
+    "DEFAULT_USER",
+    "ChatSolver",
+    "RateLimiter",
+    "check_prompt",
+    "prompt_sha256",
+    "study_prompt",
+    "with_study_prompt",
+]
+
+#: where the item's view goes in the user template
+VIEW = "{view}"
+#: replaced by the trial's response mode (generate or select) in either text
+MODE = "{mode}"
+#: the media the chat adapter can send: the text view, or the picture as an image part
+CHAT_MEDIA = ("text", "picture")
+#: the user template when none is set, for text views: the view alone
+DEFAULT_USER = VIEW
+#: the user template when none is set, for pictures (a study should set its own)
+DEFAULT_PICTURE_USER = (
+    "The puzzle is shown in this picture:\n"
+    + VIEW
+    + "\nSolve it ({mode} mode: in select mode, answer with the number of your choice). End "
+    'your reply with one line "Answer: <your answer>".'
+)
 
 _OPTIONS = (
     "model",
+    "user",
     "temperature",
     "max_tokens",
     "system",
@@ -63,6 +120,67 @@ _OPTIONS = (
     "probe",
     "medium",
 )
+
+
+def prompt_sha256(system: str | None, user: str) -> str:
+    """SHA-256 (hex) of a prompt template: the canonical JSON of ``{"system": ..., "user": ...}``.
+
+    ``system`` is ``None`` when no system message is sent. This is the ``prompt_sha256`` a chat
+    session's sidecar records; compute it for your own template to find its sessions.
+    """
+    body = {"system": system, "user": user}
+    return hashlib.sha256(canonical_json(body).encode("utf-8")).hexdigest()
+
+
+def check_prompt(
+    system: Any, user: Any, *, where: str, prefix: str = "", error: type[InputError] = SpecError
+) -> None:
+    """Check a prompt template: text, ``{view}`` exactly once in ``user`` and never in ``system``.
+
+    Raises
+    ------
+    InputError
+        ``error`` (default :class:`SpecError`), naming ``<prefix>system`` or ``<prefix>user``.
+    """
+    if system is not None and (not isinstance(system, str) or VIEW in system):
+        accepted = "text without {view} (the view goes in the user text)"
+        raise fail(prefix + "system", system, accepted, where=where, error=error)
+    if user is not None and (not isinstance(user, str) or user.count(VIEW) != 1):
+        accepted = "text holding {view} exactly once, where the item's view goes"
+        raise fail(prefix + "user", user, accepted, where=where, error=error)
+
+
+def study_prompt(study: Any) -> dict[str, str]:
+    """The study's prompt template, ``[machine.prompt]`` in ``study.toml``, checked.
+
+    Returns
+    -------
+    dict
+        ``system`` and/or ``user`` as set in the study (empty when the table is absent).
+
+    Raises
+    ------
+    SpecError
+        The template is not text, or ``user`` does not hold ``{view}`` exactly once.
+    """
+    table = study.table("machine")
+    prompt = table.get("prompt", {}) if isinstance(table, Mapping) else {}
+    out = {k: prompt[k] for k in ("system", "user") if k in prompt}
+    check_prompt(
+        out.get("system"), out.get("user"), where=study.file.name, prefix="machine.prompt."
+    )
+    return out
+
+
+def with_study_prompt(spec: SolverSpec, prompt: Mapping[str, str]) -> SolverSpec:
+    """``spec`` with the study's prompt template as default options (HTTP solvers only).
+
+    The entry's own ``system`` / ``user`` options win, key by key. Other solvers are returned
+    unchanged: the template wraps a chat message, which only the HTTP adapter sends.
+    """
+    if spec.kind != "http" or not prompt:
+        return spec
+    return dataclasses.replace(spec, options={**dict(prompt), **spec.options})
 
 
 class RateLimiter:
@@ -113,6 +231,7 @@ class ChatSolver:
         seed: int = 0,
         timeout: float = 120.0,
         name: str = "http",
+        medium: str | None = None,
     ):
         opts = dict(options or {})
         where = f"solver '{name}'"
@@ -125,8 +244,13 @@ class ChatSolver:
             )
         if not url.startswith(("http://", "https://")):
             raise SolverError(f"{where}: url {url!r} must start with http:// or https://.")
-        if opts.get("medium", "text") != "text":
-            raise SolverError(f"{where}: the chat adapter sends the text view; set medium = text.")
+        medium = medium or opts.get("medium") or "text"
+        if medium not in CHAT_MEDIA:
+            raise SolverError(
+                f"{where}: field 'medium': got {medium!r}; accepted: text or picture (the chat "
+                "adapter sends the text view, or the picture as an image part)."
+            )
+        self.medium = medium
         self.url, self.name, self.seed = url, name, seed
 
         def num(key: str, default: float, low: float, high: float, *, whole: bool = False) -> Any:
@@ -145,18 +269,23 @@ class ChatSolver:
                 )
             return value
 
-        self.model = opts.get("model", "")
-        if not isinstance(self.model, str):
+        self.model = opts.get("model")
+        if not isinstance(self.model, str) or not self.model.strip():
             raise SolverError(
-                f"{where}: field 'options.model': got {self.model!r}; accepted: text."
+                f"{where}: field 'options.model': got {self.model!r}; accepted: the model name "
+                'the endpoint expects (model = "..." in [solvers.options], or --option '
+                "model=NAME)."
             )
         self.temperature = float(num("temperature", 0.0, 0.0, 10.0))
         self.max_tokens = int(num("max_tokens", 512, 1, 10_000_000, whole=True))
-        self.system = opts.get("system")
-        if self.system is not None and not isinstance(self.system, str):
-            raise SolverError(
-                f"{where}: field 'options.system': got {self.system!r}; accepted: text."
-            )
+        self.system: str | None = opts.get("system")
+        check_prompt(
+            self.system, opts.get("user"), where=where, prefix="options.", error=SolverError
+        )
+        default = DEFAULT_PICTURE_USER if medium == "picture" else DEFAULT_USER
+        self.user: str = opts.get("user") or default
+        #: SHA-256 of the prompt template in force (see :func:`prompt_sha256`)
+        self.prompt_sha256 = prompt_sha256(self.system, self.user)
         self.concurrency = int(num("concurrency", 4, 1, 256, whole=True))
         self.retries = int(num("retries", 4, 0, 100, whole=True))
         self.backoff = float(num("backoff", 0.5, 0.0, 3600.0))
@@ -209,21 +338,31 @@ class ChatSolver:
                 "or fix the url."
             ) from None
 
-    def request_body(self, text: str) -> dict[str, Any]:
-        """The JSON body sent for one text view."""
-        messages = []
+    def request_body(self, view: str | bytes, mode: str = "generate") -> dict[str, Any]:
+        """The JSON body sent for one view: text, or PNG bytes sent as an image part."""
+        messages: list[dict[str, Any]] = []
         if self.system:
-            messages.append({"role": "system", "content": str(self.system)})
-        messages.append({"role": "user", "content": text})
-        body: dict[str, Any] = {
+            messages.append({"role": "system", "content": self.system.replace(MODE, mode)})
+        before, _, after = self.user.replace(MODE, mode).partition(VIEW)
+        content: Any
+        if isinstance(view, bytes):
+            url = "data:image/png;base64," + base64.b64encode(view).decode("ascii")
+            parts = [
+                {"type": "text", "text": before},
+                {"type": "image_url", "image_url": {"url": url}},
+                {"type": "text", "text": after},
+            ]
+            content = [p for p in parts if p["type"] != "text" or p["text"].strip()]
+        else:
+            content = before + view + after
+        messages.append({"role": "user", "content": content})
+        return {
+            "model": self.model,
             "messages": messages,
             "temperature": self.temperature,
             "max_tokens": self.max_tokens,
             "seed": self.seed,
         }
-        if self.model:
-            body["model"] = self.model
-        return body
 
     def _delay(self, attempt: int, retry_after: str | None = None) -> float:
         if retry_after is not None:
@@ -235,9 +374,12 @@ class ChatSolver:
         return base * (0.5 + random.random() / 2)  # noqa: S311 - jitter, not security
 
     def solve(self, view: Any, mode: str) -> Answer:
-        if not isinstance(view, str):
-            raise TrialFailure("failed", "the chat adapter needs the text view")
-        body = self.request_body(view)
+        wanted = bytes if self.medium == "picture" else str
+        if not isinstance(view, wanted):
+            raise TrialFailure(
+                "failed", f"the chat adapter was set up for the {self.medium} view; got another"
+            )
+        body = self.request_body(view, mode)
         t0 = time.monotonic()
         last, status = "", "failed"
         retry_after: str | None = None

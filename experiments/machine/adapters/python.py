@@ -2,13 +2,22 @@
 
 ``python:MODULE:ATTRIBUTE`` imports ``MODULE`` and takes ``ATTRIBUTE`` (dotted for nested
 names): a class is built with the entry's options (and ``seed`` when it accepts one); an object
-with a ``solve(view, mode)`` method or a plain function is used as it is.
+with a ``solve(view, mode)`` method or a plain function is used as it is. The current folder is
+importable, as it is for ``python -m``: a ``my_model.py`` in the folder the command runs in is
+found as ``python:my_model:solve``.
+
+The view the solver receives (its medium) is the first of: the ``[[solvers]]`` entry's
+``medium``, the option ``medium`` (``--option medium=text``), a ``medium`` attribute on the
+object, class or function, a module-level ``medium`` beside a plain function, else
+``structured``.
 """
 
 from __future__ import annotations
 
 import importlib
 import inspect
+import os
+import sys
 from typing import TYPE_CHECKING, Any
 
 from twofold.experiments.solvers import Answer
@@ -75,6 +84,10 @@ def build(spec: SolverSpec, seed: int, where: str) -> Solver:
             f"{where}: spec {spec.spec!r} is not python:MODULE:ATTRIBUTE (e.g. "
             "python:my_pkg.solvers:solve)."
         )
+    cwd = os.getcwd()
+    if cwd not in sys.path and "" not in sys.path:
+        sys.path.insert(0, cwd)  # as `python -m` does: the user's my_model.py beside study.toml
+        importlib.invalidate_caches()
     try:
         module = importlib.import_module(module_name)
     except ImportError as err:
@@ -105,7 +118,10 @@ def build(spec: SolverSpec, seed: int, where: str) -> Solver:
             f"{where}: options {sorted(options)} given but {attr} is not a class to build with "
             "them; remove the options or point the spec at a class."
         )
-    medium = spec.options.get("medium") or getattr(obj, "medium", None) or "structured"
+    medium = spec.options.get("medium") or getattr(obj, "medium", None)
+    if medium is None and inspect.isfunction(obj):
+        medium = getattr(sys.modules.get(obj.__module__), "medium", None)
+    medium = medium or "structured"
     if hasattr(obj, "solve") and callable(obj.solve):
         _check_signature(obj.solve, f"{attr}.solve", where)
         return _FunctionSolver(obj.solve, medium, owner=obj)
