@@ -51,11 +51,21 @@ def family_problems(family: Family, *, n: int = 10, seed: int = 0) -> list[str]:
     the item schema; generation is deterministic by seed; the answer and every accepted answer
     score correct; ``sample_error`` gives a wrong response scored with the stated error type;
     every medium renders deterministically; the structured view carries no ``answer`` key; each
-    variant operator keeps ids, provenance and a correct answer.
+    variant operator keeps ids, provenance and a correct answer; ``reference_solver`` is a name
+    or None and ``typical_rt_ms`` a positive time.
     """
     problems: list[str] = []
     if not family.factors:
         problems.append("declares no factors")
+    if family.reference_solver is not None and not (
+        isinstance(family.reference_solver, str) and family.reference_solver
+    ):
+        problems.append(
+            f"reference_solver: got {family.reference_solver!r}; accepted: a solver name or None"
+        )
+    rt = family.typical_rt_ms
+    if isinstance(rt, bool) or not isinstance(rt, int | float) or not 0 < rt < 3_600_000:
+        problems.append(f"typical_rt_ms: got {rt!r}; accepted: milliseconds, above 0 and below 1 h")
     for mode in family.modes:
         for idx in range(n):
             item = _make(family, idx, seed, mode)

@@ -126,6 +126,11 @@ class Registry(Generic[T]):
         return self._entries.pop(name, None)
 
     # -- looking up --------------------------------------------------------------------------
+    @property
+    def builtins(self) -> dict[str, str]:
+        """The built-in names and where each lives (a copy; see the ``builtins`` parameter)."""
+        return dict(self._builtins)
+
     def names(self) -> list[str]:
         """Every known name, sorted: built-ins, registered entries and installed plugins.
 

@@ -140,6 +140,38 @@ def test_family_declares_a_reference_solver_and_a_response_time(name):
     assert 1000 <= fam.typical_rt_ms <= 120_000
 
 
+def test_conformance_checks_the_declarations():
+    from twofold.study.conformance import family_problems
+
+    class Slowest(type(get_family("strings"))):
+        typical_rt_ms = -5.0
+        reference_solver = ""
+
+    problems = family_problems(Slowest(), n=1)
+    assert any(p.startswith("typical_rt_ms: got -5.0") for p in problems)
+    assert any(p.startswith("reference_solver: got ''") for p in problems)
+    assert family_problems(get_family("strings"), n=1) == []
+
+
+@pytest.mark.parametrize(
+    ("registry", "folder"),
+    [
+        (FAMILIES, "study/families"),
+        (SOLVERS, "experiments/solvers"),
+        (ADAPTERS, "experiments/machine/adapters"),
+    ],
+)
+def test_every_builtin_module_is_listed(registry, folder):
+    """A module added to a built-in folder is loaded only if its registry lists it."""
+    listed = {target.partition(":")[0].rsplit(".", 1)[-1] for target in registry.builtins.values()}
+    on_disk = {
+        p.stem if p.suffix == ".py" else p.name
+        for p in (ROOT / folder).iterdir()
+        if not p.name.startswith("_") and (p.suffix == ".py" or (p / "__init__.py").exists())
+    }
+    assert on_disk == listed
+
+
 def test_a_family_needs_its_own_name_and_an_instance():
     fam = get_family("strings")
     with pytest.raises(ValueError, match="registered under another name"):

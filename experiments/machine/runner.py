@@ -372,12 +372,14 @@ class _Executor:
         t0: float,
     ) -> Iterator[tuple[int, dict[str, Any]]]:
         medium = spec.medium or solver.medium
-        timeout = None if spec.kind in ("command", "http") else spec.timeout
+        adapter = spec.adapter
+        timeout = None if adapter is not None and adapter.own_timeout else spec.timeout
         if self.dask is not None:
             yield from self._run_dask(spec, seed, tasks, t0, timeout)
             return
         in_flight = int(getattr(solver, "max_in_flight", 1) or 1)
-        if self.workers > 1 and spec.kind not in ("http",) and len(tasks) > 1:
+        in_processes = adapter is None or adapter.worker_processes
+        if self.workers > 1 and in_processes and len(tasks) > 1:
             yield from self._run_processes(spec, seed, tasks, t0, timeout)
         elif in_flight > 1:
             with cf.ThreadPoolExecutor(in_flight, thread_name_prefix="twofold-trial") as pool:

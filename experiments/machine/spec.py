@@ -38,7 +38,7 @@ from twofold.study.item import MODES, canonical_json
 from twofold.study.render import MEDIA
 
 from ._core import redact_mapping
-from .adapters import adapter_for, spec_forms
+from .adapters import Adapter, adapter_for, spec_forms
 
 __all__ = [
     "DEFAULT_TIMEOUT",
@@ -95,6 +95,11 @@ class SolverSpec:
     def kind(self) -> str:
         """``builtin``, or the adapter claiming the spec (``python``, ``command``, ``http``...)."""
         return _kind(self.spec)
+
+    @property
+    def adapter(self) -> Adapter | None:
+        """The adapter claiming the spec, or None for a built-in solver."""
+        return adapter_for(self.spec)
 
     def config(self) -> dict[str, Any]:
         """The configuration that determines the solver's answers (no name, seed or secrets).

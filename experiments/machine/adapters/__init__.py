@@ -42,6 +42,12 @@ class Adapter:
     build : callable
         ``build(spec, seed, where) -> Solver``: a started solver for one seed; raises
         :class:`~twofold.study.exceptions.SolverError` naming ``where`` and what to fix.
+    own_timeout : bool, default False
+        The solver enforces the entry's ``timeout`` itself (a child process, a network call),
+        so the runner does not wrap each trial in its own timer.
+    worker_processes : bool, default True
+        Sessions may run in worker processes (``--workers``); False for solvers whose work
+        happens elsewhere and that overlap trials themselves (``max_in_flight``).
     """
 
     name: str
@@ -49,6 +55,8 @@ class Adapter:
     usage: str
     default_name: Callable[[str], str]
     build: Callable[[SolverSpec, int, str], Solver]
+    own_timeout: bool = False
+    worker_processes: bool = True
 
     def claims(self, spec: str) -> bool:
         """Whether the spec string belongs to this adapter."""

@@ -42,4 +42,4 @@ def build(spec: SolverSpec, seed: int, where: str) -> Solver:
     )
 
 
-ADAPTER = Adapter("command", (PREFIX,), "command:ARGV", default_name, build)
+ADAPTER = Adapter("command", (PREFIX,), "command:ARGV", default_name, build, own_timeout=True)

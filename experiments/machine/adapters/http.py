@@ -34,4 +34,12 @@ def build(spec: SolverSpec, seed: int, where: str) -> Solver:
     )
 
 
-ADAPTER = Adapter("http", ("http:", "https:"), "http:URL", default_name, build)
+ADAPTER = Adapter(
+    "http",
+    ("http:", "https:"),
+    "http:URL",
+    default_name,
+    build,
+    own_timeout=True,
+    worker_processes=False,
+)
