@@ -30,7 +30,12 @@ def build(spec: SolverSpec, seed: int, where: str) -> Solver:
     from ..chat import ChatSolver
 
     return ChatSolver(
-        url(spec.spec), options=spec.options, seed=seed, timeout=spec.timeout, name=spec.name
+        url(spec.spec),
+        options=spec.options,
+        seed=seed,
+        timeout=spec.timeout,
+        name=spec.name,
+        medium=spec.medium,
     )
 
 
