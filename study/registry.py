@@ -41,9 +41,11 @@ twofold.study.exceptions.InputError: field 'shape': got 'star'; accepted: one of
 from __future__ import annotations
 
 import contextlib
+import functools
 import importlib
+import sys
 from collections.abc import Callable, Iterator, Mapping
-from typing import Generic, TypeVar
+from typing import Any, Generic, TypeVar
 
 from ._check import fail
 from .exceptions import InputError
@@ -199,7 +201,14 @@ class Registry(Generic[T]):
         if self.group is None:
             return {}
         if self._plugins is None:
-            from importlib.metadata import entry_points
-
-            self._plugins = {ep.name: ep for ep in entry_points(group=self.group)}
+            points = _entry_points(tuple(sys.path)).select(group=self.group)
+            self._plugins = {ep.name: ep for ep in points}
         return self._plugins
+
+
+@functools.lru_cache(maxsize=4)
+def _entry_points(path: tuple[str, ...]) -> Any:
+    """Every installed entry point, read once per ``sys.path`` (one scan serves every group)."""
+    from importlib.metadata import entry_points
+
+    return entry_points()
