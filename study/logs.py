@@ -224,7 +224,7 @@ SESSION_FIELDS: tuple[SessionField, ...] = (
     SessionField("problem", "string", "why a session was marked incomplete"),
     # participants
     SessionField("form_list", "integer", "counterbalancing list of the form"),
-    SessionField("form_order", "string", "item order of the form"),
+    SessionField("form_order", "integer", "row of the block-order square the form uses"),
     SessionField("psychopy_version", "string", "PsychoPy version"),
     SessionField("python_version", "string", "Python version"),
     SessionField("platform", "string", "operating system"),

@@ -13,6 +13,7 @@ import time
 import pytest
 from _display import Driver, make_runner_study, play, x_display  # noqa: F401
 from twofold.study import load_study, read_sidecar, read_trials
+from twofold.study.exceptions import LogWarning
 
 pytestmark = pytest.mark.display
 
@@ -53,7 +54,7 @@ def test_sigkill_at_random_trials_then_resume(x_display, tmp_path):  # noqa: F81
         d.kill()
         kills += 1
         assert csv.exists()
-        trials = list(read_trials(csv)["trial"])
+        trials = list(read_trials(csv, torn="ignore")["trial"])  # a kill may tear a row
         assert len(trials) == len(set(trials)), trials  # no duplicates
         assert trials == list(range(len(trials)))  # in form order, no gaps
         assert confirmed <= set(trials)
@@ -75,3 +76,125 @@ def test_sigkill_at_random_trials_then_resume(x_display, tmp_path):  # noqa: F81
     assert side["status"] == "complete" and side["n_trials"] == 14
     assert len(side["interruptions"]) == kills
     assert all(i["previous_status"] == "running" for i in side["interruptions"])
+
+
+STAGED = """
+[bank.spec]
+seed = 6
+[bank.spec.families.matrices]
+n = 9
+modes = ["select"]
+
+[[blocks]]
+name = "figures"
+families = ["matrices"]
+mode = "select"
+instructions = "instructions.txt"
+practice = 1
+feedback = true
+
+[forms]
+order = "fixed"
+break_every = 3
+break_between_blocks = false
+"""
+
+
+def _advance_to(d, bank, screen: str, *, min_trials: int = 0) -> list[dict]:
+    """Play correctly until ``screen`` is on display with at least ``min_trials`` answered."""
+    answered: list[dict] = []
+    while True:
+        s = d.wait(None)
+        if s["screen"] == screen and len(answered) >= min_trials:
+            return answered
+        if s["screen"] == "consent":
+            d.key("y")
+        elif s["screen"] == "trial":
+            d.key(str(bank[s["item"]].answer_choice))
+            if s["trial"] is not None:
+                answered.append({"trial": s["trial"], "item": s["item"]})
+        elif s["screen"] == "end":
+            raise AssertionError(f"session ended before a {screen} screen ({answered})")
+        else:
+            d.key("space")
+
+
+def _check_log(csv, confirmed):
+    trials = list(read_trials(csv, torn="raise")["trial"]) if csv.exists() else []
+    assert len(trials) == len(set(trials)), trials  # nothing duplicated
+    assert trials == list(range(len(trials)))  # form order, no gaps
+    assert confirmed <= set(trials), (confirmed, trials)  # nothing finished is lost
+    frames = csv.parent / "frames" / f"{csv.stem}.frames.csv"
+    assert frames.read_text().startswith("trial,n_intervals,")  # header even after a kill
+    return trials
+
+
+def test_sigkill_at_every_stage_then_resume_and_analyse(x_display, tmp_path):  # noqa: F811
+    """Kill -9 on the consent, instructions, practice, trial, break and end screens, just
+    after an answer, and with the last row torn on disk; resume each time. Finally the study
+    is analysed with the frame-interval file in place."""
+    from twofold.analysis.data import load_study_data
+
+    st = load_study(make_runner_study(tmp_path / "study", STAGED, n_forms=2))
+    bank = st.bank()
+    csv = st.logs_dir / "human" / "P001.csv"
+    confirmed: set[int] = set()
+    # (screen to stop on, trials answered at least, what to do before the kill)
+    stops = [
+        ("consent", 0, None),
+        ("instructions", 0, None),
+        ("trial", 0, None),  # the practice item
+        ("trial", 1, None),
+        ("trial", 2, "answer"),  # answered, killed while the row is being written
+        ("break", 3, None),
+        ("trial", 5, "tear"),  # the last row torn on disk (power cut)
+        ("trial", 7, "unterminated"),  # the last row without its newline
+        ("end", None, None),
+    ]
+    from twofold.study.forms import form_for
+
+    n_total = sum(len(b.items) for b in form_for(st, "P001").blocks)  # 8: one is practice
+    n_kills = n_repairs = 0
+    for screen, at_least, act in stops:
+        at_least = n_total if at_least is None else at_least
+        done_before = len(read_trials(csv, torn="ignore")) if csv.exists() else 0
+        d = Driver(x_display, st.file, "P001", tmp_path, resume=csv.exists())
+        answered = _advance_to(d, bank, screen, min_trials=max(at_least - done_before, 0))
+        confirmed |= {a["trial"] for a in answered}  # each was followed by a new onset
+        if act == "answer" and d.state.get("trial") is not None:
+            d.key(str(bank[d.state["item"]].answer_choice))
+            time.sleep(0.01)
+        d.kill()
+        n_kills += 1
+        if act in ("tear", "unterminated"):
+            data = csv.read_bytes()
+            last = data.rstrip(b"\n").rsplit(b"\n", 1)[1]
+            cut = 1 if act == "unterminated" else len(last) // 2 + 1
+            csv.write_bytes(data[:-cut])
+            lost = int(last.split(b",")[8])  # the trial column of the torn row
+            confirmed.discard(lost)  # it is re-presented: torn rows were never complete
+            n_repairs += 1
+            with pytest.warns(LogWarning, match="cut short"):
+                read_trials(csv)
+        else:
+            _check_log(csv, confirmed)
+        assert read_sidecar(csv.with_suffix(".json"))["status"] == "running"
+    d = Driver(x_display, st.file, "P001", tmp_path, resume=True)
+    play(d, bank)
+    rc, err = d.finish()
+    assert rc == 0, err
+    assert n_kills >= 5
+    df = read_trials(csv, torn="raise")
+    assert list(df["trial"]) == list(range(n_total))
+    assert df["correct"].all()
+    side = read_sidecar(csv.with_suffix(".json"))
+    assert side["status"] == "complete" and side["n_trials"] == side["n_rows"] == n_total
+    assert len(side["interruptions"]) == n_kills
+    assert len(side["repairs"]) == n_repairs
+    frames = csv.parent / "frames" / "P001.frames.csv"
+    assert side["frames_file"] == "frames/P001.frames.csv" and frames.exists()
+    data = load_study_data(st)  # the analysis reads the session log and nothing else
+    assert list(data.sessions["session"]) == ["P001"]
+    assert data.sessions["status"].tolist() == ["complete"]
+    assert sorted(data.trials["trial"]) == list(range(n_total))
+    assert data.issues.empty

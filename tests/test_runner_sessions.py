@@ -52,7 +52,8 @@ def test_full_session_every_family_screen(x_display, study, tmp_path):  # noqa: 
     assert side["consent"] is True and side["practice_done"] == ["letters"]
     assert side["screen"]["size"] == [1024, 768] and side["refresh_hz"] > 0
     assert side["frames"]["n_intervals"] > 0 and "dropped_frames" in side
-    frames = pd.read_csv(st.logs_dir / "human" / "P001.frames.csv")
+    frames = pd.read_csv(st.logs_dir / "human" / "frames" / "P001.frames.csv")
+    assert side["frames_file"] == "frames/P001.frames.csv"
     assert list(frames["trial"]) == list(range(9))
     assert frames["n_intervals"].sum() == side["frames"]["n_intervals"]
     assert frames["dropped"].sum() == side["dropped_frames"]
