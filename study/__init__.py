@@ -1,7 +1,8 @@
 """twofold.study: what is presented. Items, families, banks, renderers, audits, the trial log."""
 
+from typing import Any as _Any
+
 from . import families
-from ._version import __version__ as __version__
 from .bank import Bank, bank_hash, load_bank, write_bank
 from .exceptions import (
     BankError,
@@ -51,3 +52,13 @@ __all__ = [
     "render_picture",
     "write_bank",
 ]
+
+
+def __getattr__(name: str) -> _Any:
+    # ``__version__`` is read from the package metadata on first use (importlib.metadata is slow
+    # to import); it is the one version of twofold.study, twofold.experiments and twofold.analysis
+    if name == "__version__":
+        from ._version import twofold_version
+
+        return twofold_version()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

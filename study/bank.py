@@ -17,7 +17,7 @@ from typing import Any
 
 from ._check import fail, parse_json
 from ._io import atomic_folder, read_json_lines
-from ._version import __version__
+from ._version import twofold_version
 from .exceptions import BankError, ItemError
 from .families import get_family
 from .item import Item, content_id
@@ -125,7 +125,7 @@ class Bank:
             "spec": spec or {},
             "generation": generation or {},
             "created": created,
-            "twofold_version": __version__,
+            "twofold_version": twofold_version(),
         }
         return cls(items=items, meta=meta)
 

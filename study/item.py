@@ -13,12 +13,13 @@ import json
 from collections.abc import Mapping
 from functools import lru_cache
 from importlib import resources
-from typing import Any
-
-import jsonschema
+from typing import TYPE_CHECKING, Any
 
 from ._check import fail
 from .exceptions import ItemError
+
+if TYPE_CHECKING:  # pragma: no cover
+    import jsonschema
 
 __all__ = [
     "MODES",
@@ -80,6 +81,8 @@ def item_schema() -> dict[str, Any]:
 
 @lru_cache(maxsize=1)
 def _validator() -> jsonschema.protocols.Validator:
+    import jsonschema  # loaded on first validation, not at ``import twofold.study``
+
     schema = item_schema()
     cls = jsonschema.validators.validator_for(schema)
     return cls(schema)
