@@ -65,7 +65,7 @@ OPTIONS: dict[str, tuple[Any, str]] = {
     "conf_level": (0.95, "a number between 0.5 and 1"),
     "n_boot": (2000, "an integer of at least 10"),
     "seed": (0, "a non-negative integer"),
-    "irt_model": ("2pl", "one of 1pl, 2pl, rasch"),
+    "irt_model": ("auto", "one of auto, 1pl, 2pl, rasch"),
     "min_items": (10, "a positive integer"),
     "synthetic": ("keep", "one of drop, keep, only"),
     "human_pairs": ("summary", "one of all, summary"),
@@ -80,7 +80,7 @@ def _ok(key: str, value: Any) -> bool:
         low = {"n_boot": 10, "seed": 0, "min_items": 1}[key]
         return isinstance(value, int) and not isinstance(value, bool) and value >= low
     if key == "irt_model":
-        return value in ("1pl", "2pl", "rasch")
+        return value in ("auto", "1pl", "2pl", "rasch")
     if key == "synthetic":
         return value in ("drop", "keep", "only")
     if key == "human_pairs":
@@ -148,12 +148,28 @@ class AnalysisRun:
     data: StudyData
 
 
+#: ``irt_model = "auto"`` fits one common slope (1PL) below this many human respondents and a
+#: slope per item (2PL) from it on: item slopes need a few hundred respondents to be estimated
+#: stably (common practice)
+IRT_2PL_MIN_RESPONDENTS = 200
+
+
+def irt_model_for(choice: str, n_respondents: int) -> str:
+    """The IRT model to fit: ``choice``, or for ``"auto"`` 1PL below
+    :data:`IRT_2PL_MIN_RESPONDENTS` human respondents and 2PL from there on."""
+    if choice != "auto":
+        return choice
+    return "2pl" if n_respondents >= IRT_2PL_MIN_RESPONDENTS else "1pl"
+
+
 def _irt(data: StudyData, opts: dict[str, Any]) -> tuple[dict[str, pd.DataFrame], Any]:
     trials = data.trials
-    if not (trials["kind"] == "human").any():
+    humans = trials["kind"] == "human"
+    if not humans.any():
         raise _Skip("no human respondents to calibrate the scale on")
+    model = irt_model_for(opts["irt_model"], int(trials.loc[humans, "respondent"].nunique()))
     try:
-        res = irt.score_on_human_scale(trials, model=opts["irt_model"], duplicates="first")
+        res = irt.score_on_human_scale(trials, model=model, duplicates="first")
     except InputError:
         raise
     except Exception as err:  # keep the other parts running if the IRT fit fails

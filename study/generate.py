@@ -274,6 +274,7 @@ def generate_family(
     ]
     for idx, params in enumerate(_design(fs, seed)):
         parent = None
+        duplicates_here = 0
         for attempt in range(MAX_ATTEMPTS):
             item_seed, rng = item_rng(seed, fs.family, idx, attempt)
             try:
@@ -291,9 +292,18 @@ def generate_family(
             cand = place_answer(cand, positions[idx], rng)
             if cand.id in seen:
                 rejections["duplicate"] += 1
+                duplicates_here += 1
                 continue
             parent = cand
             break
+        if parent is None and duplicates_here >= MAX_ATTEMPTS // 2:
+            made = sum(1 for it in items if it.variant_of is None)
+            raise GenerationError(
+                f"families.{fs.family}: n = {fs.n} asks for more items than these levels can "
+                f"make: after {made} distinct items, {duplicates_here} of {MAX_ATTEMPTS} "
+                f"attempts with params {params} repeated an item already made; lower n or add "
+                "levels."
+            )
         if parent is None:
             top = ", ".join(f"{r} ({c})" for r, c in rejections.most_common(3))
             raise GenerationError(

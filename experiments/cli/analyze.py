@@ -30,6 +30,14 @@ def analyze(
 
     parts = parse_parts(only)
     st = load_study(study)
+    if not st.bank_dir.exists():
+        from twofold.study.exceptions import SpecError
+
+        raise SpecError(
+            f"{st.bank_dir}: no bank yet, so nothing to analyze; collect sessions first "
+            f"(`twofold simulate {st.file}` or `twofold run ...` generate the bank from the "
+            f"spec); `twofold status {st.file}` shows the next step."
+        )
     with progress("analysing", len(parts)) as bar:
         run = analyze_study(
             st,

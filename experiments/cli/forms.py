@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 
@@ -29,7 +29,10 @@ def build(
     from twofold.study import load_study
     from twofold.study.forms import build_forms, write_forms
 
+    from .simulate import bank_notice
+
     study = load_study(study_file)
+    bank_notice(study)
     forms = build_forms(study, respondents)
     out = write_forms(study, forms)
     n_items = len(forms[0].item_ids())
@@ -40,16 +43,47 @@ def build(
 @forms_app.command("show")
 def show(
     study_file: Annotated[Path, typer.Argument(help="The study.toml (or its folder).")],
-    respondent: Annotated[str, typer.Argument(help="Respondent id, e.g. P001.")],
+    respondent: Annotated[
+        str, typer.Argument(help="Respondent id with a form (e.g. P001) or a form id (F001).")
+    ],
 ) -> None:
-    """Show the form assigned to a respondent (block order and item ids)."""
+    """Show a form in presentation order: its blocks, practice items and item ids by trial."""
     from twofold.study import load_study
-    from twofold.study.forms import form_for
+    from twofold.study.forms import form_for, load_forms
 
-    form = form_for(load_study(study_file), respondent, assign=False)
-    stdout.print(f"{respondent}: form {form.form_id} (list {form.list}, order {form.order})")
-    for b in form.blocks:
-        stdout.print(f"  {b.name} [{b.mode}] practice {len(b.practice)}, items {len(b.items)}")
+    study = load_study(study_file)
+    by_id = {f.form_id: f for f in load_forms(study)}
+    if respondent in by_id:
+        form, who = by_id[respondent], None
+    else:
+        form, who = form_for(study, respondent, assign=False), respondent
+    for line in form_lines(form, who):
+        stdout.print(line, markup=False, highlight=False)
+
+
+def form_lines(form: Any, who: str | None) -> list[str]:
+    """The lines of ``forms show``: header, then per block its practice ids and trials."""
+    n = len(form.item_ids())
+    lines = [
+        (f"{who}: " if who else "")
+        + f"form {form.form_id} (list {form.list}, block order {form.order}; "
+        f"{len(form.blocks)} blocks, {n} trials)"
+    ]
+    trial = 0
+    for k, b in enumerate(form.blocks, start=1):
+        lines.append(
+            f"block {k} {b.name} [{b.mode}]: {len(b.practice)} practice, {len(b.items)} items"
+        )
+        if b.practice:
+            lines.append("  practice: " + " ".join(b.practice))
+        for j, item_id in enumerate(b.items):
+            if j and form.break_every and j % form.break_every == 0:
+                lines.append("  -- break --")
+            lines.append(f"  trial {trial:>3}  {item_id}")
+            trial += 1
+        if form.break_between_blocks and k < len(form.blocks):
+            lines.append("  -- break --")
+    return lines
 
 
 @forms_app.command("templates")

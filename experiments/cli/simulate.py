@@ -3,11 +3,20 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 
 from ._console import console, progress, stdout
+
+__all__ = ["bank_notice"]
+
+
+def bank_notice(study: Any) -> None:
+    """Say (one line, stderr) that the bank is about to be generated because it is missing."""
+    if not study.bank_dir.exists():
+        spec = (study.table("bank") or {}).get("spec", "the [bank] spec")
+        console.print(f"no bank yet: generating it from {spec} into {study.bank_dir}", markup=False)
 
 
 def register(app: typer.Typer) -> None:
@@ -25,6 +34,7 @@ def simulate(
     from twofold.study import load_study
 
     study = load_study(study_file)
+    bank_notice(study)
     n = humans or SimulationSettings.from_table(study.table("simulate")).humans
     with progress("simulating respondents", n) as bar:
         out = simulate_humans(study, n=n, seed=seed, replace=replace, progress=bar.advance)
