@@ -67,7 +67,7 @@ from typing import TYPE_CHECKING, Any
 import httpx
 from twofold.experiments.solvers import Answer
 from twofold.study._check import fail
-from twofold.study.exceptions import InputError, SolverError, SpecError
+from twofold.study.exceptions import SolverError, SpecError
 from twofold.study.item import canonical_json
 
 from ._core import FreeText, TrialFailure, scrub
@@ -132,22 +132,20 @@ def prompt_sha256(system: str | None, user: str) -> str:
     return hashlib.sha256(canonical_json(body).encode("utf-8")).hexdigest()
 
 
-def check_prompt(
-    system: Any, user: Any, *, where: str, prefix: str = "", error: type[InputError] = SpecError
-) -> None:
+def check_prompt(system: Any, user: Any, *, where: str, prefix: str = "") -> None:
     """Check a prompt template: text, ``{view}`` exactly once in ``user`` and never in ``system``.
 
     Raises
     ------
-    InputError
-        ``error`` (default :class:`SpecError`), naming ``<prefix>system`` or ``<prefix>user``.
+    SpecError
+        Naming ``<prefix>system`` or ``<prefix>user``, what was found and what is accepted.
     """
     if system is not None and (not isinstance(system, str) or VIEW in system):
         accepted = "text without {view} (the view goes in the user text)"
-        raise fail(prefix + "system", system, accepted, where=where, error=error)
+        raise fail(prefix + "system", system, accepted, where=where, error=SpecError)
     if user is not None and (not isinstance(user, str) or user.count(VIEW) != 1):
         accepted = "text holding {view} exactly once, where the item's view goes"
-        raise fail(prefix + "user", user, accepted, where=where, error=error)
+        raise fail(prefix + "user", user, accepted, where=where, error=SpecError)
 
 
 def study_prompt(study: Any) -> dict[str, str]:
@@ -279,9 +277,10 @@ class ChatSolver:
         self.temperature = float(num("temperature", 0.0, 0.0, 10.0))
         self.max_tokens = int(num("max_tokens", 512, 1, 10_000_000, whole=True))
         self.system: str | None = opts.get("system")
-        check_prompt(
-            self.system, opts.get("user"), where=where, prefix="options.", error=SolverError
-        )
+        try:
+            check_prompt(self.system, opts.get("user"), where=where, prefix="options.")
+        except SpecError as err:
+            raise SolverError(str(err)) from None
         default = DEFAULT_PICTURE_USER if medium == "picture" else DEFAULT_USER
         self.user: str = opts.get("user") or default
         #: SHA-256 of the prompt template in force (see :func:`prompt_sha256`)
@@ -347,12 +346,12 @@ class ChatSolver:
         content: Any
         if isinstance(view, bytes):
             url = "data:image/png;base64," + base64.b64encode(view).decode("ascii")
-            parts = [
-                {"type": "text", "text": before},
-                {"type": "image_url", "image_url": {"url": url}},
-                {"type": "text", "text": after},
+            image = {"type": "image_url", "image_url": {"url": url}}
+            content = [
+                *([{"type": "text", "text": before}] if before.strip() else []),
+                image,
+                *([{"type": "text", "text": after}] if after.strip() else []),
             ]
-            content = [p for p in parts if p["type"] != "text" or p["text"].strip()]
         else:
             content = before + view + after
         messages.append({"role": "user", "content": content})

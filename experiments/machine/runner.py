@@ -514,6 +514,12 @@ def rebuild_session(path: Path, rows: Iterable[dict[str, Any]]) -> int:
     return n
 
 
+def _prompt_detail(solver: Any) -> dict[str, Any]:
+    """``prompt_sha256`` of a solver that wraps views in a prompt template (chat solvers)."""
+    sha = getattr(solver, "prompt_sha256", None)
+    return {} if sha is None else {"prompt_sha256": str(sha)}
+
+
 def _sidecar_base(
     study: Any, bank: Bank, spec: SolverSpec, seed: int, identity: str, solver: Any
 ) -> dict[str, Any]:
@@ -535,6 +541,8 @@ def _sidecar_base(
             "solver_version": None if version is None else str(version),
             "config_hash": identity,
             "solver_config": spec.config(),
+            "medium": spec.medium or getattr(solver, "medium", None),
+            **_prompt_detail(solver),
         },
     )
     run_state = ("status", "started", "ended", "n_trials", "interruptions")
@@ -741,6 +749,8 @@ def run_solvers(
 
     Raises
     ------
+    SpecError
+        The study's prompt template (``[machine.prompt]``) is malformed.
     SolverError
         A solver cannot be built (checked for every solver before anything is written).
     RunnerError
@@ -760,6 +770,11 @@ def run_solvers(
             f"solver name {dupes[0]!r} is used twice; give each solver its own name "
             "(name in [[solvers]], or --name with a single --solver)."
         )
+    # the study's prompt template ([machine.prompt]) reaches the chat solvers as default options
+    from .chat import study_prompt, with_study_prompt
+
+    prompt = study_prompt(study)
+    solvers = [with_study_prompt(s, prompt) for s in solvers]
     if bank is None:
         bank = study.bank()
     # build each solver's first session now: a bad spec or option fails before anything is
