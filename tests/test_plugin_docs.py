@@ -214,3 +214,37 @@ def test_readme_http_entry_and_prompt_are_accepted(tmp_path, monkeypatch):
         build_solver(spec)
     raw = tomllib.loads(block)
     assert "api_key" not in raw["solvers"][0]["options"]
+
+
+CHILD = r"""
+import json, sys
+for line in sys.stdin:
+    msg = json.loads(line)
+    if msg["type"] == "hello":
+        print(json.dumps({"protocol": "twofold-jsonl", "version": 1, "type": "hello",
+                          "medium": "structured", "options": msg["options"]}), flush=True)
+    else:
+        label, view = msg["medium"], msg["view"]
+        kind = type(view).__name__
+        print(json.dumps({"version": 1, "id": msg["id"], "answer": 1,
+                          "explanation": f"{label}:{kind}"}), flush=True)
+"""
+
+
+@pytest.mark.parametrize(
+    ("entry_medium", "expected"), [(None, "structured:dict"), ("text", "text:str")]
+)
+def test_entry_medium_reaches_a_command_child(tmp_path, entry_medium, expected):
+    from twofold.experiments.machine import run_solvers
+
+    (tmp_path / "child.py").write_text(CHILD, "utf-8")
+    (tmp_path / "study.toml").write_text(STUDY, "utf-8")
+    entry = {"spec": f"command:{sys.executable} {tmp_path / 'child.py'}", "name": "kid"}
+    if entry_medium:
+        entry["medium"] = entry_medium
+    study = load_study(tmp_path)
+    run_solvers(study, [parse_solver_entry(entry)])
+    df = read_trials(tmp_path / "logs" / "machine" / "kid-s0.csv")
+    # the label the child is told and the view it gets agree with the medium the entry chose
+    ok = df[df["status"] == "ok"]
+    assert len(ok) == (df["mode"] == "select").sum() > 0 and set(ok["detail"]) == {expected}

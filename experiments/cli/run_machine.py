@@ -35,8 +35,11 @@ def machine(
     solver: Annotated[
         list[str] | None,
         typer.Option(
-            help="Solver spec, or the name of a solvers entry of study.toml (repeatable); "
-            "default: every entry."
+            help="Solver spec: a built-in name, python:MODULE:FUNCTION (a solve(view, mode) "
+            "function or class; the current folder is importable), command:ARGV (a child "
+            "speaking JSON lines) or http:URL (a chat endpoint; --option model=NAME); or the "
+            "name of a solvers entry of study.toml (repeatable); default: every entry. See the "
+            "README section 'Plug in your model'."
         ),
     ] = None,
     seeds: Annotated[
@@ -69,7 +72,11 @@ def machine(
         ),
     ] = False,
 ) -> None:
-    """Run machine solvers over the study's bank; resumes from the trial cache."""
+    """Run machine solvers over the study's bank; resumes from the trial cache.
+
+    A python: solver is called as solve(view, mode) once per trial and returns the answer, a
+    dict with answer or text (plus effort, effort_unit, explanation) or an Answer.
+    """
     from twofold.experiments.machine import (
         import_answers,
         run_solvers,

@@ -30,12 +30,16 @@ def default_name(spec: str) -> str:
 
 
 def build(spec: SolverSpec, seed: int, where: str) -> Solver:
-    """Start the child and check its hello reply."""
+    """Start the child and check its hello reply.
+
+    The entry's ``medium`` reaches the child as the option ``medium`` (it overrides the child's).
+    """
     from ..command import CommandSolver
 
+    options = {**spec.options, "medium": spec.medium} if spec.medium else spec.options
     return CommandSolver(
         spec.spec[len(PREFIX) :],
-        options=spec.options,
+        options=options,
         seed=seed,
         timeout=spec.timeout,
         name=spec.name,
