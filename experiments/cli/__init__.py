@@ -29,7 +29,17 @@ app = typer.Typer(
 )
 
 # command modules, in the order of the help page: each defines `register(app)`
-_COMMANDS = ("items", "forms", "run", "simulate", "analyze", "report", "example", "new")
+_COMMANDS = (
+    "items",
+    "forms",
+    "run",
+    "simulate",
+    "analyze",
+    "report",
+    "status",
+    "example",
+    "new",
+)
 
 #: The command groups of ``twofold``: each entry is a ``register(app)`` function adding its
 #: commands to the typer app; plugins come through the ``twofold.commands`` entry-point group.
