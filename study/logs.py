@@ -201,7 +201,7 @@ class SessionField:
 
 
 SESSION_FIELDS: tuple[SessionField, ...] = (
-    SessionField("format", "string", "session record format", True, (SESSION_FORMAT,)),
+    SessionField("format", "string", "session record format", False, (SESSION_FORMAT,)),
     SessionField("study", "string", "study name", True),
     SessionField("bank_hash", "string", "SHA-256 of the bank the session ran on", True),
     SessionField("session", "string", "session id (the CSV file's stem)", True),
@@ -294,7 +294,7 @@ def check_session(
             _check_field(f, value, where=where)
     if not partial:
         for name in _CORE:
-            if name not in out and not (name == "format" and "columns" in out):
+            if name not in out:
                 raise fail(
                     name, None, f"{_a(_SESSION_BY_NAME[name].type)} (required)", where=where,
                     error=LogError,

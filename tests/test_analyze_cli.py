@@ -84,7 +84,7 @@ def test_unknown_analysis_option_in_the_study_file(registered, tmp_path, capsys)
     rc = main(["analyze", str(toy), "--only", "data"])
     assert rc == 2
     err = _flat(capsys.readouterr().err)
-    assert err.startswith("error: study.toml: [analysis]: field 'n_bootstrap': got 200; accepted:")
+    assert err.startswith("error: study.toml: field 'analysis.n_bootstrap': got 200; accepted:")
     toy.write_text(toy.read_text().replace("n_bootstrap = 200", "n_boot = 200"))
     with pytest.raises(SpecError, match="field 'conf_level': got 2"):
         analyze_study(toy, parts="data", conf_level=2)

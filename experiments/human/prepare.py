@@ -219,7 +219,8 @@ def prepare_session(
     previous: dict[str, Any] = {}
     done: set[int] = set()
     if side.exists() or csv_path.exists():
-        previous = read_sidecar(side) if side.exists() else {"status": "failed"}
+        # partial: the runner rewrites the whole record when the session goes on
+        previous = read_sidecar(side, partial=True) if side.exists() else {"status": "failed"}
         status = previous.get("status")
         if not resume:
             raise RunnerError(
