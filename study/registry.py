@@ -123,7 +123,9 @@ class Registry(Generic[T]):
     def unregister(self, name: str) -> T | None:
         """Remove a registered entry and return it (None if it was not loaded).
 
-        A built-in or plugin name stays known and loads again on the next :meth:`get`.
+        The name stays known when it is a built-in or a plugin; a ``module:attribute`` built-in
+        or a plugin object is registered again on the next :meth:`get` (a module that registers
+        itself on import is not imported twice: use :meth:`registered` to swap such an entry).
         """
         return self._entries.pop(name, None)
 
