@@ -15,9 +15,9 @@ from collections.abc import Iterable, Iterator
 from pathlib import Path
 from typing import Any
 
-from ._check import fail, parse_json
 from ._io import atomic_folder, read_json_lines
 from ._version import twofold_version
+from .checks import fail, parse_json
 from .exceptions import BankError, ItemError
 from .families import get_family
 from .item import Item, content_id
@@ -27,6 +27,29 @@ __all__ = ["BANK_FORMAT", "Bank", "bank_hash", "load_bank", "write_bank"]
 BANK_FORMAT = "twofold-bank/1"
 ITEMS_FILE = "items.jsonl"
 META_FILE = "bank.json"
+
+
+def _validated_marker(content_hash: str, versions: dict[str, str]) -> Path:
+    """Where a bank whose items passed every family check is remembered.
+
+    ``$TWOFOLD_CACHE_DIR``, else ``$XDG_CACHE_HOME/twofold``, else ``~/.cache/twofold``; the
+    name joins the items' content hash with the family versions and the twofold version.
+    """
+    base = os.environ.get("TWOFOLD_CACHE_DIR")
+    if not base:
+        xdg = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+        base = os.path.join(xdg, "twofold")
+    key = json.dumps([content_hash, sorted(versions.items()), twofold_version()])
+    digest = hashlib.sha256(key.encode()).hexdigest()[:32]
+    return Path(base) / "checked-banks" / digest
+
+
+def _touch(marker: Path) -> None:
+    try:
+        marker.parent.mkdir(parents=True, exist_ok=True)
+        marker.touch()
+    except OSError:  # a read-only home only costs the checks next time
+        pass
 
 
 def bank_hash(items: Iterable[Item]) -> str:
@@ -189,6 +212,7 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
         got = meta.get("format") if isinstance(meta, dict) else meta
         raise fail("format", got, BANK_FORMAT, where=META_FILE, error=BankError)
     items: list[Item] = []
+    checks: list[tuple[Item, str, Any]] = []
     seen: dict[str, int] = {}
     for lineno, where, rec in read_json_lines(items_path, name=ITEMS_FILE, error=ItemError):
         item = Item.from_record(rec, where=where)
@@ -202,7 +226,7 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
                     where=where,
                     error=ItemError,
                 )
-            fam.validate_item(item, where=where)
+            checks.append((item, where, fam))
         if item.id in seen:
             raise BankError(
                 f"{where}: item id {item.id} already on line {seen[item.id]}.",
@@ -211,6 +235,17 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
             )
         seen[item.id] = lineno
         items.append(item)
+    actual = bank_hash(items) if items else ""
+    if checks:
+        # The family checks (rendering, scoring, the generator's validity checks) cost up to a
+        # few ms an item; they are remembered per bank content and family versions, so a bank
+        # is checked in full once per machine, and again whenever a byte of an item changes.
+        versions = {fam.name: fam.version for _, _, fam in checks}
+        marker = _validated_marker(actual, versions)
+        if not marker.exists():
+            for item, where, fam in checks:
+                fam.validate_item(item, where=where, deep=True)
+            _touch(marker)
     if not items:
         raise BankError(
             f"{ITEMS_FILE}: field 'items': got 0 items; accepted: a bank of at least one item "
@@ -218,7 +253,6 @@ def load_bank(path: str | os.PathLike[str], *, check_families: bool = True) -> B
             where=ITEMS_FILE,
             field="items",
         )
-    actual = bank_hash(items)
     if meta.get("bank_hash") != actual:
         raise BankError(
             f"{META_FILE}: field 'bank_hash': got {meta.get('bank_hash')!r}; the items "

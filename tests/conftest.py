@@ -14,6 +14,8 @@ os.environ["HOME"] = _HOME
 os.environ.setdefault("MPLCONFIGDIR", os.path.join(_HOME, "mpl"))
 os.environ["MPLBACKEND"] = "Agg"
 os.environ["PSYCHOPYNOPACKAGES"] = "1"
+# banks whose items passed the family checks are remembered here (see twofold.study.bank)
+os.environ["TWOFOLD_CACHE_DIR"] = os.path.join(_HOME, "cache")
 
 import matplotlib  # noqa: E402
 

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any, ClassVar, Literal
 
 import numpy as np
 
-from .._check import fail
+from ..checks import fail
 from ..exceptions import ResponseError, SpecError
 from ..item import Item, canonical_json
 
@@ -219,20 +219,22 @@ class Family(abc.ABC):
         """Re-run the validity checks on a stored item; return problems (empty when valid)."""
         return []
 
-    def validate_item(self, item: Item, *, where: str | None = None) -> None:
+    def validate_item(self, item: Item, *, where: str | None = None, deep: bool = False) -> None:
         """Check that a stored item is usable before anything else touches it.
 
-        Runs on every item :func:`~twofold.study.bank.load_bank` reads: the family's own
-        :meth:`check`, the text and structured renderings in each of the item's modes, and the
-        scoring of its answer (which must score correct) and of one typical wrong response. A
-        family whose stimulus needs more (a scene drawn for participants) overrides this and
-        calls ``super().validate_item``. Any failure becomes one :class:`ItemError`.
+        Runs on every item :func:`~twofold.study.bank.load_bank` reads: the text and structured
+        renderings in each of the item's modes, and the scoring of its answer (which must score
+        correct) and of one typical wrong response. With ``deep=True`` the family's own
+        :meth:`check` (the generator's validity checks, e.g. answer uniqueness by search) runs
+        first; that costs milliseconds per item, so loading leaves it to the audit. A family
+        whose stimulus needs more (a scene drawn for participants) overrides this and calls
+        ``super().validate_item``. Any failure becomes one :class:`ItemError`.
         """
         from ..exceptions import ItemError
 
         prefix = f"{where}: " if where else ""
         try:
-            problems = list(self.check(item))
+            problems = list(self.check(item)) if deep else []
             for mode in item.modes:
                 self.render_text(item, mode)
                 self.render_structured(item, mode)
