@@ -14,7 +14,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 from scipy import special, stats
-from twofold.study._check import check_choice, check_int, check_number, fail
+from twofold.study.checks import check_choice, check_int, check_number, fail
 from twofold.study.exceptions import DegenerateWarning
 
 __all__ = [

@@ -13,7 +13,7 @@ from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
-from twofold.study._check import check_choice
+from twofold.study.checks import check_choice
 from twofold.study.exceptions import DegenerateWarning
 
 from ._ranks import STATISTICS, bootstrap_ci, corr_p

@@ -52,8 +52,8 @@ from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
-from twofold.study._check import check_choice, fail
 from twofold.study.bank import Bank
+from twofold.study.checks import check_choice, fail
 from twofold.study.exceptions import InputError, LogError, LogWarning
 from twofold.study.logs import TRIAL_COLUMNS, read_sidecar, read_trials, write_json_atomic
 from twofold.study.studyfile import Study, load_study

@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from scipy import stats
-from twofold.study._check import check_int, check_number
+from twofold.study.checks import check_int, check_number
 from twofold.study.exceptions import DegenerateWarning
 
 from .data import check_columns, scored

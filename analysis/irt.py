@@ -43,7 +43,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from scipy.special import expit
-from twofold.study._check import check_choice, check_int, check_number, fail
+from twofold.study.checks import check_choice, check_int, check_number, fail
 from twofold.study.exceptions import ConvergenceWarning, DegenerateWarning, InputError
 
 from . import _quadrature as _q

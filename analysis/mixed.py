@@ -30,7 +30,7 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 from scipy import sparse, stats
-from twofold.study._check import check_choice, check_number, fail
+from twofold.study.checks import check_choice, check_number, fail
 from twofold.study.exceptions import ConvergenceWarning, DegenerateWarning, InputError
 
 from .data import check_columns, factor_columns, scored

@@ -24,7 +24,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from twofold.study._check import check_choice, check_number
+from twofold.study.checks import check_choice, check_number
 from twofold.study.exceptions import DegenerateWarning
 
 from .data import check_columns, scored

@@ -26,7 +26,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from scipy.special import expit
-from twofold.study._check import check_int, check_number, fail
+from twofold.study.checks import check_int, check_number, fail
 
 from ._ranks import spearman_rows
 from .irt import IRTResult, fit_irt, response_matrix

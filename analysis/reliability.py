@@ -10,7 +10,7 @@ import warnings
 
 import numpy as np
 import pandas as pd
-from twofold.study._check import check_int, check_number
+from twofold.study.checks import check_int, check_number
 from twofold.study.exceptions import DegenerateWarning
 
 from ._ranks import spearman_rows

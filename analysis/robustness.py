@@ -7,7 +7,7 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 from scipy import stats
-from twofold.study._check import check_choice, check_number
+from twofold.study.checks import check_choice, check_number
 from twofold.study.exceptions import InputError
 
 from .data import check_columns, scored

@@ -38,7 +38,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from twofold.study._check import check_keys, fail
+from twofold.study.checks import check_keys, fail
 from twofold.study.exceptions import InputError, SpecError, TwofoldWarning
 from twofold.study.logs import write_json_atomic
 from twofold.study.studyfile import Study, load_study

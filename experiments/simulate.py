@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 from twofold.study import Bank, Study
-from twofold.study._check import check_int, check_keys, check_number
+from twofold.study.checks import check_int, check_keys, check_number
 from twofold.study.exceptions import SpecError
 from twofold.study.families import Rejected, get_family
 from twofold.study.generate import item_rng

@@ -15,7 +15,7 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import IO, Any
 
-from ._check import parse_json
+from .checks import parse_json
 from .exceptions import InputError
 
 __all__ = ["atomic_file", "atomic_folder", "read_json_lines"]

@@ -52,7 +52,7 @@ from typing import Any
 
 import numpy as np
 
-from ._check import check_choice, check_int, check_keys, check_number, fail
+from .checks import check_choice, check_int, check_keys, check_number, fail
 from .exceptions import SpecError
 from .families import known_families
 from .item import MODES, Item

@@ -31,8 +31,8 @@ from typing import Any
 
 import numpy as np
 
-from ._check import check_choice, check_int, fail
 from .bank import Bank
+from .checks import check_choice, check_int, fail
 from .exceptions import GenerationError, SpecError
 from .families import Family, Rejected, get_family
 from .item import MODES, Item

@@ -15,7 +15,7 @@ from functools import lru_cache
 from importlib import resources
 from typing import TYPE_CHECKING, Any
 
-from ._check import fail
+from .checks import fail
 from .exceptions import ItemError
 
 if TYPE_CHECKING:  # pragma: no cover

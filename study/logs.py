@@ -37,8 +37,8 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any, Literal
 
-from ._check import describe, fail
 from ._io import atomic_file
+from .checks import describe, fail
 from .exceptions import LogError, LogWarning
 from .item import canonical_json
 

@@ -47,7 +47,7 @@ import sys
 from collections.abc import Callable, Iterator, Mapping
 from typing import Any, Generic, TypeVar
 
-from ._check import fail
+from .checks import fail
 from .exceptions import InputError
 
 __all__ = ["Registry"]

@@ -9,7 +9,7 @@ from __future__ import annotations
 import io
 from typing import Any, Literal
 
-from ._check import check_choice
+from .checks import check_choice
 from .exceptions import InputError
 from .families import get_family
 from .item import MODES, Item

@@ -27,8 +27,8 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
 
-from ._check import check_int, fail
 from .bank import Bank, load_bank, write_bank
+from .checks import check_int, fail
 from .exceptions import SpecError
 from .generate import GenerationSpec, generate_bank, load_spec, parse_spec
 

@@ -9,8 +9,8 @@ from __future__ import annotations
 import os
 from typing import Any
 
-from ._check import check_choice
 from .bank import Bank, load_bank
+from .checks import check_choice
 from .exceptions import SpecError
 from .families import Rejected, get_family, known_families
 from .generate import item_rng

@@ -56,7 +56,7 @@ def show(
 ) -> None:
     """Show one item as a text prompt, a picture (PNG/SVG) or structured JSON."""
     from twofold.study import load_bank, render, render_picture
-    from twofold.study._check import check_choice
+    from twofold.study.checks import check_choice
     from twofold.study.item import canonical_json
 
     check_choice("--as", as_, ("text", "picture", "structured"))

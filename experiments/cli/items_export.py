@@ -23,7 +23,7 @@ def export(
     """Write every item (each mode) as prompts, pictures or views, with a manifest."""
     from twofold.experiments.machine import export_items
     from twofold.study import load_bank
-    from twofold.study._check import check_choice
+    from twofold.study.checks import check_choice
 
     check_choice("--as", as_, ("text", "picture", "structured"))
     bank = load_bank(bank_dir)

@@ -12,7 +12,7 @@ from ._console import console, progress, stdout
 
 
 def _options(pairs: list[str]) -> dict[str, object]:
-    from twofold.study._check import fail
+    from twofold.study.checks import fail
 
     out: dict[str, object] = {}
     for pair in pairs:
@@ -84,7 +84,7 @@ def machine(
         study_solvers,
     )
     from twofold.study import load_study
-    from twofold.study._check import check_int, check_number, fail
+    from twofold.study.checks import check_int, check_number, fail
 
     study = load_study(study_toml)
     if import_ is not None:

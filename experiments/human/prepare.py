@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from twofold.study import load_study
-from twofold.study._check import check_choice, check_int, check_keys, fail
+from twofold.study.checks import check_choice, check_int, check_keys, fail
 from twofold.study.exceptions import RunnerError, SpecError
 from twofold.study.forms import Form, form_for, parse_blocks, parse_forms
 from twofold.study.logs import read_sidecar, read_trials

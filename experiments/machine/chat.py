@@ -66,7 +66,7 @@ from typing import TYPE_CHECKING, Any
 
 import httpx
 from twofold.experiments.solvers import Answer
-from twofold.study._check import fail
+from twofold.study.checks import fail
 from twofold.study.exceptions import SolverError, SpecError
 from twofold.study.item import canonical_json
 

@@ -32,9 +32,9 @@ from pathlib import Path
 from typing import Any
 
 from twofold.study import __version__
-from twofold.study._check import check_choice, fail
 from twofold.study._io import atomic_folder, read_json_lines
 from twofold.study.bank import Bank
+from twofold.study.checks import check_choice, fail
 from twofold.study.exceptions import InputError
 from twofold.study.families import get_family
 from twofold.study.logs import SessionRecord, read_sidecar, session_id, write_session

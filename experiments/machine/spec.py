@@ -32,7 +32,7 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 from twofold.experiments.solvers import Solver, builtin_solvers, make_builtin
-from twofold.study._check import check_choice, check_number, fail
+from twofold.study.checks import check_choice, check_number, fail
 from twofold.study.exceptions import InputError, SolverError, SpecError
 from twofold.study.item import MODES, canonical_json
 from twofold.study.render import MEDIA

@@ -14,7 +14,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
-from twofold.study._check import check_choice, check_int
+from twofold.study.checks import check_choice, check_int
 from twofold.study.exceptions import InputError
 from twofold.study.families.grids import SearchResult, describe_program, search
 

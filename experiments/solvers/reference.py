@@ -11,7 +11,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
-from twofold.study._check import fail
+from twofold.study.checks import fail
 from twofold.study.exceptions import InputError
 from twofold.study.families import get_family, known_families
 

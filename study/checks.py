@@ -1,4 +1,33 @@
-"""One helper and one message template for checking input at public boundaries."""
+"""Checks of user input at public boundaries, and the one message they all use.
+
+Every error about bad input in twofold reads the same way, whoever raises it::
+
+    <where>: field '<field>': got <value>; accepted: <what is accepted>.
+
+for example ``items.jsonl line 17: field 'family': got 'matrix'; accepted: one of contrast,
+grids, matrices, strings.`` ``where`` names the file, line, table or object (left out when the
+caller has no place to name); ``field`` the parameter, key or column; the received value is
+shown shortened (:func:`describe`); ``accepted`` says in words what would have been fine.
+
+:func:`message` builds that text and :func:`fail` wraps it in an error class from
+:mod:`twofold.study.exceptions` (an :class:`~twofold.study.exceptions.InputError` or one of its
+subclasses) carrying ``where`` and ``field`` as attributes. The ``check_*`` helpers check one
+kind of value and raise such an error; :func:`parse_json` reads strict JSON with errors in the
+same words. Plugins (a lab's own family, solver or adapter) use them to speak like the rest of
+twofold.
+
+Examples
+--------
+>>> from twofold.study.checks import check_int, message
+>>> message("seeds", 0, "an integer from 1 to 1000", where="study.toml: solvers[0]")
+"study.toml: solvers[0]: field 'seeds': got 0; accepted: an integer from 1 to 1000."
+>>> check_int("n", 3, low=1)
+3
+>>> check_int("n", 0, low=1)
+Traceback (most recent call last):
+...
+twofold.study.exceptions.InputError: field 'n': got 0; accepted: an integer from 1 to inf.
+"""
 
 from __future__ import annotations
 
@@ -8,17 +37,43 @@ from typing import Any
 
 from .exceptions import InputError
 
+__all__ = [
+    "MAX_DEPTH",
+    "check_choice",
+    "check_int",
+    "check_keys",
+    "check_number",
+    "describe",
+    "fail",
+    "message",
+    "parse_json",
+]
+
 
 def describe(value: Any) -> str:
-    """Short printable form of a received value for error messages."""
+    """Short printable form of a received value: its ``repr``, cut to 60 characters."""
     text = repr(value)
     return text if len(text) <= 60 else text[:57] + "..."
 
 
 def message(field: str, got: Any, accepted: str, *, where: str | None = None) -> str:
-    """Build the one error message template used across twofold.
+    """Build the one error message used across twofold.
 
-    ``<where>: field '<field>': got <value>; accepted: <accepted>.``
+    Parameters
+    ----------
+    field : str
+        The parameter, key or column at fault.
+    got : Any
+        The value received (shown through :func:`describe`).
+    accepted : str
+        What would have been accepted, in words (no final full stop).
+    where : str, optional
+        The place: a file, ``"<file> line <n>"``, a table or an object name.
+
+    Returns
+    -------
+    str
+        ``<where>: field '<field>': got <value>; accepted: <accepted>.``
     """
     prefix = f"{where}: " if where else ""
     return f"{prefix}field '{field}': got {describe(got)}; accepted: {accepted}."
@@ -32,7 +87,21 @@ def fail(
     where: str | None = None,
     error: type[InputError] = InputError,
 ) -> InputError:
-    """Return (for ``raise``) an error built from the common template."""
+    """The error to raise for a bad value: ``raise fail("n", n, "a positive integer")``.
+
+    Parameters
+    ----------
+    field, got, accepted, where
+        As for :func:`message`.
+    error : type, default InputError
+        The class to build: :class:`~twofold.study.exceptions.InputError` or a subclass
+        (``SpecError``, ``ItemError``...). It receives the message, ``where`` and ``field``.
+
+    Returns
+    -------
+    InputError
+        Not raised here, so the caller's ``raise`` shows where the check failed.
+    """
     return error(message(field, got, accepted, where=where), where=where, field=field)
 
 
@@ -44,7 +113,10 @@ def check_choice(
     where: str | None = None,
     error: type[InputError] = InputError,
 ) -> Any:
-    """Check that ``value`` is one of ``options`` and return it."""
+    """Check that ``value`` is one of ``options`` and return it.
+
+    The message lists the options sorted by their text (``accepted: one of a, b, c``).
+    """
     opts = list(options)
     if value not in opts:
         accepted = "one of " + ", ".join(str(o) for o in sorted(opts, key=str))
