@@ -20,10 +20,12 @@ and ending in ``_data.csv``); values keep only letters and digits (``strings-ref
 
 from __future__ import annotations
 
+import json
 import re
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 from twofold.study._io import atomic_folder
 from twofold.study.exceptions import InputError
@@ -112,20 +114,27 @@ def trials_table_schema(trials: pd.DataFrame) -> dict[str, Any]:
 
 
 def _csv_frame(df: pd.DataFrame, schema: dict[str, Any]) -> pd.DataFrame:
-    out = df.copy()
+    """Every column as the text the table schema promises (missing values as empty cells).
+
+    Vectorised per column: booleans ``true``/``false``, integers without a decimal point,
+    numbers as the shortest text that reads back to the same float (``repr``), the rest as text.
+    """
+    out = pd.DataFrame(index=df.index)
     for f in schema["fields"]:
         col = f["name"]
-        s = out[col]
+        s = df[col]
+        na = s.isna().to_numpy()
+        text = np.full(len(s), "", dtype=object)
+        ok = ~na
         if f["type"] == "boolean":
-            out[col] = s.map(lambda v: "" if pd.isna(v) else ("true" if bool(v) else "false"))
+            text[ok] = np.where(s[ok].astype(bool).to_numpy(), "true", "false")
         elif f["type"] == "integer":
-            out[col] = s.map(lambda v: "" if pd.isna(v) else str(int(v)))
+            text[ok] = s[ok].astype("int64").astype(str).to_numpy()
         elif f["type"] == "number":
-            out[col] = s.map(lambda v: "" if pd.isna(v) else repr(float(v)))
+            text[ok] = [repr(float(v)) for v in s[ok].to_numpy(dtype=float)]
         else:
-            out[col] = s.map(
-                lambda v: "" if v is None or (not isinstance(v, str) and pd.isna(v)) else str(v)
-            )
+            text[ok] = [str(v) for v in s[ok].to_numpy(dtype=object)]
+        out[col] = text
     return out
 
 
@@ -199,8 +208,14 @@ def _write(
     write_json_atomic(root / "trials.schema.json", schema)
     resources: list[dict[str, Any]] = []
 
-    def add(df: pd.DataFrame, rel: str, sch: dict[str, Any], title: str) -> None:
-        _write_csv(df, sch, root / rel)
+    def add(
+        df: pd.DataFrame, rel: str, sch: dict[str, Any], title: str, *, text: bool = False
+    ) -> None:
+        # ``text``: ``df`` is already the schema's text (see _csv_frame), so it is written as is
+        if text:
+            df.to_csv(root / rel, index=False, lineterminator="\n", encoding="utf-8")
+        else:
+            _write_csv(df, sch, root / rel)
         resources.append(
             {
                 "name": re.sub(r"[^a-z0-9._-]", "-", Path(rel).stem.lower()),
@@ -214,11 +229,14 @@ def _write(
             }
         )
 
-    add(trials, f"data/study-{name}_table-trials_data.csv", schema, "every trial")
+    as_text = _csv_frame(trials, schema)  # converted once, sliced per session below
+    add(as_text, f"data/study-{name}_table-trials_data.csv", schema, "every trial", text=True)
     items = item_table(data.bank)
     add(items, f"data/study-{name}_table-items_data.csv", trials_table_schema(items), "items")
     used: set[str] = set()
-    for (kind, session), sub in trials.groupby(["kind", "session"], sort=True):
+    groups = trials.groupby(["kind", "session"], sort=True).indices
+    for (kind, session), rows in sorted(groups.items()):
+        sub = trials.iloc[rows]
         val = _value(session)
         k = 2
         while (kind, val) in used:
@@ -226,14 +244,17 @@ def _write(
             k += 1
         used.add((kind, val))  # type: ignore[arg-type]
         stem = f"study-{name}_kind-{_value(kind)}_respondent-{val}_data"
-        add(sub, f"data/{stem}.csv", schema, f"session {session}")
+        add(as_text.iloc[rows], f"data/{stem}.csv", schema, f"session {session}", text=True)
         src = sub["source"].iloc[0] if "source" in sub.columns else None
         if logs_dir is not None and src:
             side_path = Path(logs_dir) / Path(str(src)).with_suffix(".json")
             if side_path.exists():
                 side = read_sidecar(side_path)
                 side["data_file"] = f"{stem}.csv"
-                write_json_atomic(root / "data" / f"{stem}.json", side)
+                # inside the export's temporary folder, which becomes the export atomically
+                with open(root / "data" / f"{stem}.json", "w", encoding="utf-8") as fh:
+                    json.dump(side, fh, indent=2, ensure_ascii=False, default=str)
+                    fh.write("\n")
     variables = [
         {"@type": "PropertyValue", "name": f["name"], "description": f["description"]}
         for f in schema["fields"]
