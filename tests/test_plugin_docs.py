@@ -82,12 +82,13 @@ def study_dir(tmp_path: Path) -> Path:
     return folder
 
 
-def test_readme_python_example_runs_as_written(study_dir):
+@pytest.mark.parametrize("extra", ["", " --workers 2"], ids=["as-written", "worker-processes"])
+def test_readme_python_example_runs_as_written(study_dir, extra):
     (code,) = _blocks("python")
     assert len([ln for ln in code.splitlines() if ln.strip()]) <= 10  # "a ten-line example"
     (command,) = [ln for block in _blocks("console") for ln in block.splitlines() if ln.strip()]
     (study_dir / "my_model.py").write_text(code, "utf-8")
-    res = _run(command, study_dir)
+    res = _run(command + extra, study_dir)
     assert res.returncode == 0, res.stderr
     df = read_trials(study_dir / "logs" / "machine" / "solve-s0.csv")
     bank = load_study(study_dir).bank(create=False)
