@@ -249,3 +249,39 @@ def test_entry_medium_reaches_a_command_child(tmp_path, entry_medium, expected):
     # the label the child is told and the view it gets agree with the medium the entry chose
     ok = df[df["status"] == "ok"]
     assert len(ok) == (df["mode"] == "select").sum() > 0 and set(ok["detail"]) == {expected}
+
+
+def test_readme_view_and_answer_forms_hold_for_every_family():
+    from twofold.study.families import get_family, known_families
+    from twofold.study.generate import generate_bank, parse_spec
+    from twofold.study.render import render
+
+    families = sorted(known_families())
+    spec = parse_spec(
+        {"seed": 9, "families": {f: {"n": 1, "modes": ["generate", "select"]} for f in families}},
+        where="test",
+    )
+    for item in generate_bank(spec):
+        fam = get_family(item.family)
+        # select mode: the structured view carries the options; a choice number from 1, or
+        # for contrast one letter A or B per test panel
+        view = render(item, "structured", "select")
+        if item.family == "contrast":
+            assert view["choices"] == ["A", "B"]
+            labels = item.answer["labels"]
+            assert set(labels) <= {"A", "B"}
+            assert fam.score(item, fam.normalize(item, labels, "select"), "select").correct
+        else:
+            assert len(view["choices"]) == len(item.choices) >= 2
+            k = item.choices.index(item.answer) + 1
+            assert fam.score(item, fam.normalize(item, k, "select"), "select").correct
+        # generate mode: the README names the answer form of strings and grids
+        if item.family == "strings":
+            assert isinstance(item.answer, str)
+        if item.family == "grids":
+            assert isinstance(item.answer, list) and all(isinstance(r, list) for r in item.answer)
+        if item.family == "contrast":
+            rule = item.answer["rule"]
+            assert fam.score(item, fam.normalize(item, rule, "generate"), "generate").correct
+        assert isinstance(render(item, "text", "generate"), str)
+        assert render(item, "picture", "select")[:8] == b"\x89PNG\r\n\x1a\n"
