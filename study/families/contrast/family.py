@@ -1,5 +1,6 @@
-"""The ``contrast`` family class: parameters, generation, variants, scoring and rendering
-as text."""
+"""The ``contrast`` family class: parameters, generation, checks, scoring, reading replies and
+rendering as text. Its other parts are mixins: :mod:`.assembly` (items around a rule),
+:mod:`.variants`, :mod:`.errors` (error types) and :mod:`.drawing` (pictures)."""
 
 from __future__ import annotations
 
@@ -12,31 +13,24 @@ import numpy as np
 from ...exceptions import ResponseError, SpecError
 from ...item import Item
 from .._base import Family, ParamSpec, Rejected, Score
-from .drawing import ContrastDrawing, _hosts_first
-from .enumeration import _leaf_truth, _lit_rule, _pack, rule_vector
+from .assembly import ContrastAssembly
+from .drawing import ContrastDrawing
+from .enumeration import rule_vector
 from .errors import ContrastErrors
-from .evaluation import _obj_code, _obj_dict, panels_from_stimulus
+from .evaluation import _obj_dict, panels_from_stimulus
 from .generation import (
-    _REPAIRS,
-    _atoms_of,
-    _build_panel,
     _check_length,
     _Ctx,
-    _discriminating,
     _Fail,
     _labels,
     _make_rule,
-    _near_miss,
-    _relations_of,
     _template_ok,
     _validity,
     relevant_attributes,
 )
 from .notation import (
     _EXAMPLE_RULE,
-    ATOM_INDEX,
     ATOM_NAME,
-    ATOMS,
     ATTRIBUTES,
     CARD,
     COL,
@@ -47,20 +41,16 @@ from .notation import (
     RULE_ATTRS,
     SIZE,
     VALUES,
-    Rule,
     _canon,
     _example_labels,
-    _map_atoms,
-    _mirror_rule,
-    _negate,
     _rule_in,
     format_rule,
     parse_rule,
-    rule_length,
 )
+from .variants import ContrastVariants
 
 
-class ContrastFamily(ContrastErrors, ContrastDrawing, Family):
+class ContrastFamily(ContrastVariants, ContrastAssembly, ContrastErrors, ContrastDrawing, Family):
     """Two sets of panels split by a hidden rule; classify test panels or state the rule."""
 
     name = "contrast"
@@ -193,264 +183,6 @@ class ContrastFamily(ContrastErrors, ContrastDrawing, Family):
             relational=k_kind == "relational",
             distractors=len(varied - used - {"position"}),
             minimal=bool(p["minimal"]),
-        )
-
-    def _assemble(
-        self,
-        rule: Rule,
-        ctx: _Ctx,
-        p: Mapping[str, Any],
-        *,
-        seed: int,
-        modes: Sequence[str],
-        k_attr: str,
-        relational: bool,
-        distractors: int,
-        minimal: bool,
-    ) -> Item:
-        per, n_test = int(p["per_set"]), int(p["n_test"])
-        set_a = [_build_panel(rule, True, ctx) for _ in range(per)]
-        set_b = [
-            (_near_miss(rule, ctx) if k % 2 == 0 else _build_panel(rule, False, ctx))
-            for k in range(per)
-        ]
-        n_a_test = int(ctx.rng.integers(1, n_test))
-        tests = [_build_panel(rule, True, ctx) for _ in range(n_a_test)]
-        tests += [
-            (_near_miss(rule, ctx) if k % 2 == 0 else _build_panel(rule, False, ctx))
-            for k in range(n_test - n_a_test)
-        ]
-        order = ctx.rng.permutation(n_test)
-        tests = [tests[int(i)] for i in order]
-        # every panel was built and checked to be `want`: the rule's truth vector is known
-        truth = (1 << per) - 1
-        for k, i in enumerate(order):
-            if int(i) < n_a_test:
-                truth |= 1 << (2 * per + k)
-        # repair: where another rule also separates the sets, swap in a training panel on which
-        # the two disagree, then check again (items still failing are rejected)
-        checked = None
-        kept: set[tuple[bool, int]] = set()  # panels swapped in by earlier repairs stay
-        table = _leaf_truth([*set_a, *set_b, *tests])  # rows of swapped panels are redone
-        changed: list[int] = []
-        for _ in range(_REPAIRS + 2 * rule_length(rule) + 1):
-            if changed:
-                rows = sorted(set(changed))
-                table[rows] = _leaf_truth([(set_a + set_b)[r] for r in rows])
-                changed = []
-            reason, others, sep = _validity(
-                [*set_a, *set_b, *tests],
-                rule,
-                per,
-                per,
-                minimal=minimal,
-                truth=truth,
-                vec=_pack(table),
-            )
-            if reason is None:
-                checked = sep
-                break
-            if not others:
-                raise Rejected(reason)
-            repaired = False
-            for other in others:
-                found = _discriminating(rule, other, ctx)
-                if found is None:
-                    continue
-                want, panel = found
-                target = set_a if want else set_b
-                free = [k for k in range(per) if (want, k) not in kept] or list(range(per))
-                k = ctx.pick(free)
-                kept.add((want, k))
-                target[k] = panel
-                changed.append(k if want else per + k)
-                repaired = True
-            if not repaired:
-                break
-        if checked is None:
-            raise Rejected(reason or "no valid item")
-        factors = {
-            "rule_length": rule_length(rule),
-            "attribute": k_attr,
-            "relational": relational,
-            "distractors": distractors,
-            "objects": int(p["objects"]),
-        }
-        return self._finish(
-            rule,
-            set_a,
-            set_b,
-            tests,
-            params=p,
-            factors=factors,
-            seed=seed,
-            modes=modes,
-            minimal=minimal,
-            checked=checked,
-            truth=truth,
-        )
-
-    def _finish(
-        self,
-        rule: Rule,
-        set_a: list,
-        set_b: list,
-        tests: list,
-        *,
-        params: Mapping[str, Any],
-        factors: Mapping[str, Any],
-        seed: int,
-        modes: Sequence[str],
-        minimal: bool,
-        variant_of: str | None = None,
-        variant_operator: str | None = None,
-        checked: dict[str, np.ndarray] | None = None,
-        truth: int | None = None,
-    ) -> Item:
-        set_a, set_b, tests = ([_hosts_first(p) for p in group] for group in (set_a, set_b, tests))
-        panels = [*set_a, *set_b, *tests]
-        sep = checked
-        if sep is None:
-            reason, _, sep = _validity(
-                panels,
-                rule,
-                len(set_a),
-                len(set_b),
-                minimal=minimal,
-                length=_check_length(rule, variant_operator),
-            )
-            if reason:
-                raise Rejected(reason)
-        text = format_rule(rule)
-        h = rule_vector(rule, panels) if truth is None else truth
-        accepted = []
-        seen = {text}
-        order = np.argsort(sep["single_len"], kind="stable")
-        mask = np.uint64((1 << len(panels)) - 1)
-        full_equal = (sep["single_vec"][order] & mask) == np.uint64(h)
-        for k in sep["single"][order][full_equal]:
-            alt = format_rule(_canon(_lit_rule(k)))
-            if alt not in seen:
-                seen.add(alt)
-                accepted.append({"answer": alt, "label": "equivalent-rule"})
-            if len(accepted) >= 3:
-                break
-        labels = _labels(h, len(set_a), len(set_b), len(tests))
-        stimulus = {
-            "sets": {
-                "A": [[_obj_code(o) for o in pnl] for pnl in set_a],
-                "B": [[_obj_code(o) for o in pnl] for pnl in set_b],
-            },
-            "test": [[_obj_code(o) for o in pnl] for pnl in tests],
-        }
-        select = "select" in modes
-        return Item.create(
-            prefix=self.prefix,
-            family=self.name,
-            family_version=self.version,
-            params=dict(params),
-            factors=dict(factors),
-            modes=list(modes),
-            stimulus=stimulus,
-            answer={"rule": text, "labels": labels},
-            accepted=accepted,
-            choices=None,
-            distractor_scheme="per-panel" if select else None,
-            variant_of=variant_of,
-            variant_operator=variant_operator,
-            seed=seed,
-        )
-
-    # -- variants --------------------------------------------------------------------------------
-    def vary(self, item: Item, operator: str, rng: np.random.Generator) -> Item:
-        if operator not in self.variant_operators:
-            raise SpecError(
-                f"field 'operator': got {operator!r}; accepted: one of "
-                + ", ".join(self.variant_operators)
-                + ".",
-                field="operator",
-            )
-        rule = parse_rule(item.answer["rule"])
-        panels, n_a, n_b = panels_from_stimulus(item.stimulus)
-        set_a, set_b, tests = panels[:n_a], panels[n_a : n_a + n_b], panels[n_a + n_b :]
-        used = relevant_attributes(rule)
-        factors = dict(item.factors)
-        if operator == "swap-sets":
-            rule = _negate(rule)
-            set_a, set_b = set_b, set_a
-            factors["rule_length"] = rule_length(rule)
-        elif operator == "mirror":
-            rule = _mirror_rule(rule)
-            for pnl in panels:
-                for o in pnl:
-                    o[COL] = 2 - o[COL]
-        elif operator == "change-surface":
-            # attributes whose values the rule names, unless a relation reads their order
-            rels = set(_relations_of(rule))
-            blocked = (
-                ({SIZE} if rels & {"bigger", "inside"} else set())
-                | ({ROW} if "above" in rels else set())
-                | ({COL} if "leftof" in rels else set())
-            )
-            named = sorted({ATOMS[a][0] for a in _atoms_of(rule)} - blocked)
-            if not named:
-                raise Rejected("no attribute value in the rule can change")
-            ai = named[int(rng.integers(len(named)))]
-            in_rule = sorted({ATOMS[a][1] for a in _atoms_of(rule) if ATOMS[a][0] == ai})
-            outside = [v for v in range(CARD[ai]) if v not in in_rule]
-            v1 = in_rule[int(rng.integers(len(in_rule)))]
-            pool = outside or [v for v in range(CARD[ai]) if v != v1]
-            v2 = pool[int(rng.integers(len(pool)))]
-            perm = list(range(CARD[ai]))
-            perm[v1], perm[v2] = v2, v1
-            rule = _map_atoms(
-                rule,
-                lambda a: (
-                    ATOM_INDEX[VALUES[ATTRIBUTES[ai]][perm[ATOMS[a][1]]]]
-                    if ATOMS[a][0] == ai
-                    else a
-                ),
-            )
-            for pnl in panels:
-                for o in pnl:
-                    o[ai] = perm[o[ai]]
-                if any(o[INSIDE] >= 0 and pnl[o[INSIDE]][SIZE] <= o[SIZE] for o in pnl):
-                    raise Rejected("new sizes break a nesting")
-        else:  # change-irrelevant
-            free = [ATTRIBUTES.index(a) for a in OBJECT_ATTRS if a not in used]
-            if not free:
-                raise Rejected("every object attribute is relevant")
-            for ai in free:
-                present = {o[ai] for pnl in panels for o in pnl}
-                if len(present) <= 1:
-                    newv = int(rng.integers(CARD[ai]))
-                    for pnl in panels:
-                        for o in pnl:
-                            o[ai] = newv
-                else:
-                    for pnl in panels:
-                        for o in pnl:
-                            o[ai] = int(rng.integers(CARD[ai]))
-            # nesting needs the inner object smaller; sizes change only when size is irrelevant
-            for pnl in panels:
-                for o in pnl:
-                    c = o[INSIDE]
-                    if c >= 0 and pnl[c][SIZE] <= o[SIZE]:
-                        o[SIZE] = max(0, pnl[c][SIZE] - 1)
-                        if pnl[c][SIZE] == 0:
-                            raise Rejected("nesting broken by new sizes")
-        return self._finish(
-            _canon(rule),
-            set_a,
-            set_b,
-            tests,
-            params=item.params,
-            factors=factors,
-            seed=item.seed,
-            modes=item.modes,
-            minimal=False,
-            variant_of=item.id,
-            variant_operator=operator,
         )
 
     def check(self, item: Item) -> list[str]:
