@@ -224,6 +224,38 @@ class RandomDesign:
                         s[np.ix_(cols, rows)] = v.T
         return a1, c, s
 
+    def trial_solves(
+        self, ts: list[np.ndarray], chol: BlockCholesky
+    ) -> tuple[list[np.ndarray], list[np.ndarray]]:
+        """Per trial ``i``: ``v_i = Lambda' z_i`` and ``y_i = H^-1 v_i`` on the levels it touches.
+
+        Both are returned factor by factor in elimination order as ``(n, p_k)`` arrays. The
+        leverages ``a_i = z_i' Lambda H^-1 Lambda' z_i`` are ``sum_k (v_k * y_k).sum(1)``; the
+        analytic gradient of the Laplace deviance needs them. ``O(n s^2)`` after
+        :meth:`BlockCholesky.inverse_blocks`.
+        """
+        facs = [self.first, *self.rest]
+        v = [f.zx @ t for f, t in zip(facs, ts, strict=True)]
+        a, bt, c = chol.inverse_blocks()
+        f1 = self.first
+        y = [np.einsum("nab,nb->na", a[f1.codes], v[0])]
+        if bt is None or c is None:
+            return v, y
+        bt3 = bt.reshape(self.qc, f1.n_levels, f1.p)
+        rows = [
+            off + g.codes[:, None] * g.p + np.arange(g.p)[None, :]
+            for g, off in zip(self.rest, self.rest_off, strict=True)
+        ]
+        for gi in range(len(self.rest)):
+            bg = bt3[rows[gi], f1.codes[:, None], :]  # (n, p_g, p1)
+            y[0] += np.einsum("nba,nb->na", bg, v[1 + gi])
+            yg = np.einsum("nba,na->nb", bg, v[0])
+            for hi in range(len(self.rest)):
+                cgh = c[rows[gi][:, :, None], rows[hi][:, None, :]]  # (n, p_g, p_h)
+                yg += np.einsum("nab,nb->na", cgh, v[1 + hi])
+            y.append(yg)
+        return v, y
+
     # -- the factor of H ------------------------------------------------------------------------
     def factor(self, theta: np.ndarray, w: np.ndarray) -> BlockCholesky:
         """Cholesky factor of ``Lambda' Z' W Z Lambda + I`` at ``theta`` and weights ``w``."""
@@ -272,6 +304,31 @@ class BlockCholesky:
         for g, off, t in zip(d.rest, d.rest_off, self.ts[1:], strict=True):
             out[off : off + g.q] = d._lam_t(t, m[off : off + g.q], g.n_levels)
         return out
+
+    def inverse_blocks(self) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None]:
+        """The parts of ``H^-1`` that single trials touch (``H = L L'``).
+
+        With ``L = [[R1, 0], [L21, L22]]`` and ``G = L22^-1 L21 R1^-1``,
+        ``H^-1 = [[R1^-T R1^-1 + G'G, -G' L22^-1], [-L22^-T G, (L22 L22')^-1]]``. Returned: the
+        diagonal blocks of the first factor, shape ``(L1, p1, p1)``; the lower-left block
+        ``-L22^-T G`` (``qc x q1``); and ``(L22 L22')^-1`` (``qc x qc``); None for the last two
+        with one grouping factor. Cost ``O(qc^2 q1 + qc^3)``.
+        """
+        d = self.d
+        f = d.first
+        r1_inv = np.broadcast_to(self.r1_inv, self.r1.shape)
+        a = np.einsum("lba,lbc->lac", r1_inv, r1_inv)
+        if d.qc == 0:
+            return a, None, None
+        lr = np.einsum("qla,lab->qlb", self.l21.reshape(d.qc, f.n_levels, f.p), r1_inv)
+        g = linalg.solve_triangular(
+            self.l22, lr.reshape(d.qc, d.q1), lower=True, check_finite=False
+        )
+        g3 = g.reshape(d.qc, f.n_levels, f.p)
+        a = a + np.einsum("qla,qlb->lab", g3, g3)
+        bt = -linalg.solve_triangular(self.l22, g, lower=True, trans="T", check_finite=False)
+        c = linalg.cho_solve((self.l22, True), np.eye(d.qc), check_finite=False)
+        return a, bt, c
 
     def logdet(self) -> float:
         """``log |L|^2``."""

@@ -197,6 +197,49 @@ def test_one_node_adaptive_quadrature_equals_laplace():
         assert abs(agq25 - agq1) > 1e-3
 
 
+# -- the analytic gradient against central differences of the deviance -----------------------
+@pytest.mark.parametrize("structure", ["intercepts", "item-slope", "respondent-slope", "one"])
+def test_analytic_gradient_matches_differences_of_the_deviance(structure):
+    rng = np.random.default_rng(11)
+    n_r, n_i = 30, 20
+    r = np.repeat(np.arange(n_r), n_i)
+    i = np.tile(np.arange(n_i), n_r)
+    kind = (r < 6).astype(float)
+    x = np.column_stack([np.ones(len(r)), kind, rng.normal(size=len(r))])
+    eta = 0.3 + 0.8 * kind + rng.normal(0, 1, n_r)[r] + rng.normal(0, 0.7, n_i)[i] * (1 + kind)
+    k = (rng.random(len(r)) < special.expit(eta)).astype(float)
+    ones = np.ones((len(r), 1))
+    slope_i = np.column_stack([ones[:, 0], kind])
+    slope_r = np.column_stack([ones[:, 0], x[:, 2]])
+    fac = {
+        "intercepts": [Factor("r", r, n_r, ones, ["1"]), Factor("i", i, n_i, ones, ["1"])],
+        "item-slope": [Factor("r", r, n_r, ones, ["1"]), Factor("i", i, n_i, slope_i, ["1"])],
+        "respondent-slope": [Factor("i", i, n_i, ones, ["1"]), Factor("r", r, n_r, slope_r, ["1"])],
+        "one": [Factor("r", r, n_r, slope_r, ["1"])],
+    }[structure]
+    design = RandomDesign(fac)
+    model = LaplaceModel(x, k, np.ones(len(r)), design)
+    theta = design.theta_start * 0.7 + 0.1 * np.arange(design.n_theta)
+    z = np.concatenate([theta, [0.2, 0.5, -0.1]])
+
+    def central(fun, at):
+        out = np.empty(len(at))
+        for j in range(len(at)):
+            e = np.zeros(len(at))
+            e[j] = 1e-5
+            out[j] = (fun(at + e) - fun(at - e)) / 2e-5
+        return out
+
+    # reference: common practice — an analytic gradient agrees with central differences of the
+    # function (error O(h^2) plus PIRLS noise / h)
+    _, grad = model.value_grad(z)
+    fd = central(lambda v: model.value_grad(v)[0], z)
+    np.testing.assert_allclose(grad, fd, rtol=1e-6, atol=1e-5)
+    _, grad1 = model.value_grad_joint(theta)
+    fd1 = central(lambda v: model.value_grad_joint(v)[0], theta)
+    np.testing.assert_allclose(grad1, fd1, rtol=1e-6, atol=1e-5)
+
+
 # -- diagnostics ---------------------------------------------------------------------------------
 def _crossed(rng, *, n_human=30, n_machine=6, n_item=40, beta=(0.5, 0.8), sds=(1.0, 1.0)):
     kinds = np.array(["human"] * n_human + ["machine"] * n_machine)
