@@ -391,6 +391,13 @@ def _read_one(path: Path) -> Any:
         return None
     if skipped or table.column_names != [c.name for c in TRIAL_COLUMNS]:
         return None
+    import pyarrow.compute as pc
+
+    # pyarrow reads the text "nan" as a float NaN, which pandas then takes for a missing cell;
+    # the checked reader refuses it, naming the row
+    for c in TRIAL_COLUMNS:
+        if c.type == "number" and pc.any(pc.is_nan(table[c.name])).as_py():
+            return None
     return table
 
 

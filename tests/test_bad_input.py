@@ -285,10 +285,7 @@ def _snapshot(root: Path) -> dict[str, tuple[int, int]]:
 
 
 #: cases a reader outside the data contract does not refuse yet (strict: fixing one fails here)
-KNOWN_GAPS = {
-    "log-rt-nan": "the bulk log reader in analysis/data.py reads the text 'nan' as a missing "
-    "number, where study.logs.read_trials refuses it",
-}
+KNOWN_GAPS: dict[str, str] = {}
 
 
 @pytest.mark.parametrize(
