@@ -114,6 +114,7 @@ SESSION_COLUMNS: tuple[str, ...] = (
     "n_trials",
     "n_duplicates",
     "n_missing",
+    "n_failed",
     "source",
 )
 
@@ -134,9 +135,10 @@ class StudyData:
     sessions : pandas.DataFrame
         One row per session log; columns :data:`SESSION_COLUMNS`.
     issues : pandas.DataFrame
-        Duplicate, missing and unexpected trials found while reading; columns
+        Duplicate, missing, unexpected and failed trials found while reading; columns
         :data:`ISSUE_COLUMNS` (``issue`` is ``duplicate_trial``, ``duplicate_item``,
-        ``missing_trials`` or ``extra_trials``).
+        ``missing_trials``, ``extra_trials`` or ``failed_trials`` — trials logged ``failed``
+        or ``timeout``, which a rerun of the machine sweep retries).
     bank : Bank
         The study's bank.
     study : str
@@ -587,6 +589,9 @@ def _read_bulk(
     uf = uniq["_file"].to_numpy()
     in_range = (ut >= 0) & (ut < expected[uf])
     n_present = np.bincount(uf[in_range], minlength=n_files)
+    # trials the solver or adapter did not answer (the report flags their sessions)
+    failed = df["status"].isin(("failed", "timeout")).to_numpy()
+    n_failed = np.bincount(fcode[failed], minlength=n_files)
     sessions: list[dict[str, Any]] = []
     for k in np.flatnonzero(keep_file):
         m, rel, side = meta[k], rels[k], sides[k]
@@ -610,6 +615,18 @@ def _read_bulk(
                     n=int(n_dup_item[k]),
                     detail="item presented again under another trial index: "
                     + ", ".join(items_again.unique()[:3]),
+                )
+            )
+        if n_failed[k]:
+            statuses = df.loc[failed & (fcode == k), "status"].value_counts()
+            issues.append(
+                dict(
+                    source=rel,
+                    session=m["session"],
+                    issue="failed_trials",
+                    n=int(n_failed[k]),
+                    detail=", ".join(f"{int(v)} {s}" for s, v in statuses.items())
+                    + " (run the same command again to retry them)",
                 )
             )
         exp_k = int(expected[k])
@@ -651,6 +668,7 @@ def _read_bulk(
                 n_trials=int(n_kept[k]),
                 n_duplicates=int(n_rows[k] - n_unique[k]),
                 n_missing=n_missing,
+                n_failed=int(n_failed[k]),
                 source=rel,
             )
         )
@@ -723,7 +741,7 @@ def _with_items(raw: pd.DataFrame, items: pd.DataFrame) -> pd.DataFrame:
 
 # -- cache ---------------------------------------------------------------------------------------
 #: bump when the cached tables' layout or the reading rules change
-CACHE_VERSION = 1
+CACHE_VERSION = 2
 
 
 def _digest(path: Path) -> str | None:

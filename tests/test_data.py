@@ -336,3 +336,28 @@ def test_cache_is_reused_and_rebuilt_when_a_log_changes(fresh, monkeypatch):
 def test_cache_inside_the_logs_folder_is_refused(fresh):
     with pytest.raises(InputError, match="field 'cache_dir'"):
         load_study_data(fresh, cache_dir=fresh / "logs" / "cache")
+
+
+def test_failed_and_timed_out_machine_trials_are_counted_per_session(fresh):
+    logs = sorted((fresh / "logs" / "machine").glob("*.csv"))
+    path = logs[0]
+    lines = path.read_text(encoding="utf-8").splitlines(keepends=True)
+    header = lines[0].rstrip("\n").split(",")
+    at = header.index("status")
+    for k, status in ((1, "failed"), (2, "failed"), (3, "timeout")):
+        cells = lines[k].rstrip("\n").split(",")
+        assert cells[at] == "ok"  # the row layout this test relies on
+        cells[at] = status
+        cells[header.index("correct")] = ""
+        cells[header.index("error_type")] = ""
+        lines[k] = ",".join(cells) + "\n"
+    path.write_text("".join(lines), encoding="utf-8")
+    with pytest.warns(LogWarning, match="3 failed trials"):
+        d = load_study_data(fresh)
+    session = path.stem
+    assert d.sessions.set_index("session").loc[session, "n_failed"] == 3
+    assert (d.sessions.set_index("session").drop(session)["n_failed"] == 0).all()
+    issue = d.issues.loc[d.issues["issue"] == "failed_trials"]
+    assert issue["session"].tolist() == [session]
+    assert issue["n"].tolist() == [3]
+    assert issue["detail"].iloc[0].startswith("2 failed, 1 timeout")
