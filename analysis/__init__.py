@@ -29,7 +29,16 @@ from .irt import (
     score_on_human_scale,
     simulate_responses,
 )
-from .mixed import MixedResult, factor_effects, fit_accuracy, fit_glmm, fit_lmm, fit_log_time
+from .mixed import (
+    MixedResult,
+    factor_effects,
+    fit_accuracy,
+    fit_glmm,
+    fit_lmm,
+    fit_log_time,
+    item_gap_variation,
+    lrt,
+)
 from .participants import family_accuracy, internal_consistency, profile_bayes_factors
 from .planning import plan_from_pilot, plan_sample_size, required_sample_size
 from .reliability import difficulty_reliability
@@ -67,9 +76,11 @@ __all__ = [
     "internal_consistency",
     "item_difficulty",
     "item_fit",
+    "item_gap_variation",
     "item_information",
     "item_table",
     "load_study_data",
+    "lrt",
     "machine_error_rates",
     "plan_from_pilot",
     "plan_sample_size",

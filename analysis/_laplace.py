@@ -91,6 +91,8 @@ class LaplaceFit:
         ``(levels, terms)``, input order.
     covariances : tuple of numpy.ndarray
         Random-effect covariance matrix per factor.
+    model : LaplaceModel
+        The model that was fitted (for profile intervals after the fit).
     se_conditional : bool
         True when the Hessian over ``(theta, beta)`` was not positive definite and ``cov_beta``
         is the inverse information about ``beta`` given ``theta``.
@@ -109,6 +111,7 @@ class LaplaceFit:
     modes: tuple[np.ndarray, ...]
     covariances: tuple[np.ndarray, ...]
     se_conditional: bool = False
+    model: Any = dataclasses.field(default=None, repr=False, compare=False)
 
 
 class LaplaceModel:
@@ -441,56 +444,83 @@ def fit_laplace(model: LaplaceModel, *, theta0=None) -> LaplaceFit:
         modes=model.modes(theta, beta),
         covariances=tuple(d.covariances(theta)),
         se_conditional=conditional,
+        model=model,
     )
 
 
 def profile_interval(
-    model: LaplaceModel, fit: LaplaceFit, j: int, level: float
+    model: LaplaceModel, fit: LaplaceFit, factor: int, term: int, level: float
 ) -> tuple[float, float]:
-    """Profile-likelihood interval of ``theta[j]`` (a diagonal element: an SD when it is the
-    first term of its factor).
+    """Profile-likelihood interval of the SD of random-effect ``term`` of grouping ``factor``.
 
-    The profile ``d_j(s) = min d(theta, beta) over everything but theta_j = s`` is compared with
-    ``d_min + chi2_1(level)`` and the crossing points are found by Brent's method.
+    That SD is the length of row ``term`` of the factor's ``T`` block (``theta`` holds its
+    elements). The row is written as ``s * a / |a|``: the profile ``d(s) = min d`` over ``a``
+    and every other parameter is compared with ``d_min + chi2_1(level)``, and the crossing
+    points are found by Brent's method. For the first term the row is the single element
+    ``theta_j = s``.
     """
+    d = model.d
+    sl = d.theta_slices[factor]
+    rows, cols = d.tril[factor]
+    idx = np.array([sl.start + t for t in range(len(rows)) if rows[t] == term])
+    idx = idx[np.argsort(cols[rows == term])]  # diagonal element last
     z_hat = np.concatenate([fit.theta, fit.beta])
-    lower2 = np.concatenate([model.d.theta_lower, np.full(model.p, -np.inf)])
+    lower2 = np.concatenate([d.theta_lower, np.full(model.p, -np.inf)])
     keep = np.ones(len(z_hat), dtype=bool)
-    keep[j] = False
+    keep[idx] = False
+    nk = int(keep.sum())
+    row_hat = z_hat[idx]
+    sd_hat = float(np.linalg.norm(row_hat))
+    dir0 = row_hat / sd_hat if sd_hat > 1e-8 else np.eye(len(idx))[-1]
+    # the direction's last (diagonal) component stays >= 0; none for a one-element row
+    n_dir = len(idx) if len(idx) > 1 else 0
+    lower_v = np.concatenate([lower2[keep], np.full(n_dir, -np.inf)])
+    if n_dir:
+        lower_v[-1] = 0.0
+    v_hat = np.concatenate([z_hat[keep], dir0[:n_dir]])
     target = fit.deviance + stats.chi2.ppf(level, 1)
-    start = {"z": z_hat[keep].copy()}
+    start = {"v": v_hat.copy()}
 
     def prof(s: float) -> float:
         def f(v: np.ndarray) -> tuple[float, np.ndarray]:
             zz = np.empty(len(z_hat))
-            zz[keep] = v
-            zz[j] = s
+            zz[keep] = v[:nk]
+            if n_dir:
+                a_dir = v[nk:]
+                nrm = max(float(np.linalg.norm(a_dir)), 1e-12)
+                unit = a_dir / nrm
+            else:
+                unit = np.ones(1)
+            zz[idx] = s * unit
             dev, grad = model.value_grad(zz)
-            return dev, grad[keep]
+            out = grad[keep]
+            if n_dir:
+                g_row = grad[idx]
+                out = np.concatenate([out, s / nrm * (g_row - unit * (unit @ g_row))])
+            return dev, out
 
-        r = _minimise(f, start["z"], lower2[keep])
-        start["z"] = r.x
+        r = _minimise(f, start["v"], lower_v, ftol=1e-11)
+        start["v"] = r.x
         return float(r.fun) - target
 
-    s_hat = float(fit.theta[j])
-    step = max(0.25 * s_hat, 0.05)
-    a, b = s_hat, s_hat + step
+    step = max(0.25 * sd_hat, 0.05)
+    a, b = sd_hat, sd_hat + step
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         while prof(b) < 0:
             a, step = b, 2 * step
-            b = s_hat + step
+            b = sd_hat + step
             if b > 1e3:
                 model.deviance(fit.theta, fit.beta)
                 return (np.nan, np.inf)
-        start["z"] = z_hat[keep].copy()
+        start["v"] = v_hat.copy()
         upper = optimize.brentq(prof, a, b, xtol=1e-6)
-        start["z"] = z_hat[keep].copy()
-        if s_hat <= 1e-8 or prof(0.0) <= 0:
+        start["v"] = v_hat.copy()
+        if sd_hat <= 1e-8 or prof(0.0) <= 0:
             low = 0.0
         else:
-            start["z"] = z_hat[keep].copy()
-            low = optimize.brentq(prof, 0.0, s_hat, xtol=1e-6)
+            start["v"] = v_hat.copy()
+            low = optimize.brentq(prof, 0.0, sd_hat, xtol=1e-6)
     model.deviance(fit.theta, fit.beta)
     return low, upper
 

@@ -303,8 +303,8 @@ def fit_glmm(
         What to do with rows missing a value in a used column.
     sd_intervals : {"wald", "profile"}, default "wald"
         Intervals of the random-effect SDs: Wald on the log-SD scale from the observed
-        information (fast), or profile-likelihood intervals for intercept SDs (one constrained
-        fit per step of a root search: tens of fits per SD; slope SDs stay Wald).
+        information (fast), or profile-likelihood intervals for every SD, intercepts and slopes
+        (one constrained fit per step of a root search: tens of fits per SD).
     fixed_prior_sd : float, optional
         If given, a normal penalty ``beta_j^2 / fixed_prior_sd^2`` on every non-intercept fixed
         effect (a weakly informative prior in the sense of Gelman et al. 2008): estimates stay
@@ -590,17 +590,16 @@ def _glmm_random_table(model, fit, factors, level, sd_intervals, notes) -> pd.Da
         se_log = np.sqrt(var_sd) / sd_hat
     rows: list[dict[str, Any]] = []
     pos = 0
-    for f, sl in zip(factors, d.theta_slices, strict=True):
+    for f in factors:
         cov = fit.covariances[factors.index(f)]
-        first_theta = sl.start
         for j, term in enumerate(f.terms):
             sd = sd_hat[pos + j]
             lo, hi = sd * np.exp(-z * se_log[pos + j]), sd * np.exp(z * se_log[pos + j])
             note = ""
             if sd < 1e-4:
                 lo, hi, note = 0.0, np.nan, "singular: SD estimated at zero"
-            if sd_intervals == "profile" and j == 0:
-                lo, hi = lp.profile_interval(model, fit, first_theta, level)
+            if sd_intervals == "profile":
+                lo, hi = lp.profile_interval(model, fit, factors.index(f), j, level)
             rows.append(
                 dict(
                     group=f.name,
@@ -965,6 +964,147 @@ def fit_accuracy(
     return fit_glmm(
         data, f"correct ~ {fixed}", random=random, conf_level=conf_level, missing=missing
     )
+
+
+GAP_COLUMNS = (
+    "term",
+    "gap",
+    "gap_ci_low",
+    "gap_ci_high",
+    "sd",
+    "sd_ci_low",
+    "sd_ci_high",
+    "corr_item",
+    "lrt_stat",
+    "p_val",
+    "n_items",
+    "n_respondents",
+    "conf_level",
+    "note",
+)
+
+
+def item_gap_variation(
+    trials: pd.DataFrame,
+    *,
+    by: Literal["kind", "group"] = "kind",
+    fixed: str = "",
+    conf_level: float = 0.95,
+    sd_intervals: Literal["wald", "profile"] = "profile",
+) -> pd.DataFrame:
+    """How much the gap between machines and people varies from item to item.
+
+    Fits the logistic mixed model ``correct ~ by + fixed`` with respondent intercepts and, per
+    item, an intercept and a slope of ``by`` (correlated): ``random={"respondent": "1",
+    "item": "1 + by"}``. The slope's SD is the spread, over items, of the item's own
+    machine-minus-human difference in log-odds of a correct answer. An SD near zero means
+    machines are behind (or ahead) by about the same amount on every item — they find the same
+    items hard as people do; a large SD means the gap depends on the item, so machines fail on
+    other items than people. It is the model-based counterpart of the rank correlations of
+    item difficulty.
+
+    Parameters
+    ----------
+    trials : pandas.DataFrame
+        A tidy trials table (``correct``, ``respondent``, ``item`` and ``by``); unscored trials
+        are left out.
+    by : {"kind", "group"}, default "kind"
+        ``"kind"``: one gap, machines against people. ``"group"``: one gap per respondent group
+        against the human group (the first group in human-first order).
+    fixed : str, default ""
+        Further fixed terms (e.g. item factors) added to ``by``.
+    conf_level : float, default 0.95
+    sd_intervals : {"wald", "profile"}, default "profile"
+        Intervals of the SDs (see :func:`fit_glmm`); profile intervals cover better when the
+        SD is small or the number of machine respondents is.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per gap term (``term``, e.g. ``kind[T.machine]``): ``gap`` (the average
+        difference in log-odds, fixed effect) with ``gap_ci_low``/``gap_ci_high``; ``sd`` of the
+        item-level differences with ``sd_ci_low``/``sd_ci_high``; ``corr_item`` (correlation of
+        an item's difference with its intercept, i.e. with how easy the item is for people);
+        ``lrt_stat`` and ``p_val`` of the likelihood-ratio test of the by-item slopes (against
+        item intercepts only; the p-value uses the 50:50 mixture of chi-square distributions for
+        a variance tested on its boundary, Self & Liang 1987, and is for all slopes together);
+        ``n_items``, ``n_respondents``, ``conf_level`` and ``note`` (separation, singular fit or
+        convergence, in words).
+
+    Notes
+    -----
+    With ``d`` slope terms the test adds ``d`` variances and ``d (d + 1) / 2`` covariances
+    with the intercept and among themselves; the reference distribution is the mixture
+    ``0.5 chi2(k - d) + 0.5 chi2(k)`` with ``k`` the number of added parameters (Stram & Lee
+    1994, Biometrics 50(4), for one slope).
+
+    References
+    ----------
+    Baayen, R. H., Davidson, D. J., & Bates, D. M. (2008). Mixed-effects modeling with crossed
+    random effects for subjects and items. J. Mem. Lang. 59(4), 390-412.
+    """
+    check_choice("by", by, ("kind", "group"))
+    check_choice("sd_intervals", sd_intervals, ("wald", "profile"))
+    check_columns(trials, ["correct", "respondent", "item", by])
+    data = _with_human_first(scored(trials))
+    rhs = " + ".join([by, *([fixed] if fixed.strip() else [])])
+    formula = f"correct ~ {rhs}"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        big = fit_glmm(
+            data,
+            formula,
+            random={"respondent": "1", "item": f"1 + {by}"},
+            conf_level=conf_level,
+            missing="drop",
+        )
+        small = fit_glmm(
+            data, formula, random=["respondent", "item"], conf_level=conf_level, missing="drop"
+        )
+    fx = big.fixed.set_index("term")
+    rnd = big.random_effects
+    item = rnd[rnd["group"] == "item"].set_index("term")
+    gaps = [t for t in item.index if t != "Intercept" and not t.startswith("cov(")]
+    k = big.n_params - small.n_params
+    if np.isfinite(big.loglik) and np.isfinite(small.loglik):
+        stat = max(2.0 * (big.loglik - small.loglik), 0.0)
+        p = 0.5 * float(stats.chi2.sf(stat, k - len(gaps))) + 0.5 * float(stats.chi2.sf(stat, k))
+    else:
+        stat, p = np.nan, np.nan
+    if sd_intervals == "profile" and big.method == "glmm_laplace":
+        from . import _laplace as lp
+
+        fit = big.raw
+        terms = list(item.index)
+        for t in gaps:
+            item.loc[t, ["sd_ci_low", "sd_ci_high"]] = lp.profile_interval(
+                fit.model, fit, 1, terms.index(t), conf_level
+            )
+    rows = []
+    for t in gaps:
+        cov = item.loc[f"cov(Intercept, {t})"] if f"cov(Intercept, {t})" in item.index else None
+        notes = [n for n in (fx.loc[t, "note"], item.loc[t, "note"]) if n]
+        if not big.converged:
+            notes.append("did not converge")
+        rows.append(
+            dict(
+                term=t,
+                gap=fx.loc[t, "estimate"],
+                gap_ci_low=fx.loc[t, "ci_low"],
+                gap_ci_high=fx.loc[t, "ci_high"],
+                sd=item.loc[t, "sd"],
+                sd_ci_low=item.loc[t, "sd_ci_low"],
+                sd_ci_high=item.loc[t, "sd_ci_high"],
+                corr_item=np.nan if cov is None else cov["corr"],
+                lrt_stat=stat,
+                p_val=p,
+                n_items=big.n_groups["item"],
+                n_respondents=big.n_groups["respondent"],
+                conf_level=conf_level,
+                note="; ".join(notes),
+            )
+        )
+    return pd.DataFrame(rows, columns=list(GAP_COLUMNS))
 
 
 def fit_log_time(

@@ -251,6 +251,23 @@ def build_report(
                     "sample); a machine near that value agrees with people as well as people "
                     "agree with each other."
                 )
+        gap = _read(results, "item_gap_variation")
+        if gap is not None and len(gap):
+            words = [
+                f"{r.term.split('[T.')[-1].rstrip(']')} − people: SD {_fmt(r.sd)} "
+                f"[{_fmt(r.sd_ci_low)}, {_fmt(r.sd_ci_high)}] log-odds over {r.n_items} items "
+                f"(average gap {_fmt(r.gap)}; test of no spread p = {_fmt(r.p_val, 3)})"
+                + (f", {r.note}" if isinstance(r.note, str) and r.note else "")
+                for r in gap.itertuples()
+            ]
+            reading += (
+                " The same question in the mixed model: each item gets its own machine-minus-"
+                "people difference in the log-odds of a correct answer (a by-item random slope "
+                "of respondent kind), and its SD says how much that difference varies from "
+                "item to item. Near 0, machines are behind or ahead by the same amount on "
+                "every item, so they find the same items hard as people; a large SD means the "
+                "gap depends on the item. " + "; ".join(words) + "."
+            )
         fig = F.difficulty_profiles(pts, stats)
         tbl = (
             [
@@ -283,6 +300,23 @@ def build_report(
                         "spearman_brown",
                         "q_low",
                         "q_high",
+                    ],
+                )
+            )
+        if gap is not None and len(gap):
+            tbl.append(
+                _table(
+                    gap,
+                    [
+                        "term",
+                        "gap",
+                        "sd",
+                        "sd_ci_low",
+                        "sd_ci_high",
+                        "corr_item",
+                        "p_val",
+                        "n_items",
+                        "note",
                     ],
                 )
             )

@@ -9,7 +9,8 @@ part         tables written
 ============ ==============================================================================
 data         trials.csv, sessions.csv, issues.csv
 irt          irt_items.csv, irt_abilities.csv, irt_departures.csv (human-calibrated scale)
-mixed        accuracy_fixed.csv, accuracy_random.csv, log_rt_fixed.csv, log_rt_random.csv,
+mixed        accuracy_fixed.csv, accuracy_random.csv, item_gap_variation.csv (by-item spread of
+             the machine-minus-human difference), log_rt_fixed.csv, log_rt_random.csv,
              log_effort_fixed.csv, log_effort_random.csv
 factors      factor_effects.csv
 agreement    item_difficulty.csv, machine_error_rates.csv, difficulty_agreement.csv,
@@ -205,6 +206,12 @@ def _mixed(data: StudyData, opts: dict[str, Any]) -> dict[str, pd.DataFrame]:
     if t["correct"].notna().any():
         acc = mixed.fit_accuracy(t, fixed=_fixed_rhs(t, by), conf_level=lvl)
         out["accuracy_fixed"], out["accuracy_random"] = acc.fixed, acc.random_effects
+        sc = t.loc[t["correct"].notna()]
+        if sc["kind"].nunique() > 1 and sc["item"].nunique() > 2:
+            extra = _fixed_rhs(sc, "")
+            out["item_gap_variation"] = mixed.item_gap_variation(
+                t, fixed="" if extra == "1" else extra, conf_level=lvl
+            )
     hum = t.loc[(t["kind"] == "human") & (t["rt_ms"] > 0)]
     if hum["respondent"].nunique() > 1:
         rt = mixed.fit_log_time(t, measure="rt", fixed=_fixed_rhs(hum, ""), conf_level=lvl)

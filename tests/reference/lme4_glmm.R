@@ -48,3 +48,23 @@ show_glmm("verbagg-item-slope", m2)
 m3 <- glmer(cbind(incidence, size - incidence) ~ period + (1 | herd), data = cbpp,
             family = binomial)
 show_glmm("cbpp-trials", m3)
+
+# The same fits with lme4's PIRLS run to a tight tolerance. With the default (tolPwrss = 1e-7)
+# glmer's deviance function stops PIRLS early: on cbpp it returns 184.053133 at the estimates
+# where the converged Laplace deviance is 184.052572, and the finite-difference Hessian taken from
+# it (hence the SEs) is off by up to 1.3 %. With tolPwrss = 1e-10 the deviance function agrees
+# with an exact Laplace evaluation to 1e-8; these are the values to compare SEs with.
+tight <- glmerControl(tolPwrss = 1e-10)
+m1t <- glmer(r2n ~ btype + mode + situ + (1 | id) + (1 | item), data = va, family = binomial,
+             control = tight)
+show_glmm("verbagg-crossed-tight", m1t)
+m2t <- glmer(r2n ~ btype + mode + situ + (1 | id) + (1 + mode | item), data = va,
+             family = binomial, control = tight)
+show_glmm("verbagg-item-slope-tight", m2t)
+m3t <- glmer(cbind(incidence, size - incidence) ~ period + (1 | herd), data = cbpp,
+             family = binomial, control = tight)
+show_glmm("cbpp-trials-tight", m3t)
+cat("cbpp deviance function at the default fit's estimates, default and tight PIRLS:\n")
+p3 <- c(getME(m3, "theta"), fixef(m3))
+cat(format(update(m3, devFunOnly = TRUE)(p3), digits = 15),
+    format(update(m3t, devFunOnly = TRUE)(p3), digits = 15), "\n")
