@@ -41,6 +41,7 @@ from ._io import atomic_file
 from .checks import describe, fail
 from .exceptions import LogError, LogWarning
 from .item import canonical_json
+from .render import MEDIA
 
 __all__ = [
     "KINDS",
@@ -246,6 +247,12 @@ SESSION_FIELDS: tuple[SessionField, ...] = (
     SessionField("solver_config", "object", "the solver configuration (secrets redacted)"),
     SessionField("effort_unit", "string", "unit of effort"),
     SessionField("elapsed_s", "number", "seconds spent running trials"),
+    SessionField("medium", "string", "the item view the solver received", False, MEDIA),
+    SessionField("prompt_sha256", "string", "SHA-256 of a chat solver's prompt template"),
+    SessionField("n_ok", "integer", "trials answered and read"),
+    SessionField("n_invalid", "integer", "trials whose reply could not be read"),
+    SessionField("n_timeout", "integer", "trials the solver did not answer in time"),
+    SessionField("n_failed", "integer", "trials the solver or adapter failed on"),
     # simulated respondents
     SessionField("simulation", "object", "the simulated respondent's ability and seed"),
 )
