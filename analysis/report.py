@@ -1,9 +1,12 @@
-"""The study report: one self-contained HTML file with every figure inlined.
+"""The study report: one self-contained HTML file, the verdict first, every figure inlined.
 
 :func:`build_report` reads the tables that :func:`twofold.analysis.run.analyze_study` wrote to the
-results folder (running the analysis first when they are missing), draws every comparison figure
-(also written as SVG and 300-dpi PNG under ``report/figures/``), and renders
-``templates/report.html.j2``. Nothing in the page loads from the network.
+results folder (running the analysis first when they are missing) and renders
+``templates/report.html.j2``: the verdict panel (:mod:`twofold.analysis.verdict`), the bank
+audit, then one section per analysis part that declares one (:mod:`twofold.analysis._parts`),
+each table with the notes stored with it (``notes.csv``), then methods generated from what was
+run, the references of the methods used, and package versions. Every figure is also written as
+PDF, SVG and 300-dpi PNG under ``report/figures/``. Nothing in the page loads from the network.
 """
 
 from __future__ import annotations
@@ -11,12 +14,12 @@ from __future__ import annotations
 import base64
 import datetime as _dt
 import json
+import os
 from collections.abc import Callable
 from importlib import resources
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
@@ -26,67 +29,43 @@ from twofold.study.audit import audit_bank
 from twofold.study.logs import write_json_atomic
 from twofold.study.studyfile import Study, load_study
 
+from . import _parts
 from . import figures as F
+from .verdict import FRAGILITY_MARGIN, QUESTIONS
 
-__all__ = ["METHODS", "SECTIONS", "build_report"]
+__all__ = ["SECTIONS", "build_report"]
 
-#: the report's analysis sections, in order (each calls ``progress`` once when done)
-SECTIONS = (
-    "audit",
-    "difficulty",
-    "irt",
-    "errors",
-    "consistency",
-    "robustness",
-    "factors",
-    "effort",
+#: the report's sections, in order (each calls ``progress`` once when done): the verdict, the
+#: bank audit, then one per analysis part that declares a section
+SECTIONS = ("verdict", "audit", *(p.name for p in _parts.PARTS if p.section is not None))
+
+_SOFTWARE = (
+    "twofold",
+    "numpy",
+    "scipy",
+    "pandas",
+    "statsmodels",
+    "pingouin",
+    "matplotlib",
+    "jsonschema",
 )
 
-#: Published methods the analysis uses, cited in the report's methods section.
-METHODS = (
-    "Item-response models: Rasch (Rasch, 1960) and two-parameter logistic (Birnbaum, 1968) "
-    "models fitted by marginal maximum likelihood with the EM algorithm of Bock & Aitkin "
-    "(1981, Psychometrika 46, 443–459), integrating over abilities on 41 equally spaced "
-    "nodes on [-6, 6] weighted by the normal density; abilities by EAP (Bock & "
-    "Mislevy, 1982) and maximum likelihood.",
-    "Item fit by infit and outfit mean squares (Wright & Masters, 1982); person fit by the "
-    "standardised log-likelihood statistic lz (Drasgow, Levine & Williams, 1985).",
-    "Machines are scored on the scale calibrated on human respondents only.",
-    "Mixed-effects models with crossed random intercepts for respondents and items (Baayen, "
-    "Davidson & Bates, 2008): logistic models of accuracy by Laplace maximum likelihood "
-    "(penalised iteratively reweighted least squares for the conditional modes; Bates, "
-    "Mächler, Bolker & Walker, 2015, J. Stat. Softw. 67(1)) with standard errors from the "
-    "observed information and Wald intervals, separation detected by a linear programme "
-    "(Konis, 2007) and reported beside the affected rows; linear models of log response time / "
-    "log effort by REML (penalised least squares).",
-    "Difficulty-profile agreement: Spearman and Kendall rank correlations between human item "
-    "difficulty and machine item error rates, with percentile and BCa bootstrap intervals over "
-    "items (Efron, 1987, JASA 82, 171–185).",
-    "Error consistency: Cohen's kappa on trial-level correct/incorrect agreement with expected "
-    "agreement from the two accuracies (Geirhos, Meding & Wichmann, 2020, NeurIPS), with the "
-    "human–human distribution as the ceiling.",
-    "Error types: G-test of independence (Sokal & Rohlf, 1995) with a permutation version for "
-    "small counts, Cramér's V, and per-type log odds ratios with Woolf intervals.",
-    "Robustness: accuracy on isomorphs against their parent items, with a mixed-model "
-    "interaction test.",
-    "Forms: block orders from Latin squares and Williams designs (Williams, 1949).",
-)
 
-_SOFTWARE = ("twofold", "numpy", "scipy", "pandas", "statsmodels", "matplotlib", "jsonschema")
-
-
-def _read(results: Path, name: str) -> pd.DataFrame | None:
-    path = results / f"{name}.csv"
+def _read_notes(results: Path) -> pd.DataFrame:
+    path = results / "notes.csv"
+    cols = list(_parts.NOTE_COLUMNS)
     if not path.exists():
-        return None
-    df = pd.read_csv(path)
-    return df if len(df) else None
+        return pd.DataFrame(columns=cols)
+    try:
+        return pd.read_csv(path, keep_default_na=False)[cols]
+    except (pd.errors.EmptyDataError, KeyError):
+        return pd.DataFrame(columns=cols)
 
 
-def _img(fig: Figure | Axes, stem: Path) -> dict[str, str]:
+def _img(fig: Figure | Axes, stem: Path, out: Path) -> dict[str, Any]:
     if not isinstance(fig, Figure):  # the figure functions return a Figure when given no axes
         raise TypeError("expected a Figure")
-    svg, _ = F.save_figure(fig, stem)
+    svg, pdf, png = F.save_figure(fig, stem)
     data = base64.b64encode(svg.read_bytes()).decode("ascii")
     label = getattr(fig, "_supxlabel", None)
     caption = label.get_text() if label is not None else ""
@@ -94,65 +73,73 @@ def _img(fig: Figure | Axes, stem: Path) -> dict[str, str]:
         "src": f"data:image/svg+xml;base64,{data}",
         "alt": stem.name.replace("_", " "),
         "caption": caption,
+        "width": round(fig.get_figwidth() * 96),
+        "files": [
+            (p.suffix[1:].upper(), Path(os.path.relpath(p, out)).as_posix())
+            for p in (pdf, svg, png)
+        ],
     }
 
 
-def _table(df: pd.DataFrame, columns: list[str] | None = None, *, max_rows: int = 30) -> str:
-    d = df[columns] if columns else df
-    d = d.head(max_rows)
-    out = d.copy()
-    for c in out.columns:
-        if pd.api.types.is_float_dtype(out[c]):
-            out[c] = out[c].map(lambda v: "" if pd.isna(v) else f"{v:.3g}")
-    return out.to_html(index=False, border=0, escape=True, na_rep="")
+def _verdict_section(rc: _parts.ReportContext, figdir: Path, out: Path) -> dict[str, Any]:
+    title = "Verdict: does the machine fail where people fail?"
+    v = rc.read("verdict")
+    if v is None:
+        return {
+            "id": "verdict",
+            "title": title,
+            "reading": "No verdict: the analysis has no machine respondents compared with people "
+            "(or the parts it needs did not run).",
+            "groups": [],
+            "tables": [],
+        }
+    groups = []
+    for g, sub in v.groupby("group", sort=True):
+        rows = []
+        for q in QUESTIONS:
+            qs = sub[sub["question"] == q]
+            if qs.empty:
+                continue
+            main = qs[qs["family"] == "all"]
+            head = main.iloc[0] if len(main) else None
+            fams = qs[qs["family"] != "all"]
+            rows.append(
+                {
+                    "question": q,
+                    "answer": str(head["answer"]) if head is not None else "per family",
+                    "sentence": str(head["sentence"]) if head is not None else "",
+                    "families": [
+                        {"family": r.family, "answer": r.answer, "sentence": r.sentence}
+                        for r in fams.itertuples()
+                    ],
+                }
+            )
+        groups.append({"group": g, "rows": rows})
+    return {
+        "id": "verdict",
+        "title": title,
+        "reading": "Each answer follows fixed rules: 'yes' when the whole interval lies in the "
+        "region that reads like people, 'no' (or 'partly': above chance, below people) when it "
+        "lies wholly outside, 'cannot tell' when it spans both readings, 'undefined' when the "
+        "number does not exist for these data. A test that finds no difference in error types "
+        "reads 'cannot tell', never 'yes'.",
+        "groups": groups,
+        "figures": [_img(F.verdict_summary(v), figdir / "verdict", out)],
+        "tables": [
+            rc.table(
+                "verdict",
+                v,
+                ["group", "family", "question", "answer", "estimate", "ci_low", "ci_high"],
+                caption="Every verdict row; the sentences are in verdict.csv and summary.json.",
+                max_rows=12,
+            )
+        ],
+    }
 
 
-def _fmt(v: Any, nd: int = 2) -> str:
-    return "n/a" if v is None or (isinstance(v, float) and np.isnan(v)) else f"{v:.{nd}f}"
-
-
-def build_report(
-    study: Study | str | Path,
-    *,
-    results_dir: str | Path | None = None,
-    out_dir: str | Path | None = None,
-    progress: Callable[[str], None] | None = None,
-) -> Path:
-    """Write the study report and return the path of its HTML file.
-
-    Parameters
-    ----------
-    study : Study or path
-        The study (or its ``study.toml``).
-    results_dir : path, optional
-        The analysis tables (default: the study's ``results/``); analysed first when missing.
-    out_dir : path, optional
-        Where to write ``report.html`` and ``figures/`` (default: the study's ``report/``).
-    progress : callable, optional
-        Called with the name of each section when it is done.
-    """
-    st = study if isinstance(study, Study) else load_study(study)
-    results = Path(results_dir) if results_dir else st.results_dir
-    out = Path(out_dir) if out_dir else st.path("report", "report")
-    if not (results / "summary.json").exists():
-        from .run import analyze_study
-
-        analyze_study(st, out_dir=results)
-    summary = json.loads((results / "summary.json").read_text("utf-8"))
-    figdir = out / "figures"
-    trials = _read(results, "trials")
-    bank = st.bank(create=False)
-    done = progress or (lambda name: None)
-
-    sections: list[dict[str, Any]] = []
-    fig: Figure | Axes
-    synthetic = bool(summary.get("synthetic_respondents"))
-    humans = trials[trials["kind"] == "human"] if trials is not None else pd.DataFrame()
-    machines = trials[trials["kind"] == "machine"] if trials is not None else pd.DataFrame()
-    n_humans = humans["respondent"].nunique() if len(humans) else 0
-    groups = sorted(machines["group"].unique()) if len(machines) else []
-
-    # -- bank audit ------
+def _audit_section(
+    rc: _parts.ReportContext, bank: Any, results: Path
+) -> tuple[dict[str, Any], list[dict[str, Any]]]:
     audit_path = results / "audit.json"
     if (
         audit_path.exists()
@@ -188,377 +175,139 @@ def build_report(
             f"({worst['family']}, scheme {worst['distractor_scheme']}; chance "
             f"{worst['chance']:.0%})."
         )
-    tables = [_table(pd.DataFrame(fam_rows))]
+    blocks = [rc.table("audit_families", pd.DataFrame(fam_rows), caption="Items per family.")]
     if short is not None:
-        tables.append(
-            _table(
+        cols = [
+            "family",
+            "distractor_scheme",
+            "n_choices",
+            "n_items",
+            "chance",
+            "majority_accuracy",
+            "majority_p",
+            "centroid_accuracy",
+            "centroid_p",
+            "flagged",
+        ]
+        blocks.append(
+            rc.table(
+                "audit_shortcuts",
                 short,
-                [
-                    "family",
-                    "distractor_scheme",
-                    "n_choices",
-                    "n_items",
-                    "chance",
-                    "majority_accuracy",
-                    "majority_p",
-                    "centroid_accuracy",
-                    "centroid_p",
-                    "flagged",
-                ],
+                cols,
+                caption="Choices-only shortcut solvers against chance.",
             )
         )
-    sections.append(
-        {"id": "audit", "title": "Bank audit", "reading": reading, "figures": [], "tables": tables}
+    for b in blocks:
+        b["csv"] = ""  # the audit lives in audit.json, not in a CSV
+    sec = {"id": "audit", "title": "Bank audit", "reading": reading, "tables": blocks}
+    return sec, fam_rows
+
+
+def _methods(summary: dict[str, Any], ran: list[_parts.Part]) -> tuple[list[str], list[str]]:
+    """Methods sentences for the parts that ran, the options as run, and their references."""
+    opts = summary.get("options", {})
+    lines = []
+    keys: list[str] = []
+    for p in ran:
+        if p.methods is not None:
+            lines.append(p.methods(summary["parts"].get(p.name, {}), opts))
+        keys += [k for k in p.references if k not in keys]
+    lines.append(
+        f"Options as run: conf_level = {opts.get('conf_level')}, n_boot = {opts.get('n_boot')}, "
+        f"seed = {opts.get('seed')}, irt_model = {opts.get('irt_model')}, min_items = "
+        f"{opts.get('min_items')}, synthetic = {opts.get('synthetic')}, human_pairs = "
+        f"{opts.get('human_pairs')}. Verdict rules: twofold.analysis.verdict (fragility margin "
+        f"±{FRAGILITY_MARGIN:.2f})."
     )
+    return lines, sorted(_parts.REFERENCES[k] for k in keys)
+
+
+def build_report(
+    study: Study | str | Path,
+    *,
+    results_dir: str | Path | None = None,
+    out_dir: str | Path | None = None,
+    progress: Callable[[str], None] | None = None,
+) -> Path:
+    """Write the study report and return the path of its HTML file.
+
+    Parameters
+    ----------
+    study : Study or path
+        The study (or its ``study.toml``).
+    results_dir : path, optional
+        The analysis tables (default: the study's ``results/``); analysed first when missing.
+    out_dir : path, optional
+        Where to write ``report.html`` and ``figures/`` (default: the study's ``report/``).
+    progress : callable, optional
+        Called with the name of each section when it is done.
+    """
+    st = study if isinstance(study, Study) else load_study(study)
+    results = Path(results_dir) if results_dir else st.results_dir
+    out = Path(out_dir) if out_dir else st.path("report", "report")
+    if not (results / "summary.json").exists():
+        from .run import analyze_study
+
+        analyze_study(st, out_dir=results)
+    summary = json.loads((results / "summary.json").read_text("utf-8"))
+    figdir = out / "figures"
+    trials = _parts.ReportContext(results, out, pd.DataFrame(), None).read("trials")
+    bank = st.bank(create=False)
+    done = progress or (lambda name: None)
+
+    notes = _read_notes(results)
+    rc = _parts.ReportContext(results=results, out=out, notes=notes, trials=trials)
+    synthetic = bool(summary.get("synthetic_respondents"))
+    humans = trials[trials["kind"] == "human"] if trials is not None else pd.DataFrame()
+    machines = trials[trials["kind"] == "machine"] if trials is not None else pd.DataFrame()
+    n_humans = humans["respondent"].nunique() if len(humans) else 0
+    groups = sorted(machines["group"].unique()) if len(machines) else []
+
+    sections: list[dict[str, Any]] = [_verdict_section(rc, figdir, out)]
+    done("verdict")
+    audit_sec, fam_rows = _audit_section(rc, bank, results)
+    sections.append(audit_sec)
     done("audit")
-
-    # -- difficulty profiles ------
-    hd, mer, agr, rel = (
-        _read(results, n)
-        for n in (
-            "item_difficulty",
-            "machine_error_rates",
-            "difficulty_agreement",
-            "difficulty_reliability",
-        )
-    )
-    if hd is not None and mer is not None:
-        pts = mer.merge(hd[["item", "difficulty"]], on="item").rename(
-            columns={"difficulty": "human_difficulty", "error_rate": "machine_error"}
-        )
-        stats = None
-        reading = ""
-        if agr is not None:
-            sp = agr[(agr["statistic"] == "spearman") & (agr["interval"] == "bca")]
-            stats = sp[sp["family"] != "all"]
-            lines = [
-                f"{r.group}: ρ = {_fmt(r.estimate)} [{_fmt(r.ci_low)}, {_fmt(r.ci_high)}] "
-                f"over {r.n_items} items"
-                for r in sp[sp["family"] == "all"].itertuples()
+    ran = []
+    for part in _parts.PARTS:
+        entry = summary.get("parts", {}).get(part.name)
+        ok = entry is not None and entry.get("status") == "ok"
+        if ok:
+            ran.append(part)
+        if part.section is None:
+            continue
+        sec = part.section(rc) if ok else None
+        if sec is not None:
+            sec.update(id=part.name, title=part.title, synthetic=synthetic)
+            sec.setdefault("figures", [])
+            if part.figure is not None:
+                tabs = {n: df for n in part.tables if (df := rc.read(n)) is not None}
+                fig = part.figure(tabs) if tabs else None
+                if fig is not None:
+                    sec["figures"].append(_img(fig, figdir / part.name, out))
+            shown = {b["name"] for b in sec["tables"]}
+            sec["notes"] = [
+                n
+                for n in notes.to_dict("records")
+                if n["part"] == part.name and n["table"] not in shown
             ]
-            reading = (
-                "Do machines find the same items hard as people? A rank correlation near "
-                "1 means the machine's hardest items are people's hardest; near 0, its "
-                "difficulties are unrelated to people's. " + "; ".join(lines) + "."
-            )
-        if rel is not None:
-            r_all = rel[rel["family"] == "all"]
-            if len(r_all) and pd.notna(r_all["spearman_brown"].iloc[0]):
-                reading += (
-                    " The ceiling: people's own difficulty profile is reproduced between random "
-                    f"halves of the sample with ρ = {r_all['split_half'].iloc[0]:.2f} "
-                    f"(Spearman–Brown {r_all['spearman_brown'].iloc[0]:.2f} for the full "
-                    "sample); a machine near that value agrees with people as well as people "
-                    "agree with each other."
-                )
-        gap = _read(results, "item_gap_variation")
-        if gap is not None and len(gap):
-            words = [
-                f"{r.term.split('[T.')[-1].rstrip(']')} − people: SD {_fmt(r.sd)} "
-                f"[{_fmt(r.sd_ci_low)}, {_fmt(r.sd_ci_high)}] log-odds over {r.n_items} items "
-                f"(average gap {_fmt(r.gap)}; test of no spread p = {_fmt(r.p_val, 3)})"
-                + (f", {r.note}" if isinstance(r.note, str) and r.note else "")
-                for r in gap.itertuples()
-            ]
-            reading += (
-                " The same question in the mixed model: each item gets its own machine-minus-"
-                "people difference in the log-odds of a correct answer (a by-item random slope "
-                "of respondent kind), and its SD says how much that difference varies from "
-                "item to item. Near 0, machines are behind or ahead by the same amount on "
-                "every item, so they find the same items hard as people; a large SD means the "
-                "gap depends on the item. " + "; ".join(words) + "."
-            )
-        fig = F.difficulty_profiles(pts, stats)
-        tbl = (
-            [
-                _table(
-                    agr[agr["interval"] == "bca"],
-                    [
-                        "group",
-                        "family",
-                        "statistic",
-                        "estimate",
-                        "ci_low",
-                        "ci_high",
-                        "p_val",
-                        "n_items",
-                    ],
-                )
-            ]
-            if agr is not None
-            else []
-        )
-        if rel is not None:
-            tbl.append(
-                _table(
-                    rel,
-                    [
-                        "family",
-                        "n_items",
-                        "n_respondents",
-                        "split_half",
-                        "spearman_brown",
-                        "q_low",
-                        "q_high",
-                    ],
-                )
-            )
-        if gap is not None and len(gap):
-            tbl.append(
-                _table(
-                    gap,
-                    [
-                        "term",
-                        "gap",
-                        "sd",
-                        "sd_ci_low",
-                        "sd_ci_high",
-                        "corr_item",
-                        "p_val",
-                        "n_items",
-                        "note",
-                    ],
-                )
-            )
-        sections.append(
-            {
-                "id": "difficulty",
-                "title": "Difficulty profiles",
-                "reading": reading,
-                "figures": [_img(fig, figdir / "difficulty_profiles")],
-                "tables": tbl,
-                "synthetic": synthetic,
-            }
-        )
-    done("difficulty")
-
-    # -- item-response scale ------
-    items, ab, dep = (_read(results, n) for n in ("irt_items", "irt_abilities", "irt_departures"))
-    if items is not None and ab is not None:
-        mach = ab[(ab["kind"] == "machine") & (ab["pooled"].astype(bool))]
-        chosen = items.dropna(subset=["a", "b"])
-        if dep is not None and len(dep):
-            top = dep.reindex(dep["z"].abs().sort_values(ascending=False).index)["item"]
-            chosen = chosen[chosen["item"].isin(list(dict.fromkeys(top))[:5])]
-        else:
-            chosen = chosen.iloc[np.linspace(0, len(chosen) - 1, min(5, len(chosen))).astype(int)]
-        fig = F.item_curves(
-            chosen[["item", "a", "b"]],
-            mach.rename(columns={"respondent": "group"})[["group", "theta"]],
-        )
-        lines = [
-            f"{r.respondent}: θ = {_fmt(r.theta)} (SE {_fmt(r.se)}), lz = {_fmt(r.lz)}"
-            for r in mach.itertuples()
-        ]
-        reading = (
-            "Each machine is placed on the ability scale calibrated on people. A strongly "
-            "negative person-fit lz means its pattern is unlike a person of that ability: "
-            "it fails items people find easy and solves items people find hard. "
-            + "; ".join(lines)
-            + "."
-        )
-        sections.append(
-            {
-                "id": "irt",
-                "title": "Machines on the human scale",
-                "reading": reading,
-                "figures": [_img(fig, figdir / "item_curves")],
-                "tables": [
-                    _table(mach, ["respondent", "theta", "se", "n_items", "n_correct", "lz"]),
-                    _table(
-                        items,
-                        ["item", "a", "b", "a_se", "b_se", "p_correct", "infit", "outfit"],
-                        max_rows=12,
-                    ),
-                ],
-                "synthetic": synthetic,
-                "note": f"Item table shows 12 of {len(items)} items; all are in "
-                "results/irt_items.csv.",
-            }
-        )
-    done("irt")
-
-    # -- error types ------
-    et, ett = _read(results, "error_types"), _read(results, "error_type_tests")
-    if et is not None:
-        fig = F.error_type_composition(et)
-        reading = "Which kinds of wrong answers does each respondent group give?"
-        if ett is not None:
-            sig = ett[ett["p_val"] < 0.05]
-            reading += (
-                f" In {len(sig)} of {len(ett)} family × machine comparisons the error-type "
-                "distribution differs from people's (p < .05)."
-            )
-        sections.append(
-            {
-                "id": "errors",
-                "title": "Error types",
-                "reading": reading,
-                "figures": [_img(fig, figdir / "error_types")],
-                "tables": [_table(ett)] if ett is not None else [],
-                "synthetic": synthetic,
-            }
-        )
-    done("errors")
-
-    # -- error consistency ------
-    cp, cs = _read(results, "consistency_pairs"), _read(results, "consistency_summary")
-    if cp is not None:
-        fig = F.error_consistency(cp.rename(columns={"pair_type": "kind_pair"}), summary=cs)
-        hh = cp.loc[cp["pair_type"] == "human-human", "kappa"].dropna()
-        reading = (
-            "Error consistency asks whether two respondents err on the same trials beyond "
-            "what their accuracies predict (0 = independent, 1 = identical errors)."
-        )
-        hh_row = cs[cs["pair_type"] == "human-human"] if cs is not None else cs
-        if hh_row is not None and len(hh_row) and pd.notna(hh_row["median"].iloc[0]):
-            reading += (
-                f" Between people the median is {hh_row['median'].iloc[0]:.2f} (the ceiling), "
-                f"over {int(hh_row['n_pairs'].iloc[0])} pairs."
-            )
-        elif len(hh):
-            reading += f" Between people the median is {hh.median():.2f} (the ceiling)."
-        hm = cp[cp["pair_type"] == "human-machine"]
-        for g in groups:
-            k = hm.loc[(hm["group_a"] == g) | (hm["group_b"] == g), "kappa"].dropna()
-            if len(k):
-                reading += f" {g} with people: {k.mean():.2f}."
-        sections.append(
-            {
-                "id": "consistency",
-                "title": "Error consistency",
-                "reading": reading,
-                "figures": [_img(fig, figdir / "error_consistency")],
-                "tables": [_table(cs)] if cs is not None else [],
-                "synthetic": synthetic,
-            }
-        )
-    done("consistency")
-
-    # -- robustness ------
-    rb = _read(results, "robustness")
-    if rb is not None:
-        allf = rb[rb["family"] == "all"].rename(
-            columns={
-                "acc_parent": "parent_accuracy",
-                "acc_isomorph": "variant_accuracy",
-                "n_parent": "n_pairs",
-            }
-        )
-        fig = F.robustness(allf)
-        lines = [
-            f"{r.group}: {r.parent_accuracy:.0%} → {r.variant_accuracy:.0%}"
-            for r in allf.itertuples()
-        ]
-        sections.append(
-            {
-                "id": "robustness",
-                "title": "Robustness to isomorphs",
-                "reading": "Accuracy on parent items and on their structure-preserving "
-                "variants: " + "; ".join(lines) + ".",
-                "figures": [_img(fig, figdir / "robustness")],
-                "tables": [
-                    _table(
-                        rb,
-                        [
-                            "group",
-                            "family",
-                            "acc_parent",
-                            "acc_isomorph",
-                            "difference",
-                            "ci_low",
-                            "ci_high",
-                        ],
-                    )
-                ],
-                "synthetic": synthetic,
-            }
-        )
-    done("robustness")
-
-    # -- factor effects ------
-    fe = _read(results, "factor_effects")
-    if fe is not None:
-        eff = fe[fe["quantity"] == "effect"].copy()
-        eff["factor"] = eff["term"].astype(str).str.replace("factor_", "")
-        fig = F.factor_effects(eff[["family", "factor", "group", "estimate", "ci_low", "ci_high"]])
-        diff = fe[(fe["quantity"] == "difference") & (fe["p_val"] < 0.05)]
-        sections.append(
-            {
-                "id": "factors",
-                "title": "Difficulty factors",
-                "reading": "How much each generator factor raises the odds of an error, "
-                "for people and for each machine. "
-                f"{len(diff)} factor effects differ between a machine and "
-                "people (p < .05).",
-                "figures": [_img(fig, figdir / "factor_effects")],
-                "tables": [
-                    _table(
-                        fe,
-                        [
-                            "family",
-                            "term",
-                            "group",
-                            "quantity",
-                            "estimate",
-                            "ci_low",
-                            "ci_high",
-                            "p_val",
-                            "note",
-                        ],
-                    )
-                ],
-                "synthetic": synthetic,
-            }
-        )
-    done("factors")
-
-    # -- effort vs time ------
-    if len(machines) and len(humans) and humans["rt_ms"].notna().any():
-        rt = humans.groupby("item")["rt_ms"].median().rename("human_rt_ms")
-        ef = machines.groupby(["group", "item"]).agg(
-            effort=("effort", "mean"), effort_unit=("effort_unit", "first")
-        )
-        pts = ef.reset_index().merge(rt.reset_index(), on="item")
-        if pts["effort"].notna().any():
-            fig = F.effort_vs_time(pts)
-            rho = [
-                f"{g}: ρ = {pts[pts['group'] == g][['effort', 'human_rt_ms']].corr('spearman').iloc[0, 1]:.2f}"  # noqa: E501
-                for g in groups
-                if (pts["group"] == g).sum() > 2
-            ]
+            sections.append(sec)
+        elif entry is not None and not ok:
             sections.append(
                 {
-                    "id": "effort",
-                    "title": "Machine effort and human time",
-                    "reading": "Do items that take people longer also take machines "
-                    "more work? Spearman correlations per machine: " + "; ".join(rho) + ".",
-                    "figures": [_img(fig, figdir / "effort_vs_time")],
+                    "id": part.name,
+                    "title": part.title,
+                    "reading": f"Not run on these data: {entry.get('reason', '')}",
                     "tables": [],
-                    "synthetic": synthetic,
                 }
             )
-    done("effort")
-
-    # -- mixed model table ------
-    acc = _read(results, "accuracy_fixed")
-    if acc is not None:
-        sections.append(
-            {
-                "id": "mixed",
-                "title": "Accuracy model",
-                "reading": "Logistic mixed model of accuracy with crossed random "
-                "intercepts for respondents and items (fixed effects below, "
-                "on the log-odds scale).",
-                "figures": [],
-                "tables": [_table(acc)],
-                "synthetic": synthetic,
-            }
-        )
+        done(part.name)
 
     for sec in sections:
         sec.setdefault("synthetic", False)
-        sec.setdefault("note", "")
+        sec.setdefault("notes", [])
+        sec.setdefault("figures", [])
+        sec.setdefault("groups", None)
     facts = [
         ("bank hash", bank.hash),
         ("families", ", ".join(f"{r['family']} ({r['items']} items)" for r in fam_rows)),
@@ -567,7 +316,7 @@ def build_report(
         (
             "machine groups",
             ", ".join(
-                f"{g} ({machines[machines['group'] == g]['respondent'].nunique()} seeds)"  # noqa: E501
+                f"{g} ({machines[machines['group'] == g]['respondent'].nunique()} seeds)"
                 for g in groups
             )
             or "none",
@@ -581,6 +330,7 @@ def build_report(
     }
     if skipped:
         facts.append(("analyses skipped", "; ".join(f"{p}: {r}" for p, r in skipped.items())))
+    methods, references = _methods(summary, ran)
     context = {
         "study": {
             "name": st.name,
@@ -594,7 +344,8 @@ def build_report(
             "facts": facts,
         },
         "sections": sections,
-        "methods": METHODS,
+        "methods": methods,
+        "references": references,
         "software": [(n, package_version(n) or "not installed") for n in _SOFTWARE],
         "version": __version__,
         "generated": _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),

@@ -4,23 +4,11 @@
 runs the selected parts and writes each table as CSV to the results folder with a JSON summary
 (``summary.json``). Parts, in order:
 
-============ ==============================================================================
-part         tables written
-============ ==============================================================================
-data         trials.csv, sessions.csv, issues.csv
-irt          irt_items.csv, irt_abilities.csv, irt_departures.csv (human-calibrated scale)
-mixed        accuracy_fixed.csv, accuracy_random.csv, item_gap_variation.csv (by-item spread of
-             the machine-minus-human difference), log_rt_fixed.csv, log_rt_random.csv,
-             log_effort_fixed.csv, log_effort_random.csv
-factors      factor_effects.csv
-agreement    item_difficulty.csv, machine_error_rates.csv, difficulty_agreement.csv,
-             difficulty_reliability.csv (the human split-half ceiling)
-consistency  consistency_pairs.csv (pairs with a machine; every pair with human_pairs = "all"),
-             consistency_summary.csv (all pairs, streamed: the human-human row is the ceiling)
-errors       error_types.csv, error_type_tests.csv, error_type_odds.csv
-robustness   robustness.csv, robustness_test_fixed.csv, robustness_test_random.csv
-export       dataset/ (Psych-DS-style folder with a Frictionless data package)
-============ ==============================================================================
+Each part is declared once in :mod:`twofold.analysis._parts` (its tables, options, notes,
+figure and report section); :data:`PARTS` lists their names in the order they run. Beside the
+tables, every run writes ``notes.csv`` (each doubt with the table it concerns: warnings, fits
+that did not converge, unidentified slopes, undefined correlations, separation) and
+``verdict.csv`` (:func:`twofold.analysis.verdict.build_verdict`), both also in ``summary.json``.
 
 Options come from the study file's ``[analysis]`` table (``conf_level``, ``n_boot``, ``seed``,
 ``irt_model``, ``min_items``, ``synthetic``, ``human_pairs``, ``parts``) and can be overridden by
@@ -44,22 +32,15 @@ from twofold.study.exceptions import InputError, SpecError, TwofoldWarning
 from twofold.study.logs import write_json_atomic
 from twofold.study.studyfile import Study, load_study
 
-from . import compare, irt, mixed
+from . import _parts, irt, mixed
+from ._parts import Skip as _Skip
 from .data import StudyData, factor_columns, load_study_data
+from .verdict import build_verdict
 
 __all__ = ["OPTIONS", "PARTS", "AnalysisRun", "analyze_study", "parse_parts"]
 
-PARTS = (
-    "data",
-    "irt",
-    "mixed",
-    "factors",
-    "agreement",
-    "consistency",
-    "errors",
-    "robustness",
-    "export",
-)
+#: the part names, in the order they run (declared in :data:`twofold.analysis._parts.PARTS`)
+PARTS = tuple(p.name for p in _parts.PARTS)
 
 #: ``[analysis]`` keys: name -> (default, what is accepted)
 OPTIONS: dict[str, tuple[Any, str]] = {
@@ -182,10 +163,6 @@ def _irt(data: StudyData, opts: dict[str, Any]) -> tuple[dict[str, pd.DataFrame]
     }, res
 
 
-class _Skip(Exception):  # noqa: N818 - control flow inside this module
-    pass
-
-
 def _fixed_rhs(trials: pd.DataFrame, base: str) -> str:
     terms = [base] if base else []
     fams = trials["family"].dropna().unique()
@@ -301,42 +278,109 @@ def analyze_study(
         "load_seconds": load_seconds,
         "parts": {},
     }
-    irt_items: pd.DataFrame | None = None
-    for part in chosen:
+    made: dict[str, pd.DataFrame] = {}
+    notes: list[dict[str, Any]] = []
+    for decl in (p for p in _parts.PARTS if p.name in chosen):
+        part = decl.name
         t0 = time.perf_counter()
         entry: dict[str, Any] = {"status": "ok", "files": [], "warnings": []}
+        ctx = _parts.PartContext(data=data, opts=opts, study=st, out=out, made=made)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", TwofoldWarning)
             try:
-                made = _run_part(part, data, opts, st, out, irt_items)
-                if part == "irt" and "irt_items" in made:
-                    irt_items = made["irt_items"]
-            except _Skip as why:
-                made = {}
+                result = decl.run(ctx)
+            except (_Skip, InputError) as why:
+                result = {}
                 entry["status"] = "skipped"
                 entry["reason"] = str(why)
-            except InputError as err:
-                made = {}
-                entry["status"] = "skipped"
-                entry["reason"] = str(err)
         entry["warnings"] = list(dict.fromkeys(str(w.message) for w in caught))
-        for name, df in made.items():
+        for name, df in result.items():
             if name == "dataset":
                 entry["files"].append("dataset/")
                 continue
             path = out / f"{name}.csv"
             df.to_csv(path, index=False, lineterminator="\n")
-            tables[name] = df
+            tables[name] = made[name] = df
             entry["files"].append(path.name)
+        part_notes = _part_notes(decl, result, entry)
+        notes += part_notes
+        entry["notes"] = [n["message"] for n in part_notes]
         entry["seconds"] = round(time.perf_counter() - t0, 3)
-        entry.update(_highlights(part, made))
+        entry.update(_highlights(part, result))
         summary["parts"][part] = entry
         if timing is not None:
             timing(part, entry["seconds"])
         if progress is not None:
             progress(part)
+    notes_df = _merge_notes(out, notes, [p for p in PARTS if p in chosen])
+    notes_df.to_csv(out / "notes.csv", index=False, lineterminator="\n")
+    verdict = build_verdict(
+        {name: made.get(name, _read_csv(out, name)) for name in _VERDICT_INPUTS},
+        conf_level=opts["conf_level"],
+    )
+    verdict.to_csv(out / "verdict.csv", index=False, lineterminator="\n")
+    tables["notes"], tables["verdict"] = notes_df, verdict
+    summary["verdict"] = [
+        {k: _parts.json_ready(v) for k, v in rec.items()} for rec in verdict.to_dict("records")
+    ]
     write_json_atomic(out / "summary.json", json.loads(json.dumps(summary, default=_json)))
     return AnalysisRun(out_dir=out, tables=tables, summary=summary, data=data)
+
+
+_VERDICT_INPUTS = (
+    "difficulty_agreement",
+    "difficulty_reliability",
+    "consistency_summary",
+    "error_type_tests",
+    "robustness",
+)
+
+
+def _read_csv(out: Path, name: str) -> pd.DataFrame | None:
+    """A table an earlier run wrote (for parts not run this time), or None."""
+    path = out / f"{name}.csv"
+    if not path.exists():
+        return None
+    try:
+        return pd.read_csv(path)
+    except pd.errors.EmptyDataError:
+        return None
+
+
+def _part_notes(
+    decl: _parts.Part, result: dict[str, Any], entry: dict[str, Any]
+) -> list[dict[str, Any]]:
+    """The part's doubts, each with the table it concerns: skip reason, warnings, table checks."""
+    tables = {k: v for k, v in result.items() if isinstance(v, pd.DataFrame)}
+    main = decl.tables[0]
+    rows: list[dict[str, Any]] = []
+    if entry["status"] != "ok":
+        rows.append(
+            {"table": main, "severity": "skipped", "subject": "", "message": entry["reason"]}
+        )
+    for msg in entry["warnings"]:
+        # a warning names its table first ("difficulty_agreement: ..."); else the part's first
+        head = msg.split(":", 1)[0].strip()
+        table = head if head in decl.tables else main
+        rows.append({"table": table, "severity": "warning", "subject": "", "message": msg})
+    checks = decl.notes(tables) if decl.notes is not None and tables else []
+    rows = (
+        [r for r in rows if r["severity"] != "warning"]
+        + checks
+        + [r for r in rows if r["severity"] == "warning"]
+    )
+    return [{"part": decl.name, **r} for r in rows]
+
+
+def _merge_notes(out: Path, notes: list[dict[str, Any]], ran: list[str]) -> pd.DataFrame:
+    """This run's notes, plus earlier notes of the parts not run this time."""
+    cols = list(_parts.NOTE_COLUMNS)
+    new = pd.DataFrame(notes, columns=cols)
+    old = _read_csv(out, "notes")
+    if old is not None and set(cols) <= set(old.columns):
+        old = old.loc[~old["part"].isin(ran), cols]
+        new = pd.concat([old, new], ignore_index=True) if len(old) else new
+    return new.fillna("")
 
 
 def _json(value: Any) -> Any:
@@ -345,73 +389,10 @@ def _json(value: Any) -> Any:
     return str(value)
 
 
-def _run_part(
-    part: str,
-    data: StudyData,
-    opts: dict[str, Any],
-    st: Study,
-    out: Path,
-    irt_items: pd.DataFrame | None,
-) -> dict[str, Any]:
-    t = data.trials
-    lvl = opts["conf_level"]
-    has_machines = (t["kind"] == "machine").any()
-    has_humans = (t["kind"] == "human").any()
-    if part == "data":
-        return {"trials": t, "sessions": data.sessions, "issues": data.issues}
-    if part == "irt":
-        tables, _ = _irt(data, opts)
-        return tables
-    if part == "mixed":
-        return _mixed(data, opts)
-    if part == "factors":
-        if not has_humans:
-            raise _Skip("no human respondents (effects are relative to people)")
-        return {"factor_effects": mixed.factor_effects(t, conf_level=lvl)}
-    if part == "agreement":
-        if not (has_humans and has_machines):
-            raise _Skip("needs both human and machine respondents")
-        irt_b = irt_items[["item", "b"]] if irt_items is not None else None
-        return {
-            "item_difficulty": compare.item_difficulty(t, irt=irt_b),
-            "machine_error_rates": compare.machine_error_rates(t),
-            "difficulty_agreement": compare.difficulty_agreement(
-                t, irt=irt_b, n_boot=opts["n_boot"], conf_level=lvl, seed=opts["seed"]
-            ),
-            "difficulty_reliability": compare.difficulty_reliability(
-                t, conf_level=lvl, seed=opts["seed"]
-            ),
-        }
-    if part == "consistency":
-        pairs, summ = compare.consistency_tables(
-            t, min_items=opts["min_items"], human_pairs=opts["human_pairs"], conf_level=lvl
-        )
-        return {"consistency_pairs": pairs, "consistency_summary": summ}
-    if part == "errors":
-        return {
-            "error_types": compare.error_types(t),
-            "error_type_tests": compare.error_type_tests(t, seed=opts["seed"]),
-            "error_type_odds": compare.error_type_odds(t, conf_level=lvl),
-        }
-    if part == "robustness":
-        if not t["isomorph"].astype(bool).any():
-            raise _Skip("no isomorphs answered")
-        res = compare.robustness_test(t, conf_level=lvl)
-        return {
-            "robustness": compare.robustness(t, conf_level=lvl),
-            "robustness_test_fixed": res.fixed,
-            "robustness_test_random": res.random_effects,
-        }
-    if part == "export":
-        from .export import export_dataset
-
-        export_dataset(data, out / "dataset", logs_dir=st.logs_dir, overwrite=True)
-        return {"dataset": None}
-    raise AssertionError(part)  # pragma: no cover - parse_parts checked the name
-
-
 def _highlights(part: str, made: dict[str, Any]) -> dict[str, Any]:
     """A few headline numbers per part for summary.json."""
+    if part == "irt" and "irt_fit" in made:
+        return {"fit": {k: _parts.json_ready(v) for k, v in made["irt_fit"].iloc[0].items()}}
     if part == "consistency" and "consistency_summary" in made:
         s = made["consistency_summary"]
         return {
