@@ -54,7 +54,12 @@ def test_analyze_writes_tables_and_summary_to_results(toy, capsys):
     assert summary["options"]["n_boot"] == 200  # from the study's [analysis] table
     agree = pd.read_csv(out / "difficulty_agreement.csv")
     assert set(agree["n_boot"]) == {200}
-    assert "wrote 12 tables" in capsys.readouterr().out
+    assert "wrote 14 tables" in capsys.readouterr().out  # the 12 above, notes and verdict
+    notes = pd.read_csv(out / "notes.csv", keep_default_na=False)
+    assert list(notes.columns) == ["part", "table", "severity", "subject", "message"]
+    verdict = pd.read_csv(out / "verdict.csv")
+    assert summary["verdict"] and len(summary["verdict"]) == len(verdict)
+    assert set(verdict["group"]) == {"steadybot", "widebot"}
 
 
 def test_output_folder_option(toy, tmp_path):
@@ -64,7 +69,9 @@ def test_output_folder_option(toy, tmp_path):
         "cache",  # the Parquet copy of the tables read from the logs
         "consistency_pairs.csv",
         "consistency_summary.csv",
+        "notes.csv",
         "summary.json",
+        "verdict.csv",
     ]
 
 
@@ -74,7 +81,8 @@ def test_unknown_part_is_one_error_line_naming_the_accepted_parts(toy, capsys):
     err = _flat(capsys.readouterr().err)
     assert err == (
         "error: field '--only': got 'agreemnt'; accepted: a comma-separated list of parts: "
-        "data, irt, mixed, factors, agreement, consistency, errors, robustness, export."
+        "data, irt, mixed, factors, agreement, participants, consistency, errors, robustness, "
+        "effort, export."
     )
 
 
