@@ -1,4 +1,4 @@
-"""Profiled (RE)ML for linear mixed models whose random effects are intercepts only.
+"""Profiled (RE)ML for linear mixed models by penalised least squares.
 
 Private helper of :mod:`twofold.analysis.mixed` (``fit_lmm(..., engine="pls")``).
 
@@ -70,7 +70,12 @@ class PLSFit:
     n_eval : int
         Criterion evaluations used by the optimiser.
     modes : tuple of numpy.ndarray
-        Conditional modes (BLUPs) of the random intercepts per factor, in level order.
+        Conditional modes (BLUPs) of the random intercepts per factor, in level order (with
+        random slopes: arrays of shape ``(levels, terms)``).
+    covariances : tuple of numpy.ndarray
+        With random slopes (:class:`DesignCrossProducts`): the covariance matrix of each
+        factor's random effects, ``sigma2 T_k T_k'``; ``variances`` then holds their diagonals,
+        factor after factor, and ``theta`` the lower triangles of the ``T_k`` (lme4's layout).
     """
 
     theta: np.ndarray
@@ -83,6 +88,7 @@ class PLSFit:
     converged: bool
     n_eval: int
     modes: tuple[np.ndarray, ...]
+    covariances: tuple[np.ndarray, ...] = ()
 
 
 class CrossProducts:
@@ -274,6 +280,126 @@ class CrossProducts:
         )
 
 
+class DesignCrossProducts:
+    """Profiled (RE)ML for any random-effects design of :mod:`._design` (intercepts and
+    correlated slopes, crossed or nested factors).
+
+    The same criterion as :class:`CrossProducts` with ``Lambda`` block diagonal (one
+    lower-triangular ``T_k`` per level of factor ``k``): the cross-products ``Z'Z`` (per-level
+    blocks of the largest factor, its cross block with the others, the others' block), ``Z'y``,
+    ``Z'X``, ``X'X``, ``X'y`` and ``y'y`` are formed once, in ``O(n s^2)``; each evaluation
+    factors ``Lambda'Z'Z Lambda + I`` by :class:`._design.BlockCholesky` (cost model there).
+    ``theta`` is searched by L-BFGS-B with the diagonal elements bounded below by 0.
+    """
+
+    def __init__(self, x, y, design) -> None:
+        x = np.asarray(x, dtype=float)
+        y = np.asarray(y, dtype=float)
+        n, p = x.shape
+        self.n, self.p, self.d = n, p, design
+        if p and np.linalg.matrix_rank(x) < p:
+            raise NotIdentifiedError(
+                f"the fixed-effects design has {p} columns but rank {np.linalg.matrix_rank(x)}"
+            )
+        # centre y on its least-squares fit (see CrossProducts)
+        self.beta_ols = np.linalg.lstsq(x, y, rcond=None)[0]
+        y = y - x @ self.beta_ols
+        self.cross = design.cross(np.ones(n))
+        self.zt_yx = design.zt_times(np.column_stack([y, x]))
+        self.xtx = x.T @ x
+        self.xty = x.T @ y
+        self.yty = float(y @ y)
+
+    def _solve(self, theta: np.ndarray):
+        from ._design import BlockCholesky
+
+        d = self.d
+        ts = d._ordered_t(theta)
+        chol = BlockCholesky(d, ts, *self.cross)
+        w = chol.forward(d.lam_t(ts, self.zt_yx))
+        cu, rzx = w[:, 0], w[:, 1:]
+        a = self.xtx - rzx.T @ rzx
+        try:
+            lx = linalg.cholesky(a, lower=True, check_finite=False)
+        except linalg.LinAlgError as err:
+            raise NotIdentifiedError(
+                "the fixed-effects design is rank deficient (X'X minus its random-effects part "
+                "is not positive definite)"
+            ) from err
+        cb = linalg.solve_triangular(lx, self.xty - rzx.T @ cu, lower=True, check_finite=False)
+        r2 = max(self.yty - float(cu @ cu) - float(cb @ cb), np.finfo(float).tiny)
+        logdet_x = 2.0 * float(np.log(np.diag(lx)).sum())
+        return ts, chol, cu, rzx, lx, cb, r2, chol.logdet(), logdet_x
+
+    def deviance(self, theta: np.ndarray, reml: bool) -> float:
+        """Profiled deviance (ML) or REML criterion at ``theta`` (lme4's layout)."""
+        *_, r2, logdet_l, logdet_x = self._solve(np.asarray(theta, dtype=float))
+        if reml:
+            nr = self.n - self.p
+            return logdet_l + logdet_x + nr * (1.0 + _LOG_2PI + np.log(r2 / nr))
+        return logdet_l + self.n * (1.0 + _LOG_2PI + np.log(r2 / self.n))
+
+    def fit(self, *, reml: bool, starts=(1.0, 0.25, 3.0)) -> PLSFit:
+        """Minimise the criterion from each start (the identity ``T_k`` scaled); keep the best."""
+        d = self.d
+        n_eval = 0
+
+        def fun(theta):
+            nonlocal n_eval
+            n_eval += 1
+            return self.deviance(theta, reml)
+
+        lower = d.theta_lower
+        bounds = [(None if not np.isfinite(lo) else lo, None) for lo in lower]
+        best = None
+        for s in starts:
+            res = optimize.minimize(
+                fun,
+                d.theta_start * float(s),
+                method="L-BFGS-B",
+                jac="3-point",
+                bounds=bounds,
+                options={"ftol": 1e-15, "gtol": 1e-10, "maxiter": 1000},
+            )
+            if best is None or res.fun < best.fun - 1e-10:
+                best = res
+        assert best is not None
+        theta = np.where(np.isfinite(lower), np.maximum(best.x, lower), best.x)
+        dev = fun(theta)
+        converged = bool(best.success) or _stationary_theta(fun, theta, dev, lower)
+        ts, chol, cu, rzx, lx, cb, r2, _, _ = self._solve(theta)
+        beta_shift = linalg.solve_triangular(lx, cb, lower=True, trans="T", check_finite=False)
+        u = chol.backward(cu - rzx @ beta_shift)
+        sigma2 = r2 / (self.n - self.p if reml else self.n)
+        inv_lx = linalg.solve_triangular(lx, np.eye(self.p), lower=True, check_finite=False)
+        b = d.lam(ts, u[:, None])[:, 0]
+        covs = tuple(sigma2 * c for c in d.covariances(theta))
+        return PLSFit(
+            theta=theta,
+            beta=self.beta_ols + beta_shift,
+            cov_beta=sigma2 * (inv_lx.T @ inv_lx),
+            sigma2=float(sigma2),
+            variances=np.concatenate([np.diag(c) for c in covs]),
+            deviance=float(dev),
+            reml=reml,
+            converged=converged,
+            n_eval=n_eval,
+            modes=tuple(d.to_input_order(b)),
+            covariances=covs,
+        )
+
+
+def _stationary_theta(fun, theta: np.ndarray, dev: float, lower: np.ndarray) -> bool:
+    """No feasible step of relative size 1e-4 in any theta lowers the criterion by 1e-8."""
+    for j in range(len(theta)):
+        for sign in (-1.0, 1.0):
+            t = theta.copy()
+            t[j] = max(lower[j], t[j] + sign * 1e-4 * max(abs(t[j]), 1e-2))
+            if fun(t) < dev - 1e-8 * max(1.0, abs(dev)):
+                return False
+    return True
+
+
 def _blas_limit(dense_size: int):
     """One BLAS thread for small dense factors.
 
@@ -288,6 +414,12 @@ def _blas_limit(dense_size: int):
     except ImportError:  # pragma: no cover - installed with scikit-learn (via pingouin)
         return contextlib.nullcontext()
     return threadpool_limits(limits=1, user_api="blas")
+
+
+def fit_pls_design(x, y, design, *, reml: bool) -> PLSFit:
+    """Fit ``y ~ X`` with the random effects of a :class:`._design.RandomDesign` (slopes too)."""
+    with _blas_limit(design.qc):
+        return DesignCrossProducts(x, y, design).fit(reml=reml)
 
 
 def fit_pls(x, y, codes, n_levels, *, reml: bool) -> PLSFit:

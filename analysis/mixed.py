@@ -466,13 +466,11 @@ def _fit_glmm_vb(df, x, endog, formula, rnd, level, prior_sd_fixed, prior_sd_log
     )
 
 
-def _fit_glmm_laplace(df, x, endog, m, formula, rnd, level, sd_intervals, fixed_prior_sd):
-    """Laplace ML (private modules ``_design`` and ``_laplace``)."""
+def _random_factors(df: pd.DataFrame, rnd: dict[str, str]) -> tuple[list[Any], dict[str, int]]:
+    """One :class:`._design.Factor` per grouping column (its random formula's model matrix)."""
     import patsy
 
-    from . import _laplace as lp
-    from ._design import Factor, RandomDesign
-    from ._pls import _blas_limit
+    from ._design import Factor
 
     factors, n_groups = [], {}
     for g, f in rnd.items():
@@ -491,6 +489,16 @@ def _fit_glmm_laplace(df, x, endog, m, formula, rnd, level, sd_intervals, fixed_
                 [_re_name(c) for c in zx.columns],
             )
         )
+    return factors, n_groups
+
+
+def _fit_glmm_laplace(df, x, endog, m, formula, rnd, level, sd_intervals, fixed_prior_sd):
+    """Laplace ML (private modules ``_design`` and ``_laplace``)."""
+    from . import _laplace as lp
+    from ._design import RandomDesign
+    from ._pls import _blas_limit
+
+    factors, n_groups = _random_factors(df, rnd)
     names = list(x.columns)
     xa = x.to_numpy(dtype=float)
     penalty = None
@@ -702,17 +710,17 @@ def fit_lmm(
     random : sequence of str or mapping, default ("respondent", "item")
         Grouping columns with random intercepts, or a mapping column -> random formula
         (``{"subject": "1 + days"}`` gives correlated random intercepts and slopes). Several
-        grouping columns are crossed and take intercepts only.
+        grouping columns are crossed (or nested); each may have slopes (``engine="pls"``).
     reml : bool, default True
         Restricted maximum likelihood (else maximum likelihood).
     conf_level : float, default 0.95
     missing : {"raise", "drop"}, default "raise"
     engine : {"auto", "pls", "statsmodels"}, default "auto"
-        ``"pls"``: profiled (RE)ML by penalised least squares on dense cross-products (random
-        intercepts only; about a second or less for a few hundred levels whatever the number of
-        trials). ``"statsmodels"``: ``MixedLM`` (slow with crossed factors: 30-60 s at
-        20,000 trials). ``"auto"`` takes ``"pls"`` when every grouping column has intercepts only
-        and ``"statsmodels"`` for random slopes.
+        ``"pls"`` (and ``"auto"``): profiled (RE)ML by penalised least squares on cross-products
+        formed once (about a second or less for a few hundred levels whatever the number of
+        trials), for random intercepts and correlated slopes on any number of grouping columns.
+        ``"statsmodels"``: ``MixedLM`` as a second opinion (one grouping column with slopes, or
+        crossed intercepts; slow with crossed factors: 30-60 s at 20,000 trials).
 
     Returns
     -------
@@ -733,8 +741,12 @@ def fit_lmm(
     ``L L' = Lambda Z'Z Lambda + I`` gives the penalised residual sum of squares ``r^2`` and the
     profiled criterion ``log|L|^2 + n (1 + log(2 pi r^2 / n))`` (ML) or
     ``log|L|^2 + log|R_X|^2 + (n - p)(1 + log(2 pi r^2 / (n - p)))`` (REML), minimised over
-    ``theta >= 0`` by L-BFGS-B over ``theta^2`` from three starts. Then ``sigma^2 = r^2 / n`` (ML)
-    or ``r^2 / (n - p)`` (REML), the variance of factor ``k`` is ``sigma^2 theta_k^2`` and
+    ``theta >= 0`` by L-BFGS-B over ``theta^2`` from three starts. With random slopes
+    ``Lambda`` is block diagonal with a lower-triangular ``T_k`` per level of factor ``k``
+    (lme4's ``theta`` layout), the same criterion is minimised over ``theta`` (diagonal
+    elements >= 0) and the covariance of factor ``k``'s effects is ``sigma^2 T_k T_k'``. Then
+    ``sigma^2 = r^2 / n`` (ML) or ``r^2 / (n - p)`` (REML), the variance of factor ``k`` is
+    ``sigma^2 theta_k^2`` and
     ``cov(beta) = sigma^2 (R_X' R_X)^-1``. The factor with the most levels is eliminated in closed
     form (its block is diagonal), so the dense part has the other factors' levels only: time grows
     with the cube of that count (fine to a few thousand) and linearly with trials.
@@ -753,21 +765,15 @@ def fit_lmm(
     level = _check_conf(conf_level)
     check_choice("engine", engine, ("auto", "pls", "statsmodels"))
     rnd = _normalise_random(random)
-    if len(rnd) > 1 and any(f != "1" for f in rnd.values()):
+    if engine == "statsmodels" and len(rnd) > 1 and any(f != "1" for f in rnd.values()):
         raise fail(
             "random",
             dict(rnd),
-            "random slopes with one grouping column only; crossed columns take intercepts ('1')",
-        )
-    intercepts_only = all(f == "1" for f in rnd.values())
-    if engine == "pls" and not intercepts_only:
-        raise fail(
-            "engine",
-            engine,
-            "'auto' or 'statsmodels' for random slopes ('pls' fits random intercepts only)",
+            "random slopes with one grouping column only for engine 'statsmodels' (crossed "
+            "columns take intercepts '1'); engine 'pls' fits slopes on crossed columns",
         )
     df = _prepare(data, formula, list(rnd), missing)
-    if engine == "pls" or (engine == "auto" and intercepts_only):
+    if engine in ("pls", "auto"):
         return _fit_lmm_pls(df, formula, rnd, reml, level)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -834,10 +840,11 @@ def fit_lmm(
 def _fit_lmm_pls(
     df: pd.DataFrame, formula: str, rnd: dict[str, str], reml: bool, level: float
 ) -> MixedResult:
-    """Random intercepts only: profiled (RE)ML by penalised least squares (module ``_pls``)."""
+    """Profiled (RE)ML by penalised least squares (module ``_pls``; ``_design`` for slopes)."""
     import patsy
 
-    from ._pls import NotIdentifiedError, fit_pls
+    from ._design import RandomDesign
+    from ._pls import NotIdentifiedError, fit_pls, fit_pls_design
 
     try:
         y, x = patsy.dmatrices(formula, df, return_type="dataframe", NA_action="raise")
@@ -850,16 +857,26 @@ def _fit_lmm_pls(
     n, p = x.shape
     if n - p < 1:
         raise fail("formula", formula, f"fewer fixed-effect columns ({p}) than observations ({n})")
-    codes, n_levels, n_groups = [], [], {}
-    for g in rnd:
-        c, lv = pd.factorize(df[g], sort=True)
-        codes.append(c)
-        n_levels.append(len(lv))
-        n_groups[g] = len(lv)
+    slopes = any(f != "1" for f in rnd.values())
     try:
-        fit = fit_pls(
-            x.to_numpy(dtype=float), y.to_numpy(dtype=float).ravel(), codes, n_levels, reml=reml
-        )
+        if slopes:
+            factors, n_groups = _random_factors(df, rnd)
+            fit = fit_pls_design(
+                x.to_numpy(dtype=float),
+                y.to_numpy(dtype=float).ravel(),
+                RandomDesign(factors),
+                reml=reml,
+            )
+        else:
+            codes, n_levels, n_groups = [], [], {}
+            for g in rnd:
+                c, lv = pd.factorize(df[g], sort=True)
+                codes.append(c)
+                n_levels.append(len(lv))
+                n_groups[g] = len(lv)
+            fit = fit_pls(
+                x.to_numpy(dtype=float), y.to_numpy(dtype=float).ravel(), codes, n_levels, reml=reml
+            )
     except NotIdentifiedError as err:
         raise InputError(
             f"field 'formula': the linear mixed model could not be fitted ({err}); "
@@ -869,11 +886,34 @@ def _fit_lmm_pls(
     if not fit.converged:
         warnings.warn(f"fit_lmm: {formula!r} did not converge.", ConvergenceWarning, stacklevel=3)
     fixed = _fixed_table(x.columns, fit.beta, np.sqrt(np.diag(fit.cov_beta)), level)
-    var = dict(zip(rnd, fit.variances, strict=True))
-    rows = [
-        dict(group=g, term="Intercept", variance=var[g], sd=np.sqrt(var[g]))
-        for g in (sorted(rnd) if len(rnd) > 1 else rnd)
-    ]
+    if slopes:
+        rows = []
+        by_name = {f.name: (f, c) for f, c in zip(factors, fit.covariances, strict=True)}
+        for g in sorted(rnd) if len(rnd) > 1 else rnd:
+            f, cov = by_name[g]
+            rows += [
+                dict(group=g, term=t, variance=cov[j, j], sd=np.sqrt(cov[j, j]))
+                for j, t in enumerate(f.terms)
+            ]
+            for a in range(f.p):
+                for b in range(a + 1, f.p):
+                    den = np.sqrt(cov[a, a] * cov[b, b])
+                    rows.append(
+                        dict(
+                            group=g,
+                            term=f"cov({f.terms[a]}, {f.terms[b]})",
+                            variance=cov[a, b],
+                            corr=cov[a, b] / den if den > 0 else np.nan,
+                        )
+                    )
+        n_theta = len(fit.theta)
+    else:
+        var = dict(zip(rnd, fit.variances, strict=True))
+        rows = [
+            dict(group=g, term="Intercept", variance=var[g], sd=np.sqrt(var[g]))
+            for g in (sorted(rnd) if len(rnd) > 1 else rnd)
+        ]
+        n_theta = len(rnd)
     rows.append(dict(group="Residual", term="", variance=fit.sigma2, sd=np.sqrt(fit.sigma2)))
     rand = pd.DataFrame(rows, columns=list(RANDOM_COLUMNS))
     rand["note"] = ""
@@ -888,7 +928,7 @@ def _fit_lmm_pls(
         n_groups=n_groups,
         loglik=-0.5 * fit.deviance,
         converged=fit.converged,
-        n_params=x.shape[1] + len(rnd) + 1,
+        n_params=x.shape[1] + n_theta + 1,
         raw=fit,
     )
 

@@ -139,9 +139,14 @@ def test_missing_values_raise_unless_dropped():
         fit_lmm(df, "y ~ 1", random=["h"])
 
 
-def test_crossed_factors_take_intercepts_only(sleep):
+def test_statsmodels_engine_takes_crossed_intercepts_only(sleep):
     with pytest.raises(InputError, match="field 'random'"):
-        fit_lmm(sleep, "Reaction ~ Days", random={"Subject": "1 + Days", "Days": "1"})
+        fit_lmm(
+            sleep,
+            "Reaction ~ Days",
+            random={"Subject": "1 + Days", "Days": "1"},
+            engine="statsmodels",
+        )
 
 
 def test_conf_level_is_checked(sleep):

