@@ -1,6 +1,8 @@
 """The ``contrast`` family class: parameters, generation, checks, scoring, reading replies and
-rendering as text. Its other parts are mixins: :mod:`.assembly` (items around a rule),
-:mod:`.variants`, :mod:`.errors` (error types) and :mod:`.drawing` (pictures)."""
+rendering as text. Its other parts are mixins: :mod:`~twofold.study.families.contrast.assembly`
+(items around a rule), :mod:`~twofold.study.families.contrast.variants`,
+:mod:`~twofold.study.families.contrast.errors` (error types) and
+:mod:`~twofold.study.families.contrast.drawing` (pictures)."""
 
 from __future__ import annotations
 
