@@ -68,3 +68,5 @@ cat("cbpp deviance function at the default fit's estimates, default and tight PI
 p3 <- c(getME(m3, "theta"), fixef(m3))
 cat(format(update(m3, devFunOnly = TRUE)(p3), digits = 15),
     format(update(m3t, devFunOnly = TRUE)(p3), digits = 15), "\n")
+cat("verbagg-crossed-tight deviance function at its own estimates:\n")
+cat(format(update(m1t, devFunOnly = TRUE)(c(getME(m1t, "theta"), fixef(m1t))), digits = 15), "\n")
