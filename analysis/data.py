@@ -34,6 +34,7 @@ parent           object    the root parent id (an item's own id when it is a par
 isomorph         bool      true when the item is an isomorph (``variant_of`` set)
 session_status   object    the session's status from its sidecar (``complete``, ``aborted``...)
 source           object    the log file the row came from (relative to the logs folder)
+choice_order     object    select mode, people: bank choice numbers in screen order (``3 1 4 2``)
 ================ ========= =====================================================================
 """
 
@@ -98,6 +99,7 @@ BASE_COLUMNS: tuple[str, ...] = (
     "isomorph",
     "session_status",
     "source",
+    "choice_order",
 )
 
 #: columns of :attr:`StudyData.sessions`
@@ -391,7 +393,11 @@ def _read_one(path: Path) -> Any:
         )
     except (pa.ArrowInvalid, UnicodeDecodeError):
         return None
-    if skipped or table.column_names != [c.name for c in TRIAL_COLUMNS]:
+    names = [c.name for c in TRIAL_COLUMNS]
+    if table.column_names == names[:-1] and names[-1] == "choice_order":
+        # a log written before choice_order: the column is there, empty
+        table = table.append_column("choice_order", pa.nulls(table.num_rows, pa.string()))
+    if skipped or table.column_names != names:
         return None
     import pyarrow.compute as pc
 
@@ -741,7 +747,7 @@ def _with_items(raw: pd.DataFrame, items: pd.DataFrame) -> pd.DataFrame:
 
 # -- cache ---------------------------------------------------------------------------------------
 #: bump when the cached tables' layout or the reading rules change
-CACHE_VERSION = 2
+CACHE_VERSION = 3
 
 
 def _digest(path: Path) -> str | None:

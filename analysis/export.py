@@ -62,6 +62,11 @@ _DESCRIPTIONS: dict[str, tuple[str, str]] = {
     "isomorph": ("boolean", "true when the item is an isomorph"),
     "session_status": ("string", "session status from its sidecar"),
     "source": ("string", "log file the row came from"),
+    "choice_order": (
+        "string",
+        "select mode, people: the bank's choice numbers in the order shown on screen "
+        "(e.g. '3 1 4 2'); empty for generate mode, machines and logs written before it",
+    ),
 }
 _ENUMS = {
     "kind": ["human", "machine"],

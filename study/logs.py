@@ -8,7 +8,12 @@ Frictionless Table Schema describing every column.
 Columns (in order)
 ------------------
 study, bank_hash, respondent, kind, synthetic, session, form, block, trial, item, family, mode,
-response, correct, error_type, status, rt_ms, effort, effort_unit, onset_s, response_s, detail
+response, correct, error_type, status, rt_ms, effort, effort_unit, onset_s, response_s, detail,
+choice_order
+
+``choice_order`` came last and later: logs written before it (their header ends at ``detail``)
+still read, with the column empty; a session resumed on such a log has its header brought up to
+date first (every old row gets the empty cell).
 
 The session record (the sidecar, ``<session>.json``) is declared field by field in
 :data:`SESSION_FIELDS` and checked on every write and read. A CSV file is a *session log* when
@@ -108,8 +113,17 @@ TRIAL_COLUMNS: tuple[Column, ...] = (
     Column("onset_s", "number", "item onset, seconds since session start"),
     Column("response_s", "number", "response event, seconds since session start"),
     Column("detail", "string", "free text: failure reason, raw reply of an invalid answer"),
+    Column(
+        "choice_order",
+        "string",
+        "select mode, people: the bank's choice numbers in the order shown on screen, space "
+        "separated (e.g. '3 1 4 2'); empty for generate mode and machines",
+    ),
 )
 _NAMES = tuple(c.name for c in TRIAL_COLUMNS)
+#: the header of logs written before ``choice_order`` existed (read with that column empty)
+_OLD_NAMES = _NAMES[:-1]
+_CHOICE_ORDER = re.compile(r"^[1-9]\d*( [1-9]\d*)*$")
 
 
 def table_schema() -> dict[str, Any]:
@@ -165,6 +179,10 @@ def _cell(col: Column, value: Any, *, where: str) -> str:
         return repr(float(value))
     if col.enum and value not in col.enum:
         raise fail(col.name, value, "one of " + ", ".join(col.enum), where=where, error=LogError)
+    if col.name == "choice_order" and not (isinstance(value, str) and _CHOICE_ORDER.match(value)):
+        raise fail(
+            col.name, value, "choice numbers separated by spaces", where=where, error=LogError
+        )
     return str(value)
 
 
@@ -427,8 +445,9 @@ def _scan(data: bytes, where: str) -> tuple[list[list[str]], int, list[str]]:
         rows.append(["<unparsable>"])
         ends.append(len(text))
     good = 0  # rows[:good] are complete
+    width = len(_OLD_NAMES) if rows and tuple(rows[0]) == _OLD_NAMES else len(_NAMES)
     for k, row in enumerate(rows):
-        complete = ends[k] > 0 and text[ends[k] - 1] == "\n" and len(row) == len(_NAMES)
+        complete = ends[k] > 0 and text[ends[k] - 1] == "\n" and len(row) == width
         if not complete:
             break
         good = k + 1
@@ -442,7 +461,7 @@ def _scan(data: bytes, where: str) -> tuple[list[list[str]], int, list[str]]:
             )
         bad = rows[good]
         raise LogError(
-            f"{where} row {good}: {len(bad)} cells; accepted: {len(_NAMES)} cells per row "
+            f"{where} row {good}: {len(bad)} cells; accepted: {width} cells per row "
             "(only a last row cut short by a crash is repaired).",
             where=where,
         )
@@ -492,6 +511,17 @@ class TrialLogWriter:
         if not new:
             data = self.path.read_bytes()
             rows, keep, torn = _scan(data, self.path.name)
+            if rows and tuple(rows[0]) == _OLD_NAMES:
+                # written before choice_order: the header and the old rows get the empty
+                # cell (rewritten atomically; a torn last row stays behind them to be cut below)
+                rows = [list(_NAMES)] + [r + [""] for r in rows[1:]]
+                buf = io.StringIO(newline="")
+                csv.writer(buf, lineterminator="\n").writerows(rows)
+                head = buf.getvalue().encode("utf-8")
+                data = head + data[keep:]
+                with atomic_file(self.path, binary=True) as fh:
+                    fh.write(data)
+                keep = len(head)
             if not rows or tuple(rows[0]) != _NAMES:
                 raise LogError(
                     f"{self.path}: header does not match the trial log columns; "
@@ -637,6 +667,8 @@ def read_trials(
     except FileNotFoundError:
         raise LogError(f"{p}: trial log is missing.", where=str(p)) from None
     rows, _, cut = _scan(data, p.name)
+    if rows and tuple(rows[0]) == _OLD_NAMES:  # written before choice_order: fill it empty
+        rows = [list(_NAMES)] + [r + [""] for r in rows[1:]]
     if not rows or tuple(rows[0]) != _NAMES:
         raise LogError(
             f"{p}: header does not match the trial log columns; expected: {','.join(_NAMES)}.",
@@ -689,6 +721,14 @@ def _check_row(cells: list[str], *, where: str) -> None:
                 raise fail(c.name, v, "a finite number or empty", where=where, error=LogError)
         if c.enum and v not in c.enum:
             raise fail(c.name, v, "one of " + ", ".join(c.enum), where=where, error=LogError)
+        if c.name == "choice_order" and not _CHOICE_ORDER.match(v):
+            raise fail(
+                c.name,
+                v,
+                "choice numbers separated by spaces, or empty",
+                where=where,
+                error=LogError,
+            )
 
 
 # -- session logs --------------------------------------------------------------------------------
@@ -718,7 +758,7 @@ def is_session_log(path: str | os.PathLike[str]) -> bool:
             first = fh.readline()
     except OSError:
         return False
-    return first.rstrip(b"\r\n") == ",".join(_NAMES).encode()
+    return first.rstrip(b"\r\n") in (",".join(_NAMES).encode(), ",".join(_OLD_NAMES).encode())
 
 
 def session_logs(logs_dir: str | os.PathLike[str]) -> list[Path]:

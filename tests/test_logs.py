@@ -150,7 +150,7 @@ def test_a_broken_middle_row_is_an_error_not_a_gap(tmp_path):
         log.append(_row(1))
     lines = path.read_text().splitlines(keepends=True)
     path.write_text(lines[0] + "a,b,c\n" + lines[2])
-    with pytest.raises(LogError, match="row 1: 3 cells; accepted: 22 cells"):
+    with pytest.raises(LogError, match="row 1: 3 cells; accepted: 23 cells"):
         read_trials(path)
     with pytest.raises(LogError, match="row 1: 3 cells"):
         TrialLogWriter(path)
@@ -165,6 +165,8 @@ def test_a_broken_middle_row_is_an_error_not_a_gap(tmp_path):
         ("correct", "yes", "true, false or empty"),
         ("status", "done", "one of ok, timeout, invalid, failed"),
         ("kind", "", "a string value (required)"),
+        ("choice_order", "3;1", "choice numbers separated by spaces, or empty"),
+        ("choice_order", "0 1", "choice numbers separated by spaces, or empty"),
     ],
 )
 def test_bad_cells_are_named_on_reading(tmp_path, column, cell, accepted):
@@ -246,3 +248,57 @@ def test_table_schema_is_a_valid_frictionless_schema():
 
     schema = Schema.from_descriptor(table_schema())
     assert [f.name for f in schema.fields] == [c.name for c in TRIAL_COLUMNS]
+
+
+def _old_format(path, n_rows: int) -> None:
+    """Rewrite ``path`` the way logs were written before ``choice_order`` (header and rows
+    without the last column)."""
+    import csv
+    import io
+
+    rows = list(csv.reader(io.StringIO(path.read_text("utf-8"), newline="")))
+    assert rows[0][-1] == "choice_order" and len(rows) == n_rows + 1
+    buf = io.StringIO(newline="")
+    csv.writer(buf, lineterminator="\n").writerows(r[:-1] for r in rows)
+    path.write_text(buf.getvalue(), "utf-8")
+
+
+def test_choice_order_round_trips_and_is_the_last_column(tmp_path):
+    assert TRIAL_COLUMNS[-1].name == "choice_order" and not TRIAL_COLUMNS[-1].required
+    path = tmp_path / "P010.csv"
+    with TrialLogWriter(path) as log:
+        log.append(_row(0, mode="select", response=3, choice_order="3 1 4 2"))
+        log.append(_row(1))
+        with pytest.raises(LogError, match="field 'choice_order': got '3,1,4,2'"):
+            log.append(_row(2, choice_order="3,1,4,2"))
+    df = read_trials(path)
+    assert df["choice_order"].tolist() == ["3 1 4 2", None]
+
+
+def test_a_log_without_choice_order_still_reads_and_resumes(tmp_path):
+    path = tmp_path / "P011.csv"
+    with TrialLogWriter(path) as log:
+        log.update_sidecar(**_record("P011"))
+        log.append(_row(0, session="P011", respondent="P011"))
+        log.append(_row(1, session="P011", respondent="P011", correct=False))
+    _old_format(path, 2)
+    head = path.read_text("utf-8").splitlines()[0]
+    assert head.endswith(",detail") and "choice_order" not in head
+    df = read_trials(path)
+    assert list(df.columns) == [c.name for c in TRIAL_COLUMNS]
+    assert df["choice_order"].isna().all() and df["correct"].tolist() == [True, False]
+    # a torn last row in the old layout is still recognised as torn
+    with open(path, "a", encoding="utf-8") as fh:
+        fh.write("s,ab")
+    with pytest.warns(LogWarning, match="cut short"):
+        assert len(read_trials(path)) == 2
+    # resuming on it: the header is brought up to date, the torn row cut, old rows kept
+    with TrialLogWriter(path) as log:
+        assert log.n_rows == 2 and log.repairs and log.repairs[0]["text"] == "s,ab"
+        log.append(_row(2, session="P011", respondent="P011", choice_order="2 1"))
+    lines = path.read_text("utf-8").splitlines()
+    assert lines[0].endswith(",detail,choice_order") and len(lines) == 4
+    df = read_trials(path)
+    assert df["trial"].tolist() == [0, 1, 2]
+    assert df["choice_order"].tolist() == [None, None, "2 1"]
+    assert df["correct"].tolist() == [True, False, True]
