@@ -326,8 +326,11 @@ def fit_glmm(
     grouping column. For each ``(theta, beta)`` penalised iteratively reweighted least squares
     finds the conditional modes of the random effects; the Laplace approximation of the
     marginal likelihood is maximised over ``theta`` (the relative Cholesky factors of ``G``)
-    and ``beta`` in two stages as lme4 does. Fixed-effect SEs come from the observed
-    information (numerical Hessian of the deviance over ``(theta, beta)``); intervals are Wald.
+    and ``beta`` in two stages as lme4 does, with analytic gradients (implicit differentiation
+    of the conditional modes). Fixed-effect SEs come from the observed information (Hessian of
+    the deviance over ``(theta, beta)`` by differences of the analytic gradient); intervals are
+    Wald. A nearly singular information (a flat ridge, e.g. a correlation at -1) is reported in
+    the notes and the SEs are then conditional on the covariance estimates.
     Separation is detected with a linear programme (Konis 2007); separated terms get infinite
     intervals and a note instead of a misleading finite interval. Singular fits (an SD at zero)
     are flagged. Cost: linear in observations and in the levels of the largest grouping
@@ -546,8 +549,9 @@ def _fit_glmm_laplace(df, x, endog, m, formula, rnd, level, sd_intervals, fixed_
         )
     if fit.se_conditional:
         notes.append(
-            "the information matrix over the covariance parameters is not positive definite "
-            "(a flat ridge, e.g. a correlation near +-1); fixed-effect SEs are conditional on "
+            "the information matrix over the covariance parameters is nearly singular or not "
+            "positive definite (a flat ridge, e.g. a correlation near +-1); fixed-effect SEs "
+            "are conditional on "
             "the covariance estimates and SD intervals are not given."
         )
     rand = _glmm_random_table(model, fit, factors, level, sd_intervals, notes)

@@ -432,7 +432,7 @@ def test_laplace_intervals_cover_at_their_nominal_rate():
         assert lo <= hits[t] / n_rep <= hi, (t, hits[t])
 
 
-@pytest.mark.slow  # about 2 s per replicate: two fits and a profile
+@pytest.mark.slow  # about 100 s: 2.5 s per replicate (two fits and a profile)
 def test_item_gap_sd_profile_intervals_cover_at_their_nominal_rate():
     rng = np.random.default_rng(20240612)
     n_rep, sd_true = 40, 0.6
