@@ -1127,7 +1127,8 @@ def item_gap_variation(
     rows = []
     for t in gaps:
         cov = item.loc[f"cov(Intercept, {t})"] if f"cov(Intercept, {t})" in item.index else None
-        notes = [n for n in (fx.loc[t, "note"], item.loc[t, "note"]) if n]
+        cov_note = "" if cov is None else cov["note"]
+        notes = [n for n in (fx.loc[t, "note"], item.loc[t, "note"], cov_note) if n]
         if not big.converged:
             notes.append("did not converge")
         rows.append(
