@@ -134,6 +134,7 @@ STUDY_FIELDS: dict[str, Field] = {
             "end_text": _f("string", "text of the end screen"),
             "allow_template_consent": _f("boolean", "allow the shipped consent template"),
             "redraw": _f("string", "redraw policy"),
+            "shuffle_choices": _f("boolean", "shuffle select-mode choices per trial"),
         },
     ),
     "solvers": _f(

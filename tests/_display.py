@@ -341,12 +341,13 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
     """
     fam = item.family
     if mode == "select" and fam != "contrast":
-        k = item.answer_choice
+        k = item.answer_choice  # the bank's number: what the log stores
+        shown = on_screen(d.state, k)  # the number the participant sees
         if step % 2:
-            d.click(f"choice:{k}")
+            d.click(f"choice:{shown}")
         else:
-            d.key(str(k))
-        return {"response": k, "correct": True}
+            d.key(str(shown))
+        return {"response": k, "correct": True, "choice_order": d.state.get("choice_order")}
     if fam == "matrices":  # generate: pick every attribute of the missing panel
         for attr, val in item.answer.items():
             d.click(f"attr:{attr}={val}")
@@ -412,6 +413,12 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
         d.click("submit")
         return {"response": target, "correct": True}
     raise AssertionError(f"no way to answer {fam} in {mode}")
+
+
+def on_screen(state: dict[str, Any], bank_choice: int) -> int:
+    """The number shown on screen for bank choice ``bank_choice`` (the probe names the order)."""
+    order = state.get("choice_order")
+    return order.index(bank_choice) + 1 if order else bank_choice
 
 
 def play(
@@ -490,6 +497,6 @@ def timed_keys(d: Driver, bank: Any, n: int, *, seed: int = 0) -> list[tuple[int
             d.key("y" if s["screen"] == "consent" else "space")
             continue
         time.sleep(rng.uniform(0.03, 0.12))
-        t_inject = d.key(str(bank[s["item"]].answer_choice))
+        t_inject = d.key(str(on_screen(s, bank[s["item"]].answer_choice)))
         out.append((s["trial"], (t_inject - s["onset"]) * 1000.0))
     return out

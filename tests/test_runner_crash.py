@@ -11,7 +11,7 @@ import random
 import time
 
 import pytest
-from _display import Driver, make_runner_study, play, x_display  # noqa: F401
+from _display import Driver, make_runner_study, on_screen, play, x_display  # noqa: F401
 from twofold.study import load_study, read_sidecar, read_trials
 from twofold.study.exceptions import LogWarning
 
@@ -49,7 +49,8 @@ def test_sigkill_at_random_trials_then_resume(x_display, tmp_path):  # noqa: F81
         # every answered trial was followed by the next onset: it must be on disk now
         confirmed |= {e["trial"] for e in answered}
         if rng.random() < 0.5 and d.state.get("screen") == "trial":
-            d.key(str(bank[d.state["item"]].answer_choice))  # answer, then die mid-write
+            # answer, then die mid-write
+            d.key(str(on_screen(d.state, bank[d.state["item"]].answer_choice)))
             time.sleep(rng.uniform(0, 0.03))
         d.kill()
         kills += 1
@@ -110,7 +111,7 @@ def _advance_to(d, bank, screen: str, *, min_trials: int = 0) -> list[dict]:
         if s["screen"] == "consent":
             d.key("y")
         elif s["screen"] == "trial":
-            d.key(str(bank[s["item"]].answer_choice))
+            d.key(str(on_screen(s, bank[s["item"]].answer_choice)))
             if s["trial"] is not None:
                 answered.append({"trial": s["trial"], "item": s["item"]})
         elif s["screen"] == "end":
@@ -162,7 +163,7 @@ def test_sigkill_at_every_stage_then_resume_and_analyse(x_display, tmp_path):  #
         answered = _advance_to(d, bank, screen, min_trials=max(at_least - done_before, 0))
         confirmed |= {a["trial"] for a in answered}  # each was followed by a new onset
         if act == "answer" and d.state.get("trial") is not None:
-            d.key(str(bank[d.state["item"]].answer_choice))
+            d.key(str(on_screen(d.state, bank[d.state["item"]].answer_choice)))
             time.sleep(0.01)
         d.kill()
         n_kills += 1

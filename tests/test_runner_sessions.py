@@ -46,6 +46,11 @@ def test_full_session_every_family_screen(x_display, study, tmp_path):  # noqa: 
         assert row["correct"] is True or row["correct"] == True, row  # noqa: E712
         assert row["rt_ms"] > 0 and row["response_s"] > row["onset_s"]
         assert row["detail"] == exp.get("detail"), row
+        # select mode with choices: the order shown is logged; the response is the bank number
+        order = exp.get("choice_order")
+        assert row["choice_order"] == (" ".join(map(str, order)) if order else None), row
+    assert df.loc[df["family"] == "matrices", "choice_order"].notna().all()
+    assert df.loc[df["mode"] == "generate", "choice_order"].isna().all()
     side = read_sidecar(st.logs_dir / "human" / "P001.json")
     assert side["status"] == "complete" and side["n_trials"] == 9
     assert side["keyboard_backend"] == "ptb"

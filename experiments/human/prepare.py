@@ -10,16 +10,25 @@
     background = "#20242b"              # screen colour
     end_text = "Thank you. The session is over."
     redraw = "on_change"                # or "every_frame" (flip on every refresh)
+    shuffle_choices = true              # select mode: choices in a per-trial order
+
+With ``shuffle_choices`` (the default) each select-mode trial shows the item's choices in an
+order of its own (:func:`choice_order`): drawn from the study seed, the respondent id, the trial
+index and the item id, so a resumed session shows a trial in the same order again. The screen
+numbers the choices 1..n as shown; the log stores the bank's choice number as the response
+(scoring and analysis are unchanged) and the order shown in the ``choice_order`` column.
 """
 
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 import re
 from importlib import resources
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 from twofold.study import load_study
 from twofold.study.checks import check_choice, check_int, check_keys, fail
 from twofold.study.exceptions import RunnerError, SpecError
@@ -33,6 +42,8 @@ __all__ = [
     "SessionPlan",
     "TEMPLATE_MARK",
     "check_respondent",
+    "choice_order",
+    "shown_item",
     "parse_runner",
     "prepare_session",
     "reflow",
@@ -63,6 +74,7 @@ class RunnerOptions:
     end_text: str = "Thank you. The session is over.\n\nPlease tell the experimenter."
     allow_template_consent: bool = False
     redraw: str = "on_change"
+    shuffle_choices: bool = True
 
 
 def parse_runner(study: Any) -> RunnerOptions:
@@ -73,7 +85,7 @@ def parse_runner(study: Any) -> RunnerOptions:
         raise fail("runner", raw, "a [runner] table", where=where, error=SpecError)
     check_keys(raw, _RUNNER_KEYS, prefix="runner.", where=where, error=SpecError)
     d = RunnerOptions()
-    for key in ("fullscreen", "allow_template_consent"):
+    for key in ("fullscreen", "allow_template_consent", "shuffle_choices"):
         if not isinstance(raw.get(key, False), bool):
             raise fail(f"runner.{key}", raw[key], "true or false", where=where, error=SpecError)
     size = raw.get("size", list(d.size))
@@ -114,7 +126,43 @@ def parse_runner(study: Any) -> RunnerOptions:
         background=bg,
         end_text=raw.get("end_text", d.end_text),
         allow_template_consent=raw.get("allow_template_consent", False),
+        shuffle_choices=raw.get("shuffle_choices", d.shuffle_choices),
     )
+
+
+def choice_order(
+    n_choices: int, *, seed: int, respondent: str, trial: int | str, item_id: str
+) -> tuple[int, ...]:
+    """The order a trial shows an item's choices in, as 1-based bank choice numbers.
+
+    A uniform random permutation from a generator seeded by a SHA-256 over (``seed``,
+    ``respondent``, ``trial``, ``item_id``): the same trial of the same respondent always gets
+    the same order (a resumed session shows it again), other trials, respondents or studies
+    get orders of their own. ``trial`` is the trial index (or a label for practice items).
+
+    Examples
+    --------
+    >>> sorted(choice_order(4, seed=8, respondent="P001", trial=0, item_id="x-1"))
+    [1, 2, 3, 4]
+    """
+    key = "\x1f".join(("twofold-choice-order", str(seed), respondent, str(trial), item_id))
+    digest = hashlib.sha256(key.encode("utf-8")).digest()
+    rng = np.random.default_rng(int.from_bytes(digest[:16], "big"))
+    return tuple(int(k) + 1 for k in rng.permutation(n_choices))
+
+
+def shown_item(item: Any, order: tuple[int, ...] | None) -> Any:
+    """``item`` with its choices in the screen order ``order`` (same id: only for drawing).
+
+    The screens number choices as they come, so drawing this copy shows position ``j`` as
+    number ``j``; bank choice number = ``order[j - 1]``. ``None`` leaves the item as it is.
+    """
+    if order is None:
+        return item
+    choices = item.choices or ()
+    if sorted(order) != list(range(1, len(choices) + 1)):
+        raise ValueError(f"choice order {order} does not fit {len(choices)} choices")
+    return dataclasses.replace(item, choices=tuple(choices[k - 1] for k in order))
 
 
 def check_respondent(respondent: Any, pattern: str) -> str:

@@ -18,6 +18,11 @@ The screen of the next item is built right after the current item's onset (0.1-0
 software rendering); key times are unaffected (they come from the keyboard queue), a mouse press
 during the build is time-stamped when the build ends.
 
+Choice order: with ``[runner] shuffle_choices`` (the default) a select-mode trial draws its
+choices in the order :func:`~twofold.experiments.human.prepare.choice_order` gives that trial;
+the screen numbers them 1..n as shown, the response logged is the bank's choice number, and the
+order shown goes to the log's ``choice_order`` column (bank numbers, space separated).
+
 Every trial row is written and fsynced (TrialLogWriter) before the next item appears; the
 sidecar is rewritten atomically after each trial, so a crash loses at most the trial on screen.
 
@@ -42,7 +47,7 @@ from twofold.study import __version__, get_family, render
 from twofold.study._version import package_version
 from twofold.study.exceptions import ResponseError, RunnerError
 
-from .prepare import SessionPlan, reflow
+from .prepare import SessionPlan, choice_order, reflow, shown_item
 
 __all__ = ["FRAMES_HEADER", "SessionResult", "frames_file", "run_session"]
 
@@ -125,7 +130,7 @@ class _Session:
         self.plan = plan
         self.probe_path = os.environ.get("TWOFOLD_RUNNER_PROBE")
         self.probe_seq = 0
-        self.built: dict[tuple[str, str], Any] = {}
+        self.built: dict[tuple[Any, ...], Any] = {}
         self.seen_keys: dict[tuple[str, float], None] = {}
 
     # -- set-up ----------------------------------------------------------------------------
@@ -279,31 +284,56 @@ class _Session:
             raise Aborted()
 
     # -- one item ----------------------------------------------------------------------------
-    def screen(self, item: Any, block: Any) -> Any:
-        """The response screen of ``item`` in ``block`` (built ahead when possible)."""
-        from .screens import make_screen
-
-        key = (item.id, block.mode)
-        if key in self.built:
-            return self.built.pop(key)
-        view = render(item, "structured", block.mode)
-        return make_screen(
-            self.ctx, item, view, block.mode, state_rule=getattr(block, "state_rule", False)
+    def order(self, item: Any, block: Any, trial: int | str) -> tuple[int, ...] | None:
+        """The screen order of ``item``'s choices on ``trial`` (bank choice numbers), or None:
+        not shuffled (generate mode, no choices, or ``shuffle_choices = false``)."""
+        if not self.plan.options.shuffle_choices or block.mode != "select" or not item.choices:
+            return None
+        return choice_order(
+            len(item.choices),
+            seed=self.plan.study.seed,
+            respondent=self.plan.respondent,
+            trial=trial,
+            item_id=item.id,
         )
 
-    def present(
-        self, item: Any, block: Any, *, trial: int | None, ahead: tuple[Any, Any] | None = None
-    ) -> tuple[Any, float, float | None, str, str | None, _Frames]:
-        """Show ``item`` until a response or the block's time limit.
+    def screen(self, item: Any, block: Any, order: tuple[int, ...] | None = None) -> Any:
+        """The response screen of ``item`` in ``block`` with its choices in screen order
+        ``order`` (built ahead when possible); ``screen.choice_order`` keeps the order."""
+        from .screens import make_screen
 
-        ``ahead`` = (next item, its block): its screen is built right after this item's onset,
-        so the next onset follows a response quickly. Returns (response, onset, response time,
-        status, detail, frames) on the core clock.
+        key = (item.id, block.mode, order)
+        if key in self.built:
+            return self.built.pop(key)
+        shown = shown_item(item, order)
+        view = render(shown, "structured", block.mode)
+        screen = make_screen(
+            self.ctx, shown, view, block.mode, state_rule=getattr(block, "state_rule", False)
+        )
+        screen.choice_order = order
+        return screen
+
+    def present(
+        self,
+        item: Any,
+        block: Any,
+        *,
+        trial: int | None,
+        order: tuple[int, ...] | None = None,
+        ahead: tuple[Any, Any, Any] | None = None,
+    ) -> tuple[Any, float, float | None, str, str | None, _Frames]:
+        """Show ``item`` (choices in screen order ``order``) until a response or the block's
+        time limit.
+
+        ``ahead`` = (next item, its block, its order): its screen is built right after this
+        item's onset, so the next onset follows a response quickly. Returns (response, onset,
+        response time, status, detail, frames) on the core clock; a choice is returned as the
+        bank's choice number (the screen's number mapped back through ``order``).
         """
-        screen = self.screen(item, block)
+        screen = self.screen(item, block, order)
         while True:
             try:
-                return self._present(
+                resp, *rest = self._present(
                     screen,
                     time_limit=block.time_limit_s,
                     trial=trial,
@@ -313,6 +343,9 @@ class _Session:
             except _Restart:
                 ahead = None
                 continue
+            if order is not None and isinstance(resp, int) and 1 <= resp <= len(order):
+                resp = order[resp - 1]
+            return (resp, *rest)
 
     def _present(
         self,
@@ -321,17 +354,17 @@ class _Session:
         time_limit: float | None,
         trial: int | None,
         block: str,
-        ahead: tuple[Any, Any] | None,
+        ahead: tuple[Any, Any, Any] | None,
     ) -> tuple[Any, float, float | None, str, str | None, _Frames]:
         frames = _Frames(self.period)
         screen.draw()
         onset = self.win.flip()
         self.mouse.clickReset()
         reset_core = self.event.mouseClick[0].getLastResetTime() - self.origin_abs
-        if ahead is not None and (ahead[0].id, ahead[1].mode) not in self.built:
+        if ahead is not None and (ahead[0].id, ahead[1].mode, ahead[2]) not in self.built:
             # key times come from the keyboard queue, so building now does not shift them
             t0 = self.core.getTime()
-            self.built = {(ahead[0].id, ahead[1].mode): self.screen(*ahead)}
+            self.built = {(ahead[0].id, ahead[1].mode, ahead[2]): self.screen(*ahead)}
             frames.prep_ms = (self.core.getTime() - t0) * 1000
             screen.draw()
             last: float | None = self.win.flip()  # static meanwhile: not a frame interval
@@ -346,6 +379,7 @@ class _Session:
             item=screen.item.id,
             mode=screen.mode,
             targets=screen.targets,
+            choice_order=list(screen.choice_order) if screen.choice_order else None,
         )
         answer, press_t, dirty = None, 0.0, False
         while answer is None:
@@ -488,7 +522,7 @@ class _Session:
                 self.text_screen(plan.instructions[block.name], ("space",), "instructions")
                 shown = True
                 if block.practice and block.name not in practice_done:
-                    self.practice(block)
+                    self.practice(block, idx[0] if idx else None)
                     practice_done.append(block.name)
                     writer.update_sidecar(practice_done=practice_done)
                 for pos, k in enumerate(idx):
@@ -506,7 +540,7 @@ class _Session:
                             "break",
                         )
                     row, frames = self.trial(
-                        block, k, block.items[pos], ahead=self.next_of(bi, pos)
+                        block, k, block.items[pos], ahead=self.next_of(bi, pos, k)
                     )
                     writer.append(row)
                     n_done += 1
@@ -534,25 +568,33 @@ class _Session:
             writer.close()
             self.frames_log.close()
 
-    def next_of(self, bi: int, pos: int) -> tuple[Any, Any] | None:
-        """The item shown after position ``pos`` of block ``bi`` (and its block)."""
+    def next_of(self, bi: int, pos: int, k: int) -> tuple[Any, Any, Any] | None:
+        """The item shown after position ``pos`` (trial ``k``) of block ``bi``: the item, its
+        block and its choice order."""
         blocks = self.plan.form.blocks
         block = blocks[bi]
+        bank = self.plan.bank
         if pos + 1 < len(block.items):
-            return self.plan.bank[block.items[pos + 1]], block
+            item = bank[block.items[pos + 1]]
+            return item, block, self.order(item, block, k + 1)
         if bi + 1 < len(blocks):
             nb = blocks[bi + 1]
-            first = nb.practice[0] if nb.practice else (nb.items[0] if nb.items else None)
-            return (self.plan.bank[first], nb) if first else None
+            if nb.practice:
+                item = bank[nb.practice[0]]
+                return item, nb, self.order(item, nb, _practice_label(nb, 0))
+            if nb.items:
+                item = bank[nb.items[0]]
+                return item, nb, self.order(item, nb, k + 1)
         return None
 
     def trial(
-        self, block: Any, k: int, item_id: str, *, ahead: tuple[Any, Any] | None = None
+        self, block: Any, k: int, item_id: str, *, ahead: tuple[Any, Any, Any] | None = None
     ) -> tuple[dict[str, Any], _Frames]:
         plan = self.plan
         item = plan.bank[item_id]
+        order = self.order(item, block, k)
         resp, onset, t_resp, status, detail, frames = self.present(
-            item, block, trial=k, ahead=ahead
+            item, block, trial=k, order=order, ahead=ahead
         )
         correct = error_type = None
         if status == "ok":
@@ -590,17 +632,24 @@ class _Session:
             "onset_s": onset - self.start,
             "response_s": None if t_resp is None else t_resp - self.start,
             "detail": detail,
+            "choice_order": " ".join(str(c) for c in order) if order else None,
         }
         return row, frames
 
-    def practice(self, block: Any) -> None:
-        items = list(block.practice) + list(block.items[:1])
-        for j, pid in enumerate(block.practice):
-            item = self.plan.bank[pid]
-            nxt = self.plan.bank[items[j + 1]] if j + 1 < len(items) else None
-            resp, _, _, status, _, _ = self.present(
-                item, block, trial=None, ahead=(nxt, block) if nxt is not None else None
-            )
+    def practice(self, block: Any, first_trial: int | None) -> None:
+        """The block's practice items (not logged), with feedback when the block asks for it;
+        ``first_trial`` is the index of the block's first test trial (shown next)."""
+        bank = self.plan.bank
+        labels: list[int | str] = [_practice_label(block, j) for j in range(len(block.practice))]
+        items = [bank[p] for p in block.practice]
+        if block.items and first_trial is not None:
+            items.append(bank[block.items[0]])
+            labels.append(first_trial)
+        orders = [self.order(it, block, lab) for it, lab in zip(items, labels, strict=True)]
+        for j, item in enumerate(items[: len(block.practice)]):
+            nxt = (items[j + 1], block, orders[j + 1]) if j + 1 < len(items) else None
+            order = orders[j]
+            resp, _, _, status, _, _ = self.present(item, block, trial=None, order=order, ahead=nxt)
             if not block.feedback:
                 continue
             if status == "timeout":
@@ -611,6 +660,11 @@ class _Session:
                 except ResponseError:
                     ok = False
                 msg = "Correct." if ok else "Not correct."
+            right = item.answer_choice if block.mode == "select" else None
+            if right is not None and (status == "timeout" or msg != "Correct."):
+                # the number as it stood on this screen, not the bank's
+                shown = order.index(right) + 1 if order else right
+                msg += f" The right choice was number {shown}."
             self.text_screen(msg + "\n\nPress SPACE to go on.", ("space",), "feedback")
 
     def close(self) -> None:
@@ -618,6 +672,11 @@ class _Session:
             self.win.close()
         except Exception:  # noqa: BLE001 - closing must not hide the real outcome
             pass
+
+
+def _practice_label(block: Any, j: int) -> str:
+    """What a practice item's choice order is drawn for (it has no trial index)."""
+    return f"practice:{block.name}:{j}"
 
 
 def _combine(prior: dict[str, Any], now: dict[str, Any]) -> dict[str, Any]:

@@ -249,6 +249,9 @@ class Screen:
     """
 
     help_text = ""
+    #: the bank choice numbers in the order this screen shows them (set by the runner; None
+    #: when the choices are in bank order)
+    choice_order: tuple[int, ...] | None = None
 
     def __init__(
         self, ctx: Ctx, item: Any, view: dict[str, Any], mode: str, *, state_rule: bool = False
