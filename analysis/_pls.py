@@ -243,13 +243,7 @@ class CrossProducts:
     @staticmethod
     def _stationary(fun, psi: np.ndarray, dev: float) -> bool:
         """No feasible step of relative size 1e-4 in any psi lowers the criterion by 1e-8."""
-        for j in range(len(psi)):
-            for sign in (-1.0, 1.0):
-                t = psi.copy()
-                t[j] = max(0.0, t[j] + sign * 1e-4 * max(t[j], 1e-2))
-                if fun(t) < dev - 1e-8 * max(1.0, abs(dev)):
-                    return False
-        return True
+        return _stationary_theta(fun, psi, dev, np.zeros(len(psi)))
 
     def _result(self, theta_o, dev, reml, converged, n_eval) -> PLSFit:
         lam, sd, l21, l22, cu, rzx, lx, cb, r2, _, _ = self._solve(theta_o)
