@@ -53,6 +53,9 @@ from ._design import BlockCholesky, RandomDesign
 # a decrement of 1e-16 still moves the deviance by ~1e-7 — too much for numerical Hessians.
 _DECREMENT_TOL = 1e-22
 _NOISE_TOL = 1e-12
+# During the search a looser decrement is enough: the gradient's error is then far below the
+# optimiser's tolerance; the estimate and the Hessian are evaluated with _DECREMENT_TOL.
+_SEARCH_TOL = 1e-14
 _MAX_PIRLS = 60
 
 
@@ -146,10 +149,11 @@ class LaplaceModel:
         )
         self.q = design.q1 + design.qc
         self.u = np.zeros(self.q)  # warm start, updated by every evaluation
+        self.dec_tol = _DECREMENT_TOL
         # (Lambda blocks, eta, factor, joint-system factors or None) of the last evaluation
         self._state: tuple[list[np.ndarray], np.ndarray, BlockCholesky, Any] | None = None
         # (key, value, gradient) of the last value_grad call: optimisers ask twice for a point
-        self._last: tuple[tuple[str, bytes], float, np.ndarray] | None = None
+        self._last: tuple[tuple[str, float, bytes], float, np.ndarray] | None = None
         self.beta_joint = np.zeros(self.p)
         self.n_eval = 0
 
@@ -182,7 +186,7 @@ class LaplaceModel:
             grad = self._lamz(ts, self.k - self.m * mu)[:, 0] - u
             wv = chol.forward(grad)
             dec = float(wv @ wv)
-            if dec < _DECREMENT_TOL or (dec < _NOISE_TOL and dec > 0.1 * prev):
+            if dec < self.dec_tol or (dec < _NOISE_TOL and dec > 0.1 * prev):
                 break
             prev = dec
             delta = chol.backward(wv)
@@ -228,7 +232,7 @@ class LaplaceModel:
             wu = chol.forward(g_u)
             wb = linalg.solve_triangular(lx, g_b - rzx.T @ wu, lower=True, check_finite=False)
             dec = float(wu @ wu + wb @ wb)
-            if dec < _DECREMENT_TOL or (dec < _NOISE_TOL and dec > 0.1 * prev):
+            if dec < self.dec_tol or (dec < _NOISE_TOL and dec > 0.1 * prev):
                 break
             prev = dec
             db = linalg.solve_triangular(lx, wb, lower=True, trans="T", check_finite=False)
@@ -314,7 +318,7 @@ class LaplaceModel:
 
     def value_grad(self, z: np.ndarray) -> tuple[float, np.ndarray]:
         """``d(theta, beta)`` and its analytic gradient at ``z = (theta, beta)``."""
-        key = ("d", np.asarray(z, dtype=float).tobytes())
+        key = ("d", self.dec_tol, np.asarray(z, dtype=float).tobytes())
         if self._last is not None and self._last[0] == key:
             return self._last[1], self._last[2].copy()
         nt = self.d.n_theta
@@ -327,7 +331,7 @@ class LaplaceModel:
 
     def value_grad_joint(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
         """Stage-1 criterion and its analytic gradient over ``theta``."""
-        key = ("j", np.asarray(theta, dtype=float).tobytes())
+        key = ("j", self.dec_tol, np.asarray(theta, dtype=float).tobytes())
         if self._last is not None and self._last[0] == key:
             return self._last[1], self._last[2].copy()
         dev = self.deviance_joint(theta)
@@ -415,6 +419,7 @@ def fit_laplace(model: LaplaceModel, *, theta0=None) -> LaplaceFit:
     nt, p = d.n_theta, model.p
     # stage 1: theta only, (u, beta) at their joint mode; only a starting point for stage 2,
     # so a loose tolerance
+    model.dec_tol = _SEARCH_TOL
     r1 = _minimise(model.value_grad_joint, th0, lower, ftol=1e-6)
     theta1 = np.where(np.isfinite(lower), np.maximum(r1.x, lower), r1.x)
     dev1 = model.deviance_joint(theta1)
@@ -423,6 +428,7 @@ def fit_laplace(model: LaplaceModel, *, theta0=None) -> LaplaceFit:
     lower2 = np.concatenate([lower, np.full(p, -np.inf)])
     r2 = _minimise(model.value_grad, np.concatenate([theta1, beta1]), lower2, gtol=1e-5)
     z = np.where(np.isfinite(lower2), np.maximum(r2.x, lower2), r2.x)
+    model.dec_tol = _DECREMENT_TOL
     dev, grad = model.value_grad(z)
     n_eval = model.n_eval
     # convergence: projected gradient small relative to the curvature scale
