@@ -231,6 +231,59 @@ def _prepare(
     return data.reset_index(drop=True)
 
 
+#: note on a fixed effect that is a linear combination of earlier columns of the design
+ALIASED_NOTE = "aliased: a combination of the terms before it in these data; not estimated"
+
+
+def _drop_aliased(x: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
+    """Keep the fixed-effect columns that add to the rank of the design, in formula order.
+
+    A column is dropped when it is (numerically) a linear combination of the columns kept before
+    it — the rule of R's pivoted QR in ``lm`` and of lme4, which report such coefficients as not
+    estimable. Uses the Gram matrix, so the cost is one ``p x p`` pass after ``X'X``.
+    """
+    xa = x.to_numpy(dtype=float)
+    if xa.shape[1] == 0:
+        return x, []
+    scale = np.sqrt((xa * xa).sum(axis=0))
+    scale[scale == 0] = 1.0
+    g = (xa / scale).T @ (xa / scale)
+    kept: list[int] = []
+    for j in range(g.shape[0]):
+        if kept:
+            gk = g[np.ix_(kept, kept)]
+            b = np.linalg.solve(gk, g[kept, j])
+            resid = g[j, j] - g[j, kept] @ b
+        else:
+            resid = g[j, j]
+        if resid > 1e-9:
+            kept.append(j)
+    dropped = [c for k, c in enumerate(x.columns) if k not in set(kept)]
+    return x.iloc[:, kept], dropped
+
+
+def _with_aliased(
+    fixed: pd.DataFrame, names: Sequence[str], dropped: Sequence[str]
+) -> pd.DataFrame:
+    """The fixed table in formula order, with a NaN row and a note for each dropped column."""
+    if not dropped:
+        return fixed
+    extra = pd.DataFrame({"term": list(dropped)})
+    out = pd.concat([fixed, extra], ignore_index=True)
+    out["conf_level"] = fixed["conf_level"].iloc[0] if len(fixed) else np.nan
+    out.loc[out["term"].isin(dropped), "note"] = ALIASED_NOTE
+    order = {n: k for k, n in enumerate(names)}
+    out = out.sort_values("term", key=lambda t: t.map(order), kind="stable")
+    return out.reset_index(drop=True)[list(fixed.columns)]
+
+
+def _aliased_message(dropped: Sequence[str]) -> str:
+    return (
+        f"{len(dropped)} fixed-effect column(s) not estimable from these data (each a "
+        f"combination of terms before it) and dropped, as lme4 does: {', '.join(dropped)}."
+    )
+
+
 def _fixed_table(names, est, se, conf_level: float) -> pd.DataFrame:
     est = np.asarray(est, dtype=float)
     se = np.asarray(se, dtype=float)
@@ -502,6 +555,8 @@ def _fit_glmm_laplace(df, x, endog, m, formula, rnd, level, sd_intervals, fixed_
     from ._pls import _blas_limit
 
     factors, n_groups = _random_factors(df, rnd)
+    all_names = list(x.columns)
+    x, aliased = _drop_aliased(x)
     names = list(x.columns)
     xa = x.to_numpy(dtype=float)
     penalty = None
@@ -555,6 +610,9 @@ def _fit_glmm_laplace(df, x, endog, m, formula, rnd, level, sd_intervals, fixed_
             "the covariance estimates and SD intervals are not given."
         )
     rand = _glmm_random_table(model, fit, factors, level, sd_intervals, notes)
+    if aliased:
+        notes.append(_aliased_message(aliased))
+        fixed = _with_aliased(fixed, all_names, aliased)
     if not fit.converged:
         notes.append(
             f"the optimiser stopped with a gradient of {fit.grad_norm:.2g}; the estimates may "
@@ -858,6 +916,8 @@ def _fit_lmm_pls(
         ) from err
     if y.shape[1] != 1:
         raise fail("formula", formula, "a numeric outcome on the left of '~'")
+    all_names = list(x.columns)
+    x, aliased = _drop_aliased(x)
     n, p = x.shape
     if n - p < 1:
         raise fail("formula", formula, f"fewer fixed-effect columns ({p}) than observations ({n})")
@@ -890,6 +950,7 @@ def _fit_lmm_pls(
     if not fit.converged:
         warnings.warn(f"fit_lmm: {formula!r} did not converge.", ConvergenceWarning, stacklevel=3)
     fixed = _fixed_table(x.columns, fit.beta, np.sqrt(np.diag(fit.cov_beta)), level)
+    fixed = _with_aliased(fixed, all_names, aliased)
     if slopes:
         rows = []
         by_name = {f.name: (f, c) for f, c in zip(factors, fit.covariances, strict=True)}
@@ -932,6 +993,7 @@ def _fit_lmm_pls(
         n_groups=n_groups,
         loglik=-0.5 * fit.deviance,
         converged=fit.converged,
+        notes=(_aliased_message(aliased),) if aliased else (),
         n_params=x.shape[1] + n_theta + 1,
         raw=fit,
     )
@@ -1359,7 +1421,7 @@ def _sum_se(res: MixedResult, a: str, b: str) -> float:
     sa, sb = float(fx.loc[a, "se"]), float(fx.loc[b, "se"])
     if cov is None or not (np.isfinite(sa) and np.isfinite(sb)):
         return float(np.hypot(sa, sb))
-    terms = list(res.fixed["term"])
+    terms = list(res.fixed.loc[res.fixed["note"] != ALIASED_NOTE, "term"])  # cov_beta's order
     i, j = terms.index(a), terms.index(b)
     return float(np.sqrt(max(cov[i, i] + cov[j, j] + 2 * cov[i, j], 0.0)))
 

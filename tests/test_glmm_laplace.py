@@ -390,6 +390,32 @@ def test_separation_is_reported_not_hidden():
     assert any("penalised" in n for n in pen.notes) and np.isnan(pen.loglik)
 
 
+def test_aliased_fixed_effects_are_dropped_and_named():
+    # common practice: R's lm and lme4 drop a design column that is a linear combination of the
+    # columns before it and report its coefficient as not estimable; the rest of the fit is the
+    # fit without that column
+    rng = np.random.default_rng(6)
+    df = _crossed(rng, n_human=20, n_machine=4, n_item=15)
+    df["kind_again"] = df["kind"]  # the same contrast under another name
+    full = fit_glmm(df, "correct ~ kind + kind_again", random=["respondent", "item"])
+    lean = fit_glmm(df, "correct ~ kind", random=["respondent", "item"])
+    fx = _fx(full)
+    assert list(full.fixed["term"]) == ["Intercept", "kind[T.machine]", "kind_again[T.machine]"]
+    assert np.isnan(fx.loc["kind_again[T.machine]", "estimate"])
+    assert fx.loc["kind_again[T.machine]", "note"].startswith("aliased")
+    assert any("kind_again[T.machine]" in n for n in full.notes)
+    np.testing.assert_allclose(
+        fx.loc[["Intercept", "kind[T.machine]"], ["estimate", "se"]].to_numpy(dtype=float),
+        _fx(lean).loc[["Intercept", "kind[T.machine]"], ["estimate", "se"]].to_numpy(dtype=float),
+        rtol=1e-6,
+    )
+    lin = df.assign(y=df["correct"] + rng.normal(size=len(df)))
+    lm_full = fit_lmm(lin, "y ~ kind + kind_again", random=["respondent", "item"])
+    lm_lean = fit_lmm(lin, "y ~ kind", random=["respondent", "item"])
+    assert _fx(lm_full).loc["kind_again[T.machine]", "note"].startswith("aliased")
+    assert lm_full.loglik == pytest.approx(lm_lean.loglik, rel=1e-10)
+
+
 def test_singular_fit_is_flagged():
     rng = np.random.default_rng(8)
     df = _crossed(rng, n_human=30, n_machine=0, n_item=20, sds=(0.0, 1.0))
