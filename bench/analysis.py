@@ -256,9 +256,7 @@ def bench_mixed(quick: bool = False, *, large: bool = False) -> list[dict[str, A
             }
             if n <= 20_000:  # statsmodels fit_vb, same run (about 170 s at 100,000)
                 t0 = time.perf_counter()
-                fit_glmm(
-                    df, "correct ~ factor_width", random=["respondent", "item"], method="vb"
-                )
+                fit_glmm(df, "correct ~ factor_width", random=["respondent", "item"], method="vb")
                 row["vb_seconds"] = time.perf_counter() - t0
                 row["speedup"] = row["vb_seconds"] / sec
             rows.append(row)
@@ -340,9 +338,7 @@ def bench_lmm(quick: bool = False) -> list[dict[str, Any]]:
     rows = []
     for n_trials, with_statsmodels in sizes:
         df = _lmm_trials(n_trials, n_resp, n_items)
-        pls_s, fast = _best_of(
-            lambda df=df: fit_lmm(df, formula, random=random, engine="pls"), 3
-        )
+        pls_s, fast = _best_of(lambda df=df: fit_lmm(df, formula, random=random, engine="pls"), 3)
         row: dict[str, Any] = {
             "trials": f"{n_trials:,}",
             "levels": f"{n_resp} x {n_items}",
@@ -413,18 +409,35 @@ def print_table(title: str, rows: Sequence[dict[str, Any]], file=sys.stdout) -> 
 def main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="smallest size of each section")
-    parser.add_argument("--only", action="append", choices=sorted(SECTIONS),
-                        help="run only this section (repeatable)")
-    parser.add_argument("--girth-all", action="store_true",
-                        help="also run girth at 50,000 x 200 (minutes)")
-    parser.add_argument("--mixed-large", action="store_true",
-                        help="also fit the GLMM at 500,000 trials (about 10 s)")
-    parser.add_argument("--scale-size", default="quick", choices=("quick", "100k", "1m"),
-                        help="study size of the scale section (default quick)")
-    parser.add_argument("--scale-keep", default=None,
-                        help="folder to build and keep the scale section's study in")
-    parser.add_argument("--threads", type=int, default=0,
-                        help="BLAS threads (re-runs the script with the thread variables set)")
+    parser.add_argument(
+        "--only",
+        action="append",
+        choices=sorted(SECTIONS),
+        help="run only this section (repeatable)",
+    )
+    parser.add_argument(
+        "--girth-all", action="store_true", help="also run girth at 50,000 x 200 (minutes)"
+    )
+    parser.add_argument(
+        "--mixed-large",
+        action="store_true",
+        help="also fit the GLMM at 500,000 trials (about 10 s)",
+    )
+    parser.add_argument(
+        "--scale-size",
+        default="quick",
+        choices=("quick", "100k", "1m"),
+        help="study size of the scale section (default quick)",
+    )
+    parser.add_argument(
+        "--scale-keep", default=None, help="folder to build and keep the scale section's study in"
+    )
+    parser.add_argument(
+        "--threads",
+        type=int,
+        default=0,
+        help="BLAS threads (re-runs the script with the thread variables set)",
+    )
     args = parser.parse_args(argv)
     if args.threads and os.environ.get("OPENBLAS_NUM_THREADS") != str(args.threads):
         env = dict(os.environ)
@@ -434,8 +447,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         os.execve(sys.executable, argv_all, env)
     load = os.getloadavg()
     threads = os.environ.get("OPENBLAS_NUM_THREADS", "default")
-    print(f"load average: {load[0]:.2f} {load[1]:.2f} {load[2]:.2f} on {os.cpu_count()} cores; "
-          f"BLAS threads: {threads}")
+    print(
+        f"load average: {load[0]:.2f} {load[1]:.2f} {load[2]:.2f} on {os.cpu_count()} cores; "
+        f"BLAS threads: {threads}"
+    )
     for name in args.only or list(SECTIONS):
         kwargs: dict[str, Any] = {}
         if name == "irt":

@@ -20,6 +20,7 @@ import signal
 import subprocess
 import sys
 import time
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
@@ -178,6 +179,24 @@ class Driver:
         data = json.loads(self.probe_path.read_text("utf-8"))
         self.seq, self.state = data["seq"], data
         return data
+
+    def refresh_until(
+        self, present: Sequence[str] = (), absent: Sequence[str] = (), timeout: float = 15.0
+    ) -> dict[str, Any]:
+        """Re-read the probe until its targets include ``present`` and lack ``absent``.
+
+        Input is handled on the runner's next frame; on a loaded machine that can come after
+        the test's next read, so a test that needs a changed screen waits for it.
+        """
+        t0 = time.monotonic()
+        while True:
+            data = self.refresh()
+            targets = data.get("targets", {})
+            if all(n in targets for n in present) and not any(n in targets for n in absent):
+                return data
+            if time.monotonic() - t0 > timeout:
+                raise AssertionError(f"screen never showed {list(present)} without {list(absent)}")
+            time.sleep(0.02)
 
     # -- input ---------------------------------------------------------------------------------
     def key(self, name: str, hold: float = 0.02) -> float:
@@ -388,8 +407,8 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
         test = item.stimulus["test"]
         d.click("copy")
         d.click("reset")
-        d.refresh()
         rows, cols = len(test), len(test[0])
+        d.refresh_until(present=[f"cell:{rows - 1},{cols - 1}"], absent=[f"cell:{rows},0"])
         # drag across the first row with colour 1 (then repaint it below)
         d.key("1")
         row0 = [d.state["targets"][f"cell:0,{c}"] for c in range(cols)]
@@ -397,7 +416,10 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
         for name, diff in (("rows", len(target) - rows), ("cols", len(target[0]) - cols)):
             for _ in range(abs(diff)):
                 d.click(f"{name}{'+' if diff > 0 else '-'}")
-        d.refresh()
+        rr, cc = len(target), len(target[0])
+        d.refresh_until(
+            present=[f"cell:{rr - 1},{cc - 1}"], absent=[f"cell:{rr},0", f"cell:0,{cc}"]
+        )
         by_colour: dict[int, list[str]] = {}
         for r, line in enumerate(target):
             for c, v in enumerate(line):

@@ -255,7 +255,7 @@ CASES: list[tuple[str, Damage, list[str], str]] = [
     ("log-item", _log_cell("item", "str-000000000000"), ANALYZE, "field 'item': got 'str-000000000000'"),
     ("log-bank-hash", _log_cell("bank_hash", "ab" * 32), ANALYZE, "field 'bank_hash'"),
     ("log-not-utf8", _bytes("logs/simulated/S001.csv", b"S001", b"S\xff01"), ANALYZE, "S001.csv: byte"),
-    ("log-middle-row", _replace("logs/simulated/S001.csv", "\nbad-input,", "\nbad-input\nbad-input,"), ANALYZE, "cells; accepted: 22 cells"),
+    ("log-middle-row", _replace("logs/simulated/S001.csv", "\nbad-input,", "\nbad-input\nbad-input,"), ANALYZE, "cells; accepted: 23 cells"),
     ("log-header", _replace("logs/simulated/S001.csv", "study,bank_hash", "studies,bank_hash"), ANALYZE, "header does not match"),
     ("side-status", _side(lambda d: d.update(status="finished")), ANALYZE, "field 'status': got 'finished'; accepted: one of running"),
     ("side-synthetic", _side(lambda d: d.update(synthetic="yes")), ANALYZE, "field 'synthetic': got 'yes'; accepted: a boolean"),

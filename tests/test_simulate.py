@@ -54,7 +54,9 @@ def simulated(tmp_path_factory):
 
 
 def _all_trials(study):
-    return pd.concat([read_trials(p) for p in sorted((study.logs_dir / "simulated").glob("S*.csv"))])
+    return pd.concat(
+        [read_trials(p) for p in sorted((study.logs_dir / "simulated").glob("S*.csv"))]
+    )
 
 
 def test_every_row_and_sidecar_is_marked_synthetic(simulated):
