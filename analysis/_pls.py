@@ -91,6 +91,25 @@ class PLSFit:
     covariances: tuple[np.ndarray, ...] = ()
 
 
+def _fixed_step(xtx, xty, yty: float, cu: np.ndarray, rzx: np.ndarray):
+    """The fixed-effects block of the PLS system once the random effects are eliminated.
+
+    Returns ``(lx, cb, r2)``: the Cholesky factor of ``X'X - RZX'RZX``, the fixed effects'
+    triangular right-hand side and the penalised residual sum of squares (kept positive).
+    """
+    a = xtx - rzx.T @ rzx
+    try:
+        lx = linalg.cholesky(a, lower=True, check_finite=False)
+    except linalg.LinAlgError as err:
+        raise NotIdentifiedError(
+            "the fixed-effects design is rank deficient (X'X minus its random-effects part "
+            "is not positive definite)"
+        ) from err
+    cb = linalg.solve_triangular(lx, xty - rzx.T @ cu, lower=True, check_finite=False)
+    r2 = max(yty - float(cu @ cu) - float(cb @ cb), np.finfo(float).tiny)
+    return lx, cb, r2
+
+
 class CrossProducts:
     """Cross-products of one model, computed once; evaluates the profiled criterion.
 
@@ -180,17 +199,7 @@ class CrossProducts:
         lam, sd, l21, l22 = self._factor(theta_ordered)
         w = self._forward(sd, l21, l22, lam[:, None] * self.zt_yx)
         cu, rzx = w[:, 0], w[:, 1:]
-        a = self.xtx - rzx.T @ rzx
-        try:
-            lx = linalg.cholesky(a, lower=True, check_finite=False)
-        except linalg.LinAlgError as err:
-            raise NotIdentifiedError(
-                "the fixed-effects design is rank deficient (X'X minus its random-effects part "
-                "is not positive definite)"
-            ) from err
-        cb = linalg.solve_triangular(lx, self.xty - rzx.T @ cu, lower=True, check_finite=False)
-        r2 = self.yty - float(cu @ cu) - float(cb @ cb)
-        r2 = max(r2, np.finfo(float).tiny)
+        lx, cb, r2 = _fixed_step(self.xtx, self.xty, self.yty, cu, rzx)
         logdet_l = 2.0 * float(np.log(sd).sum())
         if self.qc:
             logdet_l += 2.0 * float(np.log(np.diag(l22)).sum())
@@ -312,16 +321,7 @@ class DesignCrossProducts:
         chol = BlockCholesky(d, ts, *self.cross)
         w = chol.forward(d.lam_t(ts, self.zt_yx))
         cu, rzx = w[:, 0], w[:, 1:]
-        a = self.xtx - rzx.T @ rzx
-        try:
-            lx = linalg.cholesky(a, lower=True, check_finite=False)
-        except linalg.LinAlgError as err:
-            raise NotIdentifiedError(
-                "the fixed-effects design is rank deficient (X'X minus its random-effects part "
-                "is not positive definite)"
-            ) from err
-        cb = linalg.solve_triangular(lx, self.xty - rzx.T @ cu, lower=True, check_finite=False)
-        r2 = max(self.yty - float(cu @ cu) - float(cb @ cb), np.finfo(float).tiny)
+        lx, cb, r2 = _fixed_step(self.xtx, self.xty, self.yty, cu, rzx)
         logdet_x = 2.0 * float(np.log(np.diag(lx)).sum())
         return ts, chol, cu, rzx, lx, cb, r2, chol.logdet(), logdet_x
 
