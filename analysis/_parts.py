@@ -186,7 +186,40 @@ def _notes_data(tables: Tables) -> list[dict]:
     issues = tables.get("issues")
     if issues is None or issues.empty:
         return []
-    return [_note("issues", f"{len(issues)} problem(s) found while reading the logs")]
+    notes = [_note("issues", f"{len(issues)} problem(s) found while reading the logs")]
+    failed = issues[issues["issue"] == "failed_trials"]
+    if len(failed):
+        notes.append(
+            _note(
+                "sessions",
+                f"{len(failed)} session(s) hold trials the solver or adapter did not answer "
+                f"({int(failed['n'].sum())} failed or timed out); they count as unanswered, "
+                "not as errors. Run the same machine command again to retry them.",
+                subject=", ".join(map(str, failed["session"])),
+                severity="warning",
+            )
+        )
+    return notes
+
+
+def _section_data(rc: ReportContext) -> dict[str, Any] | None:
+    """Shown only when reading the logs found problems (failed trials, duplicates, gaps)."""
+    issues = rc.read("issues")
+    if issues is None or issues.empty:
+        return None
+    counts = issues.groupby("issue")["n"].sum()
+    words = ", ".join(f"{int(v)} {k.replace('_', ' ')}" for k, v in counts.items())
+    return {
+        "reading": f"Reading the session logs found: {words}. Each session is listed below.",
+        "tables": [
+            rc.table(
+                "issues",
+                issues,
+                ["session", "issue", "n", "detail", "source"],
+                caption="Problems per session log; failed trials are retried by a rerun.",
+            )
+        ],
+    }
 
 
 # -- irt ----------------------------------------------------------------------------------------
@@ -986,6 +1019,7 @@ PARTS: tuple[Part, ...] = (
         _run_data,
         ("synthetic",),
         notes=_notes_data,
+        section=_section_data,
     ),
     Part(
         "irt",

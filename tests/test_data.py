@@ -361,3 +361,28 @@ def test_failed_and_timed_out_machine_trials_are_counted_per_session(fresh):
     assert issue["session"].tolist() == [session]
     assert issue["n"].tolist() == [3]
     assert issue["detail"].iloc[0].startswith("2 failed, 1 timeout")
+
+
+def test_failed_trials_reach_the_report_as_a_data_section(fresh, tmp_path):
+    from twofold.analysis._parts import ReportContext, _notes_data, _section_data
+
+    logs = sorted((fresh / "logs" / "machine").glob("*.csv"))
+    lines = logs[0].read_text(encoding="utf-8").splitlines(keepends=True)
+    header = lines[0].rstrip("\n").split(",")
+    cells = lines[1].rstrip("\n").split(",")
+    cells[header.index("status")] = "failed"
+    cells[header.index("correct")] = cells[header.index("error_type")] = ""
+    lines[1] = ",".join(cells) + "\n"
+    logs[0].write_text("".join(lines), encoding="utf-8")
+    with pytest.warns(LogWarning):
+        d = load_study_data(fresh)
+    d.issues.to_csv(tmp_path / "issues.csv", index=False)
+    notes = _notes_data({"issues": d.issues})
+    warned = [n for n in notes if n["severity"] == "warning"]
+    assert len(warned) == 1 and warned[0]["subject"] == logs[0].stem
+    rc = ReportContext(results=tmp_path, out=tmp_path, notes=pd.DataFrame(), trials=None)
+    sec = _section_data(rc)
+    assert sec is not None and "1 failed trials" in sec["reading"]
+    assert logs[0].stem in sec["tables"][0]["html"]
+    (tmp_path / "issues.csv").write_text("source,session,issue,n,detail\n", encoding="utf-8")
+    assert _section_data(rc) is None  # no problems, no section
