@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 from twofold.study.exceptions import InputError
+from twofold.study.registry import Registry
 
 from . import compare, mixed, participants
 from . import figures as F
@@ -1011,7 +1012,7 @@ def _run_export(ctx: PartContext) -> dict[str, Any]:
     return {"dataset": None}
 
 
-PARTS: tuple[Part, ...] = (
+_BUILTIN_PARTS: tuple[Part, ...] = (
     Part(
         "data",
         "Data",
@@ -1148,6 +1149,34 @@ PARTS: tuple[Part, ...] = (
     ),
     Part("export", "Data package", ("dataset",), _run_export),
 )
+
+
+def _check_part(name: str, obj: Any) -> None:
+    if not isinstance(obj, Part):
+        raise ValueError(f"analysis part {name!r}: got {type(obj).__name__}; accepted: a Part")
+    if obj.name != name:
+        raise ValueError(f"analysis part {name!r}: the Part is named {obj.name!r}")
+
+
+#: Every analysis part, in the same :class:`~twofold.study.registry.Registry` type as families,
+#: solvers, adapters and screens: the built-ins above in their running order, then plugins from
+#: the ``twofold.analysis_parts`` entry-point group (an installed package's ``Part`` object),
+#: which run after them in name order.
+REGISTRY: Registry[Part] = Registry(
+    "analysis part", group="twofold.analysis_parts", check=_check_part
+)
+for _part in _BUILTIN_PARTS:
+    REGISTRY.register(_part.name, _part)
+
+
+def _all_parts() -> tuple[Part, ...]:
+    loaded = REGISTRY.load_all()
+    builtin = {p.name for p in _BUILTIN_PARTS}
+    return _BUILTIN_PARTS + tuple(loaded[n] for n in sorted(loaded) if n not in builtin)
+
+
+#: the parts :func:`~twofold.analysis.analyze_study` and the report loop over
+PARTS: tuple[Part, ...] = _all_parts()
 
 
 # -- the report's view of the results -----------------------------------------------------------

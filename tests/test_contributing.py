@@ -46,11 +46,12 @@ def test_every_code_block_runs(block, tmp_path):
 
 def entry_point_groups() -> set[str]:
     """The entry-point groups of twofold's registries (plugins register through these)."""
+    from twofold.analysis._parts import REGISTRY as PARTS
     from twofold.experiments.machine.adapters import ADAPTERS
     from twofold.experiments.solvers._base import SOLVERS
     from twofold.study.families import FAMILIES
 
-    return {FAMILIES.group, SOLVERS.group, ADAPTERS.group}
+    return {FAMILIES.group, SOLVERS.group, ADAPTERS.group, PARTS.group}
 
 
 @pytest.mark.parametrize("name", NAMES)

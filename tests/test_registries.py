@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import subprocess
 import sys
 import textwrap
@@ -292,3 +293,48 @@ def test_screens_are_for_known_families():
 
     assert set(SCREENS.names()) <= set(known_families())
     assert set(SCREENS.names()) == {"contrast", "grids", "matrices", "strings"}
+
+
+# -- analysis parts ------------------------------------------------------------------------------
+
+
+def test_analysis_parts_are_a_registry_in_running_order():
+    from twofold.analysis import _parts
+    from twofold.analysis.run import PARTS
+
+    assert list(_parts.REGISTRY.names()) == sorted(p.name for p in _parts.PARTS)
+    assert PARTS == tuple(p.name for p in _parts.PARTS)
+    assert PARTS[:2] == ("data", "irt") and PARTS[-1] == "export"
+    with pytest.raises(ValueError, match="accepted: a Part"):
+        _parts.REGISTRY.register("odd", {"name": "odd"})
+    with pytest.raises(ValueError, match="is named 'irt'"):
+        _parts.REGISTRY.register("other", _parts.REGISTRY.get("irt"))
+
+
+def test_an_installed_analysis_part_runs_after_the_builtins(tmp_path):
+    (tmp_path / "e2part_plugin.py").write_text(
+        textwrap.dedent(
+            """
+            import pandas as pd
+            from twofold.analysis._parts import Part
+
+            def _run(ctx):
+                return {"plugin_rows": pd.DataFrame({"n": [len(ctx.data.trials)]})}
+
+            PART = Part("plugin-count", "Plugin count", ("plugin_rows",), _run, ())
+            """
+        )
+    )
+    dist = tmp_path / "e2part_plugin-1.0.dist-info"
+    dist.mkdir()
+    (dist / "METADATA").write_text("Metadata-Version: 2.1\nName: e2part-plugin\nVersion: 1.0\n")
+    (dist / "entry_points.txt").write_text(
+        "[twofold.analysis_parts]\nplugin-count = e2part_plugin:PART\n"
+    )
+    code = "from twofold.analysis.run import PARTS; print(','.join(PARTS))"
+    env = {**os.environ, "PYTHONPATH": str(tmp_path)}
+    out = subprocess.run(
+        [sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True
+    )
+    names = out.stdout.strip().split(",")
+    assert names[-1] == "plugin-count" and names[-2] == "export"
