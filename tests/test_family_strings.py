@@ -73,15 +73,15 @@ def make(params, seed, modes=("generate",), scheme="near-miss", n_choices=4):
 @pytest.mark.parametrize(
     ("rule", "target", "expected"),
     [
-        ("succ-last", "ijk", "ijl"),
-        ("succ-last", "iijjkk", "iijjll"),
+        ("succ-last", "fgh", "fgi"),
+        ("succ-last", "ffgghh", "ffggii"),
         ("pred-first", "abc", "zbc"),  # circular order
-        ("shift-all", "xyz", "yza"),
-        ("double-last", "ijk", "ijkk"),
+        ("shift-all", "vwxyz", "wxyza"),  # wraps at the end
+        ("double-last", "fgh", "fghh"),
         ("extend", "kji", "kjih"),
-        ("extend", "xyz", "xyza"),
+        ("extend", "vwxyz", "vwxyza"),
         ("drop-first", "aabbcc", "bbcc"),
-        ("swap-ends", "ijkl", "ljki"),
+        ("swap-ends", "pqrs", "sqrp"),
         ("reverse", "abbc", "cbba"),
     ],
 )
@@ -137,10 +137,10 @@ def test_analysis_records_the_symbol_level_alternative_with_a_label():
 @pytest.mark.parametrize(
     ("src", "chg", "tgt", "expected"),
     [
-        ("abc", "abd", "ijk", "ijd"),
-        ("abc", "zbc", "ijk", "zjk"),
-        ("abc", "abcd", "ijk", "ijkd"),
-        ("abc", "cba", "ijk", "cba"),
+        ("defg", "defh", "qrst", "qrsh"),
+        ("defg", "zefg", "qrst", "zrst"),
+        ("defg", "defgh", "qrst", "qrsth"),
+        ("defg", "gfed", "qrst", "gfed"),
     ],
 )
 def test_literal_edit_copies_symbols_at_the_same_place(src, chg, tgt, expected):

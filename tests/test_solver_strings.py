@@ -139,7 +139,7 @@ def test_bad_options_and_views_are_named():
         make_builtin("strings-ref", seed=-1)
     ref = make_builtin("strings-ref")
     with pytest.raises(SolverError, match="field 'view'"):
-        ref.solve("abc -> abd", "generate")
+        ref.solve("defg -> defh", "generate")
     it = items({}, 1)[0]
     with pytest.raises(SolverError, match="field 'mode'"):
         ref.solve(render(it, "structured", "generate"), "guess")

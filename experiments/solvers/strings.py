@@ -18,7 +18,7 @@ mixed grouping and more distinct symbols make the grammar instance larger, so at
 the shortest consistent description is missed more often and accuracy falls.
 
 ``literal`` is the baseline that copies the change literally: the same symbols written at the same
-place of the target (``abc -> abd`` gives ``ijk -> ijd``).
+place of the target (``defg -> defh`` gives ``qrst -> qrsh``).
 """
 
 from __future__ import annotations

@@ -1,7 +1,7 @@
 """The ``strings`` family: symbol-string analogies.
 
 A source string and its changed form are shown with a target string; the respondent produces the
-analogous change of the target (``abc -> abd``; ``ijk -> ?``). Strings are runs of consecutive
+analogous change of the target (``defg -> defh``; ``qrst -> ?``). Strings are runs of consecutive
 symbols of an ordered, circular symbol set (letters, digits, or an invented glyph order that is
 shown on screen), optionally grouped (``aabbcc``).
 

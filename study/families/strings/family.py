@@ -598,10 +598,11 @@ class StringsFamily(StringsDrawing, Family):
             "comes the first again):",
             order,
             "",
-            f"This string:      {st['source']}",
-            f"was changed into: {st['changed']}",
+            f"Example pair: {st['source']} -> {st['changed']}",
+            f"New string:   {st['target']} -> ?",
             "",
-            f"Change this string in the same way: {st['target']}",
+            "Whatever turns the first string of the example pair into the second also acts on "
+            "the new string. Which string does the new string become?",
         ]
         if mode == "select":
             lines += ["", "Choices:"]
@@ -623,7 +624,7 @@ class StringsFamily(StringsDrawing, Family):
             "family": self.name,
             "item": item.id,
             "mode": mode,
-            "task": "Change the target string in the same way as the source string was changed.",
+            "task": "Apply to the target the change that turns the source into the changed string.",
             "alphabet": st["alphabet"],
             "symbol_order": list(st["symbols"]),
             "circular": bool(st["circular"]),
