@@ -1054,7 +1054,7 @@ _BUILTIN_PARTS: tuple[Part, ...] = (
             "log_effort_random",
         ),
         _run_mixed,
-        ("conf_level",),
+        ("conf_level", "gap_intervals"),
         notes=_notes_mixed,
         section=_section_mixed,
         methods=_methods_mixed,

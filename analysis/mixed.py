@@ -664,7 +664,8 @@ def _glmm_random_table(model, fit, factors, level, sd_intervals, notes) -> pd.Da
         cov = fit.covariances[factors.index(f)]
         for j, term in enumerate(f.terms):
             sd = sd_hat[pos + j]
-            lo, hi = sd * np.exp(-z * se_log[pos + j]), sd * np.exp(z * se_log[pos + j])
+            with np.errstate(over="ignore"):  # an SD near 0 has an unbounded upper limit
+                lo, hi = sd * np.exp(-z * se_log[pos + j]), sd * np.exp(z * se_log[pos + j])
             note = ""
             if sd < 1e-4:
                 lo, hi, note = 0.0, np.nan, "singular: SD estimated at zero"

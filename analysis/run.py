@@ -42,6 +42,10 @@ __all__ = ["OPTIONS", "PARTS", "AnalysisRun", "analyze_study", "parse_parts"]
 #: the part names, in the order they run (declared in :data:`twofold.analysis._parts.PARTS`)
 PARTS = tuple(p.name for p in _parts.PARTS)
 
+#: above this many scored trials, ``gap_intervals = "auto"`` gives Wald instead of profile
+#: intervals for the by-item gap SD (a profile refits the slope model at every point)
+GAP_PROFILE_MAX_TRIALS = 50_000
+
 #: ``[analysis]`` keys: name -> (default, what is accepted)
 OPTIONS: dict[str, tuple[Any, str]] = {
     "conf_level": (0.95, "a number between 0.5 and 1"),
@@ -51,6 +55,7 @@ OPTIONS: dict[str, tuple[Any, str]] = {
     "min_items": (10, "a positive integer"),
     "synthetic": ("keep", "one of drop, keep, only"),
     "human_pairs": ("summary", "one of all, summary"),
+    "gap_intervals": ("auto", "one of auto, profile, wald"),
     "parts": (list(PARTS), "a list of parts: " + ", ".join(PARTS)),
 }
 
@@ -67,6 +72,8 @@ def _ok(key: str, value: Any) -> bool:
         return value in ("drop", "keep", "only")
     if key == "human_pairs":
         return value in ("all", "summary")
+    if key == "gap_intervals":
+        return value in ("auto", "profile", "wald")
     if key == "parts":
         return isinstance(value, list) and all(v in PARTS for v in value)
     return False
@@ -186,9 +193,22 @@ def _mixed(data: StudyData, opts: dict[str, Any]) -> dict[str, pd.DataFrame]:
         sc = t.loc[t["correct"].notna()]
         if sc["kind"].nunique() > 1 and sc["item"].nunique() > 2:
             extra = _fixed_rhs(sc, "")
-            out["item_gap_variation"] = mixed.item_gap_variation(
-                t, fixed="" if extra == "1" else extra, conf_level=lvl
+            how = opts.get("gap_intervals", "auto")
+            if how == "auto":
+                # each profile point refits the by-item slope model: minutes at 100k trials
+                how = "profile" if len(sc) <= GAP_PROFILE_MAX_TRIALS else "wald"
+            gap = mixed.item_gap_variation(
+                t, fixed="" if extra == "1" else extra, conf_level=lvl, sd_intervals=how
             )
+            if how == "wald" and opts.get("gap_intervals", "auto") == "auto":
+                said = (
+                    f"SD interval: Wald on the log scale ({len(sc):,} trials; profile intervals "
+                    f"up to {GAP_PROFILE_MAX_TRIALS:,}, or with gap_intervals = 'profile')"
+                )
+                gap["note"] = [
+                    f"{n}; {said}" if isinstance(n, str) and n else said for n in gap["note"]
+                ]
+            out["item_gap_variation"] = gap
     hum = t.loc[(t["kind"] == "human") & (t["rt_ms"] > 0)]
     if hum["respondent"].nunique() > 1:
         rt = mixed.fit_log_time(t, measure="rt", fixed=_fixed_rhs(hum, ""), conf_level=lvl)

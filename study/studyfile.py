@@ -188,6 +188,7 @@ STUDY_FIELDS: dict[str, Field] = {
             "min_items": _f("integer", "fewest items per respondent"),
             "synthetic": _f("string", "simulated respondents"),
             "human_pairs": _f("string", "human-human pairs"),
+            "gap_intervals": _f("string", "intervals of the by-item gap SD"),
             "parts": _f("array", "report parts"),
         },
     ),
