@@ -103,10 +103,11 @@ def test_verbagg_crossed_binary_glmm_by_variational_bayes():
     data["r2"] = (data["r2"] == "Y").astype(int)
     res = fit_glmm(data, "r2 ~ btype + mode + situ", random=["id", "item"], method="vb")
     fx = _fx(res)
-    # reference: Bates et al. 2015, J. Stat. Softw. 67(1) (values computed with lme4; REFERENCES.md)
-    # lme4's baseline mode is "want"; pandas orders levels alphabetically, so the reference
-    # intercept is 1.7759 - 0.7068 and mode[T.want] = +0.7068. Variational Bayes vs Laplace:
-    # fixed effects within about 0.05, SDs within about 10 % (REFERENCES.md).
+    # reference: SOURCES.md#lme4-verbagg — lme4 1.1-31 glmer (Laplace), computed by
+    # tests/reference/lme4_glmm.R (lme4_glmm.out, "verbagg-crossed"); with baseline mode "do"
+    # the intercept is 1.0691 (= 1.7759 - 0.7068 of the "want" baseline) and modewant +0.7068.
+    # The tolerances (0.05 on fixed effects, 10 % on SDs) are how close the mean-field
+    # variational fit comes to the Laplace fit, as measured here; they are not from a source.
     expected = {
         "Intercept": 1.7759 - 0.7068,
         "btype[T.scold]": -1.0595,
