@@ -258,7 +258,8 @@ def _drop_aliased(x: pd.DataFrame) -> tuple[pd.DataFrame, list[str]]:
             resid = g[j, j]
         if resid > 1e-9:
             kept.append(j)
-    dropped = [c for k, c in enumerate(x.columns) if k not in set(kept)]
+    keep = set(kept)
+    dropped = [c for k, c in enumerate(x.columns) if k not in keep]
     return x.iloc[:, kept], dropped
 
 

@@ -444,19 +444,24 @@ def _band(n: int, p: float = 0.95) -> tuple[float, float]:
     return stats.binom.ppf(0.001, n, p) / n, stats.binom.ppf(0.999, n, p) / n
 
 
-@pytest.mark.slow  # about 40 s on 2 cores
-def test_laplace_intervals_cover_at_their_nominal_rate():
-    rng = np.random.default_rng(20240610)
-    n_rep, truth = 60, {"Intercept": 0.5, "kind[T.machine]": 0.8}
+def _assert_fixed_effects_cover(fit, formula: str, seed: int, n_rep: int) -> None:
+    """Fit ``formula`` to ``n_rep`` crossed data sets; the 95 % intervals of the intercept and the
+    kind effect must cover their true values at a rate inside the binomial band."""
+    rng = np.random.default_rng(seed)
+    truth = {"Intercept": 0.5, "kind[T.machine]": 0.8}
     hits = {t: 0 for t in truth}
     for _ in range(n_rep):
-        df = _crossed(rng)
-        fx = _fx(fit_glmm(df, "correct ~ kind", random=["respondent", "item"]))
+        fx = _fx(fit(_crossed(rng), formula, random=["respondent", "item"]))
         for t, v in truth.items():
             hits[t] += int(fx.loc[t, "ci_low"] <= v <= fx.loc[t, "ci_high"])
     lo, hi = _band(n_rep)
     for t in truth:
         assert lo <= hits[t] / n_rep <= hi, (t, hits[t])
+
+
+@pytest.mark.slow  # about 40 s on 2 cores
+def test_laplace_intervals_cover_at_their_nominal_rate():
+    _assert_fixed_effects_cover(fit_glmm, "correct ~ kind", seed=20240610, n_rep=60)
 
 
 @pytest.mark.slow  # about 100 s: 2.5 s per replicate (two fits and a profile)
@@ -474,14 +479,4 @@ def test_item_gap_sd_profile_intervals_cover_at_their_nominal_rate():
 
 @pytest.mark.slow
 def test_linear_model_intervals_cover_at_their_nominal_rate():
-    rng = np.random.default_rng(20240611)
-    n_rep, truth = 100, {"Intercept": 0.5, "kind[T.machine]": 0.8}
-    hits = {t: 0 for t in truth}
-    for _ in range(n_rep):
-        df = _crossed(rng)
-        fx = _fx(fit_lmm(df, "score ~ kind", random=["respondent", "item"]))
-        for t, v in truth.items():
-            hits[t] += int(fx.loc[t, "ci_low"] <= v <= fx.loc[t, "ci_high"])
-    lo, hi = _band(n_rep)
-    for t in truth:
-        assert lo <= hits[t] / n_rep <= hi, (t, hits[t])
+    _assert_fixed_effects_cover(fit_lmm, "score ~ kind", seed=20240611, n_rep=100)
