@@ -17,11 +17,11 @@ import json
 import os
 import shutil
 import subprocess
-import sys
 from collections.abc import Callable
 from pathlib import Path
 
 import pytest
+from _cli import console_script
 from twofold.experiments.cli import main
 from twofold.experiments.simulate import simulate_humans
 from twofold.study import load_study
@@ -347,17 +347,11 @@ USAGE = [
 ]
 
 
-def _console_script() -> str:
-    exe = shutil.which("twofold") or str(Path(sys.executable).parent / "twofold")
-    assert Path(exe).exists(), "the twofold console script is not installed"
-    return exe
-
-
 @pytest.mark.parametrize(("argv", "expected"), USAGE, ids=[" ".join(a) or "bare" for a, _ in USAGE])
 def test_usage_errors_are_one_line_exit_2_through_the_console_script(tmp_path, argv, expected):
     env = {**os.environ, "COLUMNS": "80", "NO_COLOR": "1"}
     proc = subprocess.run(
-        [_console_script(), *argv], capture_output=True, text=True, cwd=tmp_path, env=env,
+        [console_script(), *argv], capture_output=True, text=True, cwd=tmp_path, env=env,
         timeout=120,
     )  # fmt: skip
     lines = proc.stderr.splitlines()
@@ -380,7 +374,7 @@ def test_a_bad_bank_through_the_console_script(base, tmp_path):
     _item_line(lambda r: json.dumps(r).replace('"seed": ', '"seed": NaN, "x": ', 1))(root)
     before = _snapshot(root)
     proc = subprocess.run(
-        [_console_script(), "simulate", str(root), "--humans", "2", "--replace"],
+        [console_script(), "simulate", str(root), "--humans", "2", "--replace"],
         capture_output=True, text=True, timeout=120,
     )  # fmt: skip
     assert proc.returncode == 2 and len(proc.stderr.splitlines()) == 1, proc.stderr

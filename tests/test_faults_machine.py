@@ -25,6 +25,7 @@ import time
 from pathlib import Path
 
 import pytest
+from _cli import TWOFOLD
 from twofold.experiments.machine import run_trial
 from twofold.experiments.machine._core import MAX_ANSWER_CHARS, FreeText
 from twofold.experiments.machine.cache import CACHE_FILE
@@ -113,14 +114,6 @@ def _env(tmp: Path, **extra: str) -> dict[str, str]:
         "COLUMNS": "200",
         **extra,
     }
-
-
-#: the installed console script (the real command), else the module
-TWOFOLD = (
-    [shutil.which("twofold")]
-    if shutil.which("twofold")
-    else [sys.executable, "-m", "twofold.experiments.cli"]
-)
 
 
 def _twofold(*args: str, env: dict[str, str], timeout: float = 120) -> subprocess.CompletedProcess:

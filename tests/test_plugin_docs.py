@@ -11,13 +11,13 @@ import json
 import os
 import re
 import shlex
-import shutil
 import subprocess
 import sys
 import tomllib
 from pathlib import Path
 
 import pytest
+from _cli import TWOFOLD
 from twofold.experiments.machine import build_solver, parse_solver_entry, study_solvers
 from twofold.experiments.machine.chat import study_prompt
 from twofold.study import load_study, read_trials
@@ -27,12 +27,6 @@ ROOT = Path(__file__).resolve().parents[1]
 README = ROOT / "README.md"
 SECTION = "## Plug in your model"
 
-#: the installed console script (the real command), else the module
-TWOFOLD = (
-    [shutil.which("twofold")]
-    if shutil.which("twofold")
-    else [sys.executable, "-m", "twofold.experiments.cli"]
-)
 
 STUDY = """[study]
 name = "plugin-docs"

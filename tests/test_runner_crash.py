@@ -8,9 +8,11 @@ the same form order, and the finished log has every trial exactly once.
 from __future__ import annotations
 
 import random
+import subprocess
 import time
 
 import pytest
+from _cli import TWOFOLD
 from _display import Driver, make_runner_study, on_screen, play, x_display  # noqa: F401
 from twofold.study import load_study, read_sidecar, read_trials
 from twofold.study.exceptions import LogWarning
@@ -199,3 +201,14 @@ def test_sigkill_at_every_stage_then_resume_and_analyse(x_display, tmp_path):  #
     assert data.sessions["status"].tolist() == ["complete"]
     assert sorted(data.trials["trial"]) == list(range(n_total))
     assert data.issues.empty
+    # and through the real commands a lab types next
+    for argv in (["analyze", str(st.file)], ["report", str(st.file)]):
+        proc = subprocess.run(
+            [*TWOFOLD, *argv], capture_output=True, text=True, timeout=600, check=False
+        )
+        assert proc.returncode == 0, proc.stderr[-2000:]
+    assert "P001" in (st.results_dir / "sessions.csv").read_text(encoding="utf-8")
+    reports = list(st.root.rglob("report.html"))
+    assert len(reports) == 1
+    html = reports[0].read_text(encoding="utf-8")
+    assert "Verdict" in html and "1 humans" in html
