@@ -295,8 +295,9 @@ def family_accuracy(trials: pd.DataFrame, *, conf_level: float = 0.95) -> dict[s
         ``means`` (columns :data:`FAMILY_ACCURACY_COLUMNS`: mean and SD over participants of
         their proportion correct in the family, t interval) and ``tests`` (columns
         :data:`FAMILY_TEST_COLUMNS`): one ``rm_anova`` row (F, its degrees of freedom, p,
-        generalised eta squared ``ng2`` and the Greenhouse–Geisser epsilon) and one ``paired_t``
-        row per pair of families (t, p, Holm-adjusted p, Hedges' g). The tests use the
+        the Greenhouse–Geisser corrected p in ``p_adjusted``, generalised eta squared ``ng2``
+        and the Greenhouse–Geisser epsilon) and one ``paired_t`` row per pair of families (t, p,
+        Holm-adjusted p in ``p_adjusted``, Hedges' g). The tests use the
         participants who took every family (``n_respondents``); with fewer than two families or
         three such participants ``tests`` is empty and a DegenerateWarning says why.
 
