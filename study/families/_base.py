@@ -22,6 +22,8 @@ from ..item import Item, canonical_json
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.figure import Figure
 
+    from ..scene import Scene
+
 __all__ = ["Family", "ParamSpec", "Rejected", "Score"]
 
 
@@ -379,9 +381,47 @@ class Family(abc.ABC):
         Never reveals the answer; includes the choices in select mode.
         """
 
-    @abc.abstractmethod
+    def scene(self, item: Item, mode: str) -> Scene:
+        """What to draw for ``item`` in ``mode``, as plain primitives (see
+        :mod:`twofold.study.scene`): the one description both the picture painter and the
+        participant screens paint. Never shows the answer.
+
+        The default shows the family's text prompt, wrapped, with a typed answer (generate) or
+        numbered choices (select), so a new family can be shown before it draws anything.
+        """
+        from ..scene import DESIGN_BOX, Response, Scene, Text, wrap
+
+        w, h = DESIGN_BOX
+        size = 20.0
+        body = wrap(self.render_text(item, mode), size, w - 40)
+        lines = body.count("\n") + 1
+        size = max(18.0, min(size, (h - 20) / (1.5 * lines)))
+        body = wrap(self.render_text(item, mode), size, w - 40)
+        el = Text(20, h - 10, body, size, anchor="left", valign="top", role="prompt")
+        if mode == "select":
+            resp = Response("choose", {"n": len(item.choices or ())})
+        else:
+            resp = Response("type", {})
+        return Scene(w, h, (el,), response=resp)
+
+    def answer_scene(self, item: Item, mode: str, answer: Any) -> Scene:
+        """``answer`` drawn the way the stimulus draws it (a choice, a grid, a panel, a string),
+        for practice feedback and for the builder's live preview. The default writes it out."""
+        from ..scene import Scene, Text
+
+        text = str(answer)
+        if mode == "select" and item.choices and isinstance(answer, int):
+            if 1 <= answer <= len(item.choices):
+                text = f"{answer}: {item.choices[answer - 1]}"
+        size = 22.0
+        width = max(200.0, 0.62 * size * len(text) + 20)
+        return Scene(width, 60.0, (Text(width / 2, 30, text, size, role="answer"),))
+
     def draw(self, item: Item, mode: str, fig: Figure) -> None:
-        """Draw the item on an empty matplotlib figure (square, legible at 600x600 px)."""
+        """Paint the item's :meth:`scene` on an empty matplotlib figure (what pictures show)."""
+        from ..render import paint_scene
+
+        paint_scene(self.scene(item, mode), fig)
 
     def __repr__(self) -> str:
         return f"<family {self.name} v{self.version}>"
