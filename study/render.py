@@ -93,7 +93,8 @@ def paint_scene(scene: Scene, fig: Any) -> list[dict[str, Any]]:
         lc.set_capstyle("butt")
         ax.add_collection(lc)
         got = [tuple(map(float, v)) for s in lc.get_segments() for v in s]
-        drawn.append({"kind": "line", "points": got, "colour": to_hex(lc.get_color()[0])}  # type: ignore[arg-type])
+        rgba: Any = lc.get_color()[0]
+        drawn.append({"kind": "line", "points": got, "colour": to_hex(rgba)})
 
     for z, el in enumerate(scene.elements, start=1):
         if isinstance(el, Shape):
