@@ -85,6 +85,7 @@ def family_problems(family: Family, *, n: int = 10, seed: int = 0) -> list[str]:
                 problems.append(f"{where}: factors missing: {missing}")
             problems += _check_scoring(family, item, mode, where, seed + idx)
             problems += _check_views(family, item, mode, where)
+            problems += _check_scene(family, item, mode, where)
             for op in family.variant_operators:
                 _, rng = item_rng(seed, family.name, "vary", op, idx)
                 try:
@@ -122,6 +123,45 @@ def _check_scoring(family: Family, item: Item, mode: str, where: str, seed: int)
     if etype not in family.error_types:
         out.append(f"{where}: error type {etype!r} is not declared")
     return out
+
+
+def _check_scene(family: Family, item: Item, mode: str, where: str) -> list[str]:
+    """The scene is deterministic, legible (:func:`~twofold.study.scene.scene_problems`) and fits
+    the mode: a response of the right kind, one ``choice:k`` slot per choice when slots are
+    given, and an answer scene that fits the answer box."""
+    from .scene import Response, Scene, scene_problems
+
+    try:
+        sc = family.scene(item, mode)
+        if not isinstance(sc, Scene):
+            return [f"{where}: scene() returned {type(sc).__name__}, not a Scene"]
+        out = [f"{where}: scene: {p}" for p in scene_problems(sc)]
+        if sc != family.scene(item, mode):
+            out.append(f"{where}: scene is not deterministic")
+        if not isinstance(sc.response, Response):
+            out.append(f"{where}: scene has no response")
+            return out
+        kind = sc.response.kind
+        if mode == "select" and kind not in ("choose", "label"):
+            out.append(f"{where}: select mode answers by {kind!r}; accepted: choose, label")
+        if mode == "generate" and kind == "choose":
+            out.append(f"{where}: generate mode cannot answer by choosing")
+        keys = [s.key for s in sc.slots if s.key.startswith("choice:")]
+        if keys and keys != [f"choice:{k + 1}" for k in range(len(item.choices or ()))]:
+            out.append(
+                f"{where}: choice slots {keys} do not match the {len(item.choices or ())} choices"
+            )
+        if kind in ("build", "paint"):
+            if sc.answer_box is None:
+                out.append(f"{where}: a {kind} response needs an answer_box")
+            else:
+                ans = family.answer_scene(item, mode, family.correct_response(item, mode))
+                x0, y0, x1, y1 = sc.answer_box
+                if abs(ans.width - (x1 - x0)) > 0.5 or abs(ans.height - (y1 - y0)) > 0.5:
+                    out.append(f"{where}: answer scene is not the size of the answer box")
+        return out
+    except Exception as err:  # noqa: BLE001 - reported, not raised
+        return [f"{where}: scene failed: {type(err).__name__}: {err}"]
 
 
 def _check_views(family: Family, item: Item, mode: str, where: str) -> list[str]:

@@ -394,9 +394,8 @@ class Family(abc.ABC):
         w, h = DESIGN_BOX
         size = 20.0
         body = wrap(self.render_text(item, mode), size, w - 40)
-        lines = body.count("\n") + 1
-        size = max(18.0, min(size, (h - 20) / (1.5 * lines)))
-        body = wrap(self.render_text(item, mode), size, w - 40)
+        # a long prompt makes a taller scene (a family with its own scene lays out its own)
+        h = max(h, 1.5 * size * (body.count("\n") + 1) + 30)
         el = Text(20, h - 10, body, size, anchor="left", valign="top", role="prompt")
         if mode == "select":
             resp = Response("choose", {"n": len(item.choices or ())})
