@@ -117,11 +117,6 @@ class ToyFamily(Family):
             view["choices"] = list(item.choices)
         return view
 
-    def draw(self, item: Item, mode: str, fig: Any) -> None:
-        ax = fig.add_subplot(111)
-        ax.set_axis_off()
-        ax.text(0.5, 0.5, f"{item.stimulus['a']} + {item.stimulus['b']} = ?", ha="center")
-
 
 TOY = ToyFamily()
 
