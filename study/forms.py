@@ -7,7 +7,7 @@ practice items) and ``[forms]`` says how forms vary across respondents::
     name = "letters"
     families = ["strings"]          # and/or items = ["str-0123456789ab", ...]
     mode = "generate"               # or "select"
-    instructions = "instructions/letters.txt"
+    instructions = "instructions/letters.txt"   # absent: the shipped template
     time_limit_s = 90               # per item; 0 or absent: no limit
     practice = 2                    # practice items taken from the block (or a list of item ids)
     feedback = true                 # feedback after practice items
@@ -203,8 +203,9 @@ def parse_blocks(study: Any, *, check_files: bool = True) -> tuple[BlockSpec, ..
         mode = check_choice(
             f"{key}.mode", b.get("mode", "generate"), MODES, where=where, error=SpecError
         )
-        instr = b.get("instructions")
-        if not isinstance(instr, str) or not instr:
+        # absent (""): the runner shows the shipped template for the block's family and mode
+        instr = b.get("instructions", "")
+        if not isinstance(instr, str):
             raise fail(
                 f"{key}.instructions",
                 instr,
@@ -212,7 +213,7 @@ def parse_blocks(study: Any, *, check_files: bool = True) -> tuple[BlockSpec, ..
                 where=where,
                 error=SpecError,
             )
-        if check_files and not (study.root / instr).is_file():
+        if instr and check_files and not (study.root / instr).is_file():
             raise fail(
                 f"{key}.instructions",
                 instr,

@@ -135,6 +135,7 @@ STUDY_FIELDS: dict[str, Field] = {
             "allow_template_consent": _f("boolean", "allow the shipped consent template"),
             "redraw": _f("string", "redraw policy"),
             "shuffle_choices": _f("boolean", "shuffle select-mode choices per trial"),
+            "countdown": _f("boolean", "show the seconds left of a timed item"),
         },
     ),
     "solvers": _f(
