@@ -10,9 +10,8 @@ import numpy as np
 
 from ...item import Item
 from .._base import Family, Rejected
-from .drawing import _hosts_first
 from .enumeration import _leaf_truth, _lit_rule, _pack, rule_vector
-from .evaluation import _obj_code
+from .evaluation import _hosts_first, _obj_code
 from .generation import (
     _REPAIRS,
     _build_panel,

@@ -33,6 +33,23 @@ def _obj_code(o: Sequence[int]) -> str:
     return code
 
 
+def _hosts_first(objs: list[list[int]]) -> list[list[int]]:
+    """The panel with un-nested objects listed before nested ones (so drawers meet every
+    container before what it holds); container indices are renumbered."""
+    if all(o[INSIDE] < 0 for o in objs):
+        return objs
+    order = [k for k, o in enumerate(objs) if o[INSIDE] < 0]
+    order += [k for k, o in enumerate(objs) if o[INSIDE] >= 0]
+    new = {old: k for k, old in enumerate(order)}
+    out = []
+    for k in order:
+        o = list(objs[k])
+        if o[INSIDE] >= 0:
+            o[INSIDE] = new[o[INSIDE]]
+        out.append(o)
+    return out
+
+
 def _obj_dict(code: str | Mapping[str, Any]) -> dict[str, Any]:
     """An object as a dict (attribute -> value, ``inside`` -> container index or None)."""
     if isinstance(code, Mapping):

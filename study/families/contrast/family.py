@@ -2,7 +2,7 @@
 rendering as text. Its other parts are mixins: :mod:`~twofold.study.families.contrast.assembly`
 (items around a rule), :mod:`~twofold.study.families.contrast.variants`,
 :mod:`~twofold.study.families.contrast.errors` (error types) and
-:mod:`~twofold.study.families.contrast.drawing` (pictures)."""
+:mod:`~twofold.study.families.contrast.scene` (what is drawn)."""
 
 from __future__ import annotations
 
@@ -16,7 +16,6 @@ from ...exceptions import ResponseError, SpecError
 from ...item import Item
 from .._base import Family, ParamSpec, Rejected, Score
 from .assembly import ContrastAssembly
-from .drawing import ContrastDrawing
 from .enumeration import rule_vector
 from .errors import ContrastErrors
 from .evaluation import _obj_dict, panels_from_stimulus
@@ -49,17 +48,18 @@ from .notation import (
     format_rule,
     parse_rule,
 )
+from .scene import ContrastScene
 from .variants import ContrastVariants
 
 
-class ContrastFamily(ContrastVariants, ContrastAssembly, ContrastErrors, ContrastDrawing, Family):
+class ContrastFamily(ContrastVariants, ContrastAssembly, ContrastErrors, ContrastScene, Family):
     """Two sets of panels split by a hidden rule; classify test panels or state the rule."""
 
     name = "contrast"
     prefix = "con"
     reference_solver = "contrast-ref"
     typical_rt_ms = 18000.0
-    version = "1"
+    version = "2"
     modes = ("select", "generate")
     params = (
         ParamSpec("length", "int", 3, "description length of the hidden rule", low=1, high=6),
@@ -86,7 +86,7 @@ class ContrastFamily(ContrastVariants, ContrastAssembly, ContrastErrors, Contras
             low=1,
             high=6,
         ),
-        ParamSpec("per_set", "int", 6, "panels in each of set A and set B", low=2, high=12),
+        ParamSpec("per_set", "int", 5, "panels in each of set A and set B", low=2, high=12),
         ParamSpec("n_test", "int", 4, "test panels to classify", low=2, high=10),
         ParamSpec(
             "minimal",
