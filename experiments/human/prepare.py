@@ -11,12 +11,33 @@
     end_text = "Thank you. The session is over."
     redraw = "on_change"                # or "every_frame" (flip on every refresh)
     shuffle_choices = true              # select mode: choices in a per-trial order
+    countdown = false                   # timed items: the seconds left, in the top right corner
 
 With ``shuffle_choices`` (the default) each select-mode trial shows the item's choices in an
 order of its own (:func:`choice_order`): drawn from the study seed, the respondent id, the trial
 index and the item id, so a resumed session shows a trial in the same order again. The screen
 numbers the choices 1..n as shown; the log stores the bank's choice number as the response
 (scoring and analysis are unchanged) and the order shown in the ``choice_order`` column.
+
+Instructions
+------------
+A block's ``instructions`` file (study.toml) is shown as it is written, with the placeholders
+below filled in; a block without one gets the shipped template for its family and response mode
+(``templates/instructions-<family>-<mode>.txt``; ``instructions.txt`` for a mixed block or a
+family without one). The placeholders (:data:`PLACEHOLDERS`)::
+
+    {n_items}       number of test items in the block
+    {n_practice}    number of practice items
+    {time_limit_s}  seconds per item (empty without a limit)
+    {time_limit}    a sentence stating the time limit per item (empty without a limit)
+    {countdown}     a sentence saying where the seconds left are shown ([runner] countdown)
+    {practice}      a sentence about the practice items (empty without practice)
+    {feedback}      a sentence about feedback after practice items (empty without it)
+    {how}           how to answer on the block's screen: its keys and clicks
+
+A line left empty by its placeholders is dropped, so a sentence placeholder can stand on a line
+of its own. Any other ``{word}`` is refused before a session starts (a typo would otherwise
+reach the screen); braces around anything else are kept as they are.
 """
 
 from __future__ import annotations
@@ -38,15 +59,24 @@ from twofold.study.studyfile import STUDY_FIELDS
 
 __all__ = [
     "BANNER",
+    "HOW",
+    "PLACEHOLDERS",
     "RunnerOptions",
     "SessionPlan",
     "TEMPLATE_MARK",
+    "block_instructions",
+    "check_placeholders",
     "check_respondent",
     "choice_order",
-    "shown_item",
+    "fill_instructions",
+    "how_to_answer",
+    "instruction_template",
+    "instruction_values",
+    "paginate",
     "parse_runner",
     "prepare_session",
     "reflow",
+    "shown_item",
     "write_templates",
 ]
 
@@ -75,6 +105,7 @@ class RunnerOptions:
     allow_template_consent: bool = False
     redraw: str = "on_change"
     shuffle_choices: bool = True
+    countdown: bool = False
 
 
 def parse_runner(study: Any) -> RunnerOptions:
@@ -85,7 +116,7 @@ def parse_runner(study: Any) -> RunnerOptions:
         raise fail("runner", raw, "a [runner] table", where=where, error=SpecError)
     check_keys(raw, _RUNNER_KEYS, prefix="runner.", where=where, error=SpecError)
     d = RunnerOptions()
-    for key in ("fullscreen", "allow_template_consent", "shuffle_choices"):
+    for key in ("fullscreen", "allow_template_consent", "shuffle_choices", "countdown"):
         if not isinstance(raw.get(key, False), bool):
             raise fail(f"runner.{key}", raw[key], "true or false", where=where, error=SpecError)
     size = raw.get("size", list(d.size))
@@ -127,6 +158,7 @@ def parse_runner(study: Any) -> RunnerOptions:
         end_text=raw.get("end_text", d.end_text),
         allow_template_consent=raw.get("allow_template_consent", False),
         shuffle_choices=raw.get("shuffle_choices", d.shuffle_choices),
+        countdown=raw.get("countdown", d.countdown),
     )
 
 
@@ -205,6 +237,212 @@ class SessionPlan:
         return out
 
 
+#: the placeholders an instructions text may hold (see the module docstring)
+PLACEHOLDERS = (
+    "n_items",
+    "n_practice",
+    "time_limit_s",
+    "time_limit",
+    "countdown",
+    "practice",
+    "feedback",
+    "how",
+)
+_PLACEHOLDER = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
+
+#: how to answer, by the kind of response the block's screen takes (Scene.response.kind)
+HOW = {
+    "choose": "Click the answer you choose, or press the number shown beside it.",
+    "type": "Type your answer; BACKSPACE corrects and ENTER submits.",
+    "type_symbols": (
+        "Type your answer. Symbols that are not on your keyboard are shown as keys on the "
+        "screen: click them. BACKSPACE corrects and ENTER submits."
+    ),
+    "paint": (
+        "Paint the answer grid: pick a colour from the palette (click it or press its key), "
+        "then click or drag over cells. The tools beside the grid change its size and undo "
+        "edits. Click the submit button or press ENTER when the grid is done."
+    ),
+    "label": (
+        "For each new panel in turn, press A (or F) for set A and B (or J) for set B, or "
+        "click the label. BACKSPACE takes back the last label."
+    ),
+    "label_rule": (
+        "For each new panel in turn, press A (or F) for set A and B (or J) for set B, or "
+        "click the label; BACKSPACE takes back the last label. Then type the rule in your own "
+        "words and press ENTER."
+    ),
+    "rule": "Type the rule in your own words and press ENTER.",
+    "build": (
+        "Choose a value for each property of the missing panel; the panel you build is shown "
+        "as you go. Click the done button when it is complete."
+    ),
+}
+
+
+def _duration(seconds: float) -> str:
+    s = round(seconds)
+    if s >= 60 and s % 60 == 0:
+        m = s // 60
+        return f"{m} minute{'s' if m != 1 else ''}"
+    return f"{s:g} second{'s' if s != 1 else ''}"
+
+
+def check_placeholders(text: str, what: str, where: str | None = None) -> None:
+    """Refuse a ``{word}`` in an instructions text that is not one of :data:`PLACEHOLDERS`."""
+    for name in _PLACEHOLDER.findall(text):
+        if name not in PLACEHOLDERS:
+            raise fail(
+                what,
+                "{" + name + "}",
+                "placeholders " + ", ".join("{" + p + "}" for p in PLACEHOLDERS),
+                where=where,
+                error=SpecError,
+            )
+
+
+def how_to_answer(response: Any, mode: str) -> str:
+    """The :data:`HOW` sentence for a screen's :class:`~twofold.study.scene.Response`."""
+    kind = getattr(response, "kind", None) or ("choose" if mode == "select" else "type")
+    opts = dict(getattr(response, "options", None) or {})
+    if kind == "type" and opts.get("symbols"):
+        return HOW["type_symbols"]
+    if kind == "type" and opts.get("rule"):
+        return HOW["rule"]
+    if kind == "label":
+        return HOW["label_rule"] if opts.get("rule") else HOW["label"]
+    return HOW.get(kind, HOW["type"])
+
+
+def instruction_values(block: Any, *, how: str = "", countdown: bool = False) -> dict[str, str]:
+    """The placeholder values for a form block (see :data:`PLACEHOLDERS`)."""
+    n_practice = len(block.practice)
+    limit = block.time_limit_s
+    values = {
+        "n_items": str(len(block.items)),
+        "n_practice": str(n_practice),
+        "time_limit_s": f"{limit:g}" if limit else "",
+        "time_limit": (
+            f"You have {_duration(limit)} for each puzzle; when the time is up, the next "
+            "puzzle appears."
+            if limit
+            else ""
+        ),
+        "countdown": (
+            "The seconds left are shown in the top right corner of the screen."
+            if limit and countdown
+            else ""
+        ),
+        "practice": (
+            ""
+            if not n_practice
+            else "The first puzzle is practice and does not count."
+            if n_practice == 1
+            else f"The first {n_practice} puzzles are practice and do not count."
+        ),
+        "feedback": (
+            "After each practice puzzle you will see whether your answer was correct, and the "
+            "correct answer."
+            if n_practice and block.feedback
+            else ""
+        ),
+        "how": how,
+    }
+    return values
+
+
+def fill_instructions(text: str, values: dict[str, str]) -> str:
+    """``text`` with its placeholders filled; lines that only held empty placeholders are
+    dropped, and runs of blank lines become one."""
+    out: list[str] = []
+    for line in text.splitlines():
+        had = bool(_PLACEHOLDER.search(line))
+        filled = _PLACEHOLDER.sub(lambda m: values.get(m.group(1), m.group(0)), line)
+        filled = re.sub(r"[ \t]{2,}", " ", filled).rstrip()
+        if had and not filled.strip():
+            continue
+        if not filled.strip() and out and not out[-1].strip():
+            continue
+        out.append(filled)
+    return "\n".join(out).strip() + "\n"
+
+
+def instruction_template(families: set[str] | list[str], mode: str) -> tuple[str, str]:
+    """The shipped instructions template for a block: ``(file name, text)``.
+
+    One family with a template of its own for ``mode`` gets it; mixed blocks and other
+    families get ``instructions.txt``.
+    """
+    src = resources.files("twofold.experiments").joinpath("templates")
+    fams = sorted(set(families))
+    name = f"instructions-{fams[0]}-{mode}.txt" if len(fams) == 1 else ""
+    if not name or not src.joinpath(name).is_file():
+        name = "instructions.txt"
+    return name, src.joinpath(name).read_text("utf-8")
+
+
+def block_instructions(
+    form: Form, bank: Any, options: RunnerOptions, own: dict[str, str]
+) -> dict[str, str]:
+    """The instructions screen text of each block of ``form``: the block's own file (``own``,
+    by block name) or the shipped template, with the placeholders filled from the block."""
+    from twofold.study import get_family
+
+    out = {}
+    for b in form.blocks:
+        ids = [*b.practice, *b.items]
+        fams = {bank[i].family for i in ids}
+        how = ""
+        if ids:
+            first = bank[ids[0]]
+            scene = get_family(first.family).scene(first, b.mode)
+            how = how_to_answer(scene.response, b.mode)
+            if b.state_rule and "rule" not in how.lower():
+                how += " " + HOW["rule"]
+        text = own.get(b.name)
+        if text is None:
+            text = instruction_template(fams, b.mode)[1]
+        values = instruction_values(b, how=how, countdown=options.countdown)
+        out[b.name] = fill_instructions(text, values)
+    return out
+
+
+def paginate(text: str, fits: Any) -> list[str]:
+    """Split ``text`` into pages that each ``fits(page) -> bool``.
+
+    Whole paragraphs (blank-line separated, see :func:`reflow`) go on a page while they fit; a
+    paragraph too long for a page of its own is split between words. A single word that does
+    not fit still gets a page (the painter shrinks nothing; the caller's box is the limit).
+    """
+    paragraphs = [p for p in reflow(text).split("\n\n") if p]
+    pages: list[str] = []
+    cur: list[str] = []
+    for para in paragraphs:
+        if fits("\n\n".join([*cur, para])):
+            cur.append(para)
+            continue
+        if cur:
+            pages.append("\n\n".join(cur))
+            cur = []
+        words = para.split(" ")
+        while words:
+            if fits(" ".join(words)):
+                cur = [" ".join(words)]
+                break
+            lo, hi = 1, len(words) - 1  # the longest prefix that fits (at least one word)
+            while lo < hi:
+                mid = (lo + hi + 1) // 2
+                if fits(" ".join(words[:mid])):
+                    lo = mid
+                else:
+                    hi = mid - 1
+            pages.append(" ".join(words[:lo]))
+            words = words[lo:]
+    if cur or not pages:
+        pages.append("\n\n".join(cur))
+    return pages
+
+
 def reflow(text: str) -> str:
     """Join the lines of each paragraph, so the window's own wrapping sets line breaks.
 
@@ -259,9 +497,13 @@ def prepare_session(
             where=str(study.root / opts.consent),
             field="runner.consent",
         )
-    instructions = {
-        b.name: _read(study.root / b.instructions, "instructions", where) for b in blocks
+    raw_instructions = {
+        b.name: _read(study.root / b.instructions, "instructions", where)
+        for b in blocks
+        if b.instructions
     }
+    for name, text in raw_instructions.items():
+        check_placeholders(text, f"instructions of block {name}", where)
     folder = study.logs_dir / "human"
     csv_path, side = folder / f"{respondent}.csv", folder / f"{respondent}.json"
     previous: dict[str, Any] = {}
@@ -293,6 +535,7 @@ def prepare_session(
             f"form {form.form_id} was built on bank {form.bank_hash[:12]}, the study's bank is "
             f"{bank.hash[:12]}; rebuild the forms in a new study folder."
         )
+    instructions = block_instructions(form, bank, opts, raw_instructions)
     return SessionPlan(
         study=study,
         options=opts,
@@ -313,14 +556,16 @@ def write_templates(study: Any, *, overwrite: bool = False) -> list[Path]:
     """Copy the consent and instructions templates into the study folder (to be edited).
 
     Writes the consent file named in ``[runner] consent`` and every block's instructions file
-    that does not exist yet.
+    that does not exist yet (the template for the block's family and mode, placeholders kept).
     """
     opts = parse_runner(study)
     src = resources.files("twofold.experiments").joinpath("templates")
     targets = {study.root / opts.consent: "consent.txt"}
     for b in study.table("blocks") or []:
-        if isinstance(b, dict) and isinstance(b.get("instructions"), str):
-            targets.setdefault(study.root / b["instructions"], "instructions.txt")
+        if isinstance(b, dict) and isinstance(b.get("instructions"), str) and b["instructions"]:
+            fams = b.get("families") or []
+            name = instruction_template(fams, str(b.get("mode", "generate")))[0]
+            targets.setdefault(study.root / b["instructions"], name)
     written = []
     for path, name in targets.items():
         if path.exists() and not overwrite:

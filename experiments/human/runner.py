@@ -36,6 +36,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import json
+import math
 import os
 import platform
 import sys
@@ -46,8 +47,9 @@ from typing import Any
 from twofold.study import __version__, get_family, render
 from twofold.study._version import package_version
 from twofold.study.exceptions import ResponseError, RunnerError
+from twofold.study.scene import MIN_TEXT
 
-from .prepare import SessionPlan, choice_order, reflow, shown_item
+from .prepare import SessionPlan, choice_order, paginate, reflow, shown_item
 
 __all__ = ["FRAMES_HEADER", "SessionResult", "frames_file", "run_session"]
 
@@ -125,6 +127,80 @@ class _Frames:
         }
 
 
+TEXT_COLOUR, DIM_COLOUR, ACCENT_COLOUR = "#e8e4da", "#9aa0a8", "#d9a441"
+#: how footers name keys
+_KEY_NAMES = {"space": "SPACE", "left": "the left arrow", "right": "the right arrow"}
+
+
+def _stim_box(stim: Any, w: int, h: int) -> list[float]:
+    """A TextStim's drawn box in window pixels, origin top left, y down (for the probe)."""
+    bw, bh = (float(v) for v in stim.boundingBox)
+    x, y = (float(v) for v in stim.pos)
+    ah = getattr(stim, "anchorHoriz", "center")
+    av = getattr(stim, "anchorVert", "center")
+    x0 = x if ah == "left" else x - bw if ah == "right" else x - bw / 2
+    y1 = y if av == "top" else y + bh if av == "bottom" else y + bh / 2
+    return [
+        round(x0 + w / 2, 1),
+        round(h / 2 - y1, 1),
+        round(x0 + bw + w / 2, 1),
+        round(h / 2 - y1 + bh, 1),
+    ]
+
+
+class _Page:
+    """One page of a text screen: its text, what to draw, and the drawn boxes (probe)."""
+
+    def __init__(self, text: str, stims: list[Any], boxes: dict[str, Any], number: int, of: int):
+        self.text, self.stims, self.boxes, self.number, self.of = text, stims, boxes, number, of
+
+    def draw(self) -> None:
+        for s in self.stims:
+            s.draw()
+
+
+class _Countdown:
+    """The seconds left of a timed trial, small, in the window's top right corner (a corner
+    the screens leave free), drawn after the screen; it changes once a second."""
+
+    def __init__(self, sess: Any):
+        w, h = sess.size
+        self.size = int(MIN_TEXT)
+        self.pos = (w / 2 - 10, h / 2 - 6)
+        self.stim = sess._stim(
+            "", self.size, pos=self.pos, anchorHoriz="right", anchorVert="top", color=DIM_COLOUR
+        )
+        self.w, self.h = w, h
+        self.limit, self.shown = 0.0, -1
+
+    def reset(self, limit: float) -> None:
+        self.limit = float(limit)
+        self._set(math.ceil(self.limit))
+
+    def _set(self, left: int) -> None:
+        self.shown = left
+        self.stim.text = f"{left} s left"
+
+    def due(self, elapsed: float) -> bool:
+        """Whether the seconds shown are out of date (then they are updated)."""
+        left = max(0, math.ceil(self.limit - elapsed))
+        if left == self.shown:
+            return False
+        self._set(left)
+        return True
+
+    @property
+    def box(self) -> list[float]:
+        return _stim_box(self.stim, self.w, self.h)
+
+    def over(self, screen: Any) -> Any:
+        def paint() -> None:
+            screen.draw()
+            self.stim.draw()
+
+        return paint
+
+
 class _Session:
     def __init__(self, plan: SessionPlan):
         self.plan = plan
@@ -134,12 +210,11 @@ class _Session:
         self.seen_keys: dict[tuple[str, float], None] = {}
 
     # -- set-up ----------------------------------------------------------------------------
-    def open(self) -> None:
+    def open_window(self, size: tuple[int, int], fullscreen: bool) -> None:
+        """Open the window (and the screens' context); no keyboard, mouse or clocks yet."""
         os.environ.setdefault("PSYCHOPYNOPACKAGES", "1")
         try:
-            from psychopy import clock as pclock
             from psychopy import core, event, logging, visual
-            from psychopy.hardware import keyboard
         except Exception as err:  # no display, missing library...
             raise RunnerError(f"PsychoPy could not start: {err}") from err
         logging.console.setLevel(logging.ERROR)
@@ -147,16 +222,27 @@ class _Session:
         opts = self.plan.options
         try:
             self.win = visual.Window(
-                size=list(opts.size),
-                fullscr=opts.fullscreen,
+                size=list(size),
+                fullscr=fullscreen,
                 units="pix",
                 color=opts.background,
                 checkTiming=False,
-                allowGUI=not opts.fullscreen,
+                allowGUI=not fullscreen,
                 winType="pyglet",
             )
         except Exception as err:
             raise RunnerError(f"could not open the session window: {err}") from err
+        self.size = (int(self.win.size[0]), int(self.win.size[1]))
+        from .screens import Ctx
+
+        self.ctx = Ctx(win=self.win, visual=visual, size=self.size, background=opts.background)
+
+    def open(self) -> None:
+        opts = self.plan.options
+        self.open_window(opts.size, opts.fullscreen)
+        from psychopy import clock as pclock
+        from psychopy.hardware import keyboard
+
         self.win.mouseVisible = True
         self.kb = keyboard.Keyboard()
         if self.kb.getBackend() != "ptb":
@@ -165,12 +251,8 @@ class _Session:
                 f"keyboard backend is {self.kb.getBackend()!r}, not 'ptb'; install the "
                 "psychtoolbox prerequisites (apt-get install libjack-jackd2-0)."
             )
-        self.mouse = event.Mouse(win=self.win, visible=True)
+        self.mouse = self.event.Mouse(win=self.win, visible=True)
         self.origin_abs = pclock.monotonicClock.getLastResetTime()
-        self.size = (int(self.win.size[0]), int(self.win.size[1]))
-        from .screens import Ctx
-
-        self.ctx = Ctx(win=self.win, visual=visual, size=self.size, background=opts.background)
         rate = self.win.getActualFrameRate(
             nIdentical=10, nMaxFrames=60, nWarmUpFrames=5, threshold=1
         )
@@ -235,7 +317,143 @@ class _Session:
         self.win.backend.dispatchEvents()
         time.sleep(0.0005)
 
-    # -- generic screens -----------------------------------------------------------------------
+    # -- text screens ----------------------------------------------------------------------------
+    def letter_height(self) -> int:
+        """Letter height of text screens: 20 px below 1280 wide, 24 below 1920, then 28; never
+        under the scene floor (18)."""
+        w, h = self.size
+        size = 20 if w < 1280 else 24 if w < 1920 else 28
+        if h < 720:
+            size = min(size, 20)
+        return max(int(MIN_TEXT), size)
+
+    def _stim(self, text: str, height: float, **kw: Any) -> Any:
+        return self.visual.TextStim(
+            self.win,
+            text=text,
+            height=height,
+            color=kw.pop("color", TEXT_COLOUR),
+            font="DejaVu Sans",
+            units="pix",
+            **kw,
+        )
+
+    def pages(
+        self, text: str, accept: str, *, picture: Any = None, wait_note: str = ""
+    ) -> list[_Page]:
+        """``text`` laid out on pages that fit the window above a fixed footer.
+
+        The footer of the last page says ``accept`` (what the accepting keys do); earlier pages
+        say how to turn pages and, with ``wait_note``, that the accepting keys act on the last
+        page. ``picture`` (a Scene and its scale, see :meth:`feedback`) is painted under the
+        text of a single page.
+        """
+        w, h = self.size
+        size = self.letter_height()
+        fsize = max(int(MIN_TEXT), size - 2)
+        mx, mt, mb = max(40.0, 0.06 * w), max(28.0, 0.05 * h), max(18.0, 0.03 * h)
+        width = w - 2 * mx
+        top = h / 2 - mt
+        turn = "Press SPACE or the right arrow for the next page; left arrow goes back."
+        turn += f" {wait_note}" if wait_note else ""
+        foot_w = width - 9 * fsize  # room for "page 2 of 3" on the right
+        # the footer's height: two lines at least, or what the longer footer needs
+        footer_h = 2.6 * fsize
+        for foot in (accept, turn):
+            probe = self._stim(foot, fsize, wrapWidth=foot_w, anchorHoriz="left")
+            footer_h = max(footer_h, float(probe.boundingBox[1]))
+        sep_y = -h / 2 + mb + footer_h + 0.6 * fsize
+        body_h = top - sep_y - 0.8 * size
+        body = self._stim(
+            "",
+            size,
+            wrapWidth=width,
+            pos=(-w / 2 + mx, top),
+            anchorHoriz="left",
+            anchorVert="top",
+            alignText="left",
+        )
+
+        def fits(page: str) -> bool:
+            body.text = page
+            return float(body.boundingBox[1]) <= body_h
+
+        chunks = [reflow(text)] if picture is not None else paginate(text, fits)
+        n = len(chunks)
+        out = []
+        for i, chunk in enumerate(chunks):
+            last = i == n - 1
+            foot = accept if last else turn
+            stims = []
+            stim = self._stim(
+                chunk,
+                size,
+                wrapWidth=width,
+                pos=(-w / 2 + mx, top),
+                anchorHoriz="left",
+                anchorVert="top",
+                alignText="left",
+            )
+            stims.append(stim)
+            boxes = {"body": _stim_box(stim, w, h)}
+            footer = self._stim(
+                foot,
+                fsize,
+                wrapWidth=foot_w,
+                pos=(-w / 2 + mx, -h / 2 + mb),
+                anchorHoriz="left",
+                anchorVert="bottom",
+                alignText="left",
+                color=ACCENT_COLOUR,
+            )
+            stims.append(footer)
+            boxes["footer"] = _stim_box(footer, w, h)
+            stims.append(
+                self.visual.Line(
+                    self.win,
+                    start=(-w / 2 + mx, sep_y),
+                    end=(w / 2 - mx, sep_y),
+                    lineColor=DIM_COLOUR,
+                    lineWidth=1,
+                    units="pix",
+                )
+            )
+            if n > 1:
+                mark = self._stim(
+                    f"page {i + 1} of {n}",
+                    fsize,
+                    pos=(w / 2 - mx, -h / 2 + mb),
+                    anchorHoriz="right",
+                    anchorVert="bottom",
+                    color=DIM_COLOUR,
+                )
+                stims.append(mark)
+                boxes["page"] = _stim_box(mark, w, h)
+            if picture is not None:
+                painter = self.picture(picture, stim, sep_y, size)
+                if painter is not None:
+                    stims.append(painter)
+                    x0, y0, x1, y1 = painter.extent()
+                    boxes["picture"] = [x0 + w / 2, h / 2 - y1, x1 + w / 2, h / 2 - y0]
+            out.append(_Page(chunk, stims, boxes, i + 1, n))
+        return out
+
+    def picture(self, picture: tuple[Any, float], stim: Any, floor_y: float, size: float) -> Any:
+        """A ScenePainter for ``picture`` (scene, stimulus scale) in the room between the text
+        ``stim`` and ``floor_y``, at the stimulus scale when it fits (else fitted)."""
+        from .screens import ScenePainter
+
+        scene, scale = picture
+        w, h = self.size
+        top = h / 2 - max(28.0, 0.05 * h) - float(stim.boundingBox[1]) - 0.8 * size
+        bottom = floor_y + 0.8 * size
+        mx = max(40.0, 0.06 * w)
+        box = (-w / 2 + mx, bottom, w / 2 - mx, top)
+        if top - bottom < MIN_TEXT:
+            return None
+        fits = scene.width * scale <= box[2] - box[0] and scene.height * scale <= box[3] - box[1]
+        return ScenePainter(self.ctx, scene, box, scale=scale if fits else None)
+
     def text_screen(
         self,
         text: str,
@@ -244,41 +462,62 @@ class _Session:
         *,
         max_s: float | None = None,
         escape: bool = True,
+        accept: str | None = None,
+        picture: Any = None,
     ) -> str | None:
-        stim = self.visual.TextStim(
-            self.win,
-            text=reflow(text),
-            height=24,
-            color="#e8e4da",
-            wrapWidth=self.size[0] * 0.8,
-            font="DejaVu Sans",
-            units="pix",
-        )
+        """Show ``text`` (paged when it does not fit) until one of ``keys`` is pressed on its
+        last page; return that key (None: ``max_s`` passed on the last page).
+
+        SPACE or the right arrow turn to the next page, the left arrow back; the footer says
+        ``accept`` (default: the keys) on the last page and, on earlier pages, that the keys
+        act on the last page.
+        """
+        names = " / ".join(_KEY_NAMES.get(k, k.upper()) for k in keys)
+        accept = accept or f"Press {names} to go on."
+        note = "" if keys == ("space",) else f"({names} on the last page.)"
+        pages = self.pages(text, accept, picture=picture, wait_note=note)
+        i = 0
         while True:
-            stim.draw()
+            page = pages[i]
+            last = i == len(pages) - 1
+            page.draw()
             onset = self.win.flip()
-            self.probe(name, onset, text=text[:200])
-            while True:
+            self.probe(
+                name,
+                onset,
+                text=page.text[:200],
+                page=page.number,
+                pages=page.of,
+                boxes=page.boxes,
+            )
+            turn = 0
+            while not turn:
                 for k in self.keys(onset):
                     if k.name == "escape" and escape:
                         self.confirm_abort()
+                        turn = 2  # ESC not confirmed: show the page again
                         break
-                    if k.name in keys:
+                    if last and k.name in keys:
                         return str(k.name)
+                    if not last and k.name in ("space", "right"):
+                        i, turn = i + 1, 1
+                        break
+                    if i > 0 and k.name == "left":
+                        i, turn = i - 1, 1
+                        break
                 else:
-                    if max_s is not None and self.core.getTime() - onset > max_s:
+                    if last and max_s is not None and self.core.getTime() - onset > max_s:
                         return None
-                    self.idle(lambda: stim.draw())
-                    continue
-                break  # ESC not confirmed: show the screen again
+                    self.idle(page.draw)
 
     def confirm_abort(self) -> None:
         """Ask whether to end the session; raise :class:`Aborted` on yes."""
         key = self.text_screen(
-            "End the session now?\n\nY = end the session      N = go on",
+            "End the session now?",
             ("y", "n"),
             "confirm",
             escape=False,
+            accept="Y = end the session      N = go on",
         )
         if key == "y":
             raise Aborted()
@@ -357,7 +596,9 @@ class _Session:
         ahead: tuple[Any, Any, Any] | None,
     ) -> tuple[Any, float, float | None, str, str | None, _Frames]:
         frames = _Frames(self.period)
-        screen.draw()
+        cd = self.countdown(time_limit)
+        paint = screen.draw if cd is None else cd.over(screen)
+        paint()
         onset = self.win.flip()
         self.mouse.clickReset()
         reset_core = self.event.mouseClick[0].getLastResetTime() - self.origin_abs
@@ -366,7 +607,7 @@ class _Session:
             t0 = self.core.getTime()
             self.built = {(ahead[0].id, ahead[1].mode, ahead[2]): self.screen(*ahead)}
             frames.prep_ms = (self.core.getTime() - t0) * 1000
-            screen.draw()
+            paint()
             last: float | None = self.win.flip()  # static meanwhile: not a frame interval
         else:
             last = onset
@@ -380,6 +621,7 @@ class _Session:
             mode=screen.mode,
             targets=screen.targets,
             choice_order=list(screen.choice_order) if screen.choice_order else None,
+            countdown=cd.box if cd is not None else None,
         )
         answer, press_t, dirty = None, 0.0, False
         while answer is None:
@@ -416,8 +658,10 @@ class _Session:
             now = self.core.getTime()
             if time_limit and now - onset >= time_limit:
                 return None, onset, None, "timeout", None, frames
+            if cd is not None and cd.due(now - onset):
+                dirty = True  # the seconds left changed: once a second, never flashing
             if dirty or self.every_frame:
-                screen.draw()
+                paint()
                 t = self.win.flip()
                 if last is not None:  # intervals between consecutive flips only
                     frames.add(t - last)
@@ -426,6 +670,15 @@ class _Session:
                 self.idle(None)
                 last = None
         return answer.value, onset, answer.t, "ok", answer.detail, frames
+
+    def countdown(self, time_limit: float | None) -> _Countdown | None:
+        """The seconds-left corner of a timed trial (``[runner] countdown``), or None."""
+        if not time_limit or not self.plan.options.countdown:
+            return None
+        if getattr(self, "_countdown", None) is None:
+            self._countdown = _Countdown(self)
+        self._countdown.reset(time_limit)
+        return self._countdown
 
     # -- the session ---------------------------------------------------------------------------
     def run(self) -> SessionResult:
@@ -494,7 +747,9 @@ class _Session:
         prior = prev.get("frames") or {}
         try:
             if not meta.get("consent"):
-                key = self.text_screen(plan.consent_text, ("y", "n"), "consent")
+                key = self.text_screen(
+                    plan.consent_text, ("y", "n"), "consent", accept=CONSENT_KEYS
+                )
                 if key != "y":
                     writer.close()
                     self.frames_log.close()
@@ -506,41 +761,19 @@ class _Session:
                     return SessionResult("declined", 0, plan.csv_path, meta)
                 meta = writer.update_sidecar(consent=True)
             practice_done = list(meta.get("practice_done", []))
-            trial, shown = 0, False  # shown: a block was presented in this run
-            for bi, block in enumerate(form.blocks):
-                idx = list(range(trial, trial + len(block.items)))
-                trial += len(block.items)
-                todo = [k for k in idx if k not in plan.done]
-                if not todo:
-                    continue
-                if shown and form.break_between_blocks:
-                    self.text_screen(
-                        "Take a short break.\n\nPress SPACE when you are ready to go on.",
-                        ("space",),
-                        "break",
-                    )
-                self.text_screen(plan.instructions[block.name], ("space",), "instructions")
-                shown = True
-                if block.practice and block.name not in practice_done:
-                    self.practice(block, idx[0] if idx else None)
-                    practice_done.append(block.name)
+            for step in walk(form, plan.done, practice_done):
+                if step.kind in ("break", "instructions", "end"):
+                    self.show_step(step)
+                elif step.kind == "practice":
+                    self.practice(step.block, step.trial)
+                    practice_done.append(step.block.name)
                     writer.update_sidecar(practice_done=practice_done)
-                for pos, k in enumerate(idx):
-                    if k in plan.done:
-                        continue
-                    if (
-                        form.break_every
-                        and pos > 0
-                        and pos % form.break_every == 0
-                        and k != todo[0]
-                    ):
-                        self.text_screen(
-                            "Take a short break.\n\nPress SPACE when you are ready to go on.",
-                            ("space",),
-                            "break",
-                        )
+                else:
                     row, frames = self.trial(
-                        block, k, block.items[pos], ahead=self.next_of(bi, pos, k)
+                        step.block,
+                        step.trial,
+                        step.item,
+                        ahead=self.next_of(step.bi, step.pos, step.trial),
                     )
                     writer.append(row)
                     n_done += 1
@@ -550,7 +783,6 @@ class _Session:
                         frames=_combine(prior, session_frames.stats()),
                         dropped_frames=_combine(prior, session_frames.stats())["dropped"],
                     )
-            self.text_screen(plan.options.end_text, ("space",), "end", max_s=30)
             meta = writer.update_sidecar(status="complete", ended=_now(), n_trials=n_done)
             return SessionResult("complete", writer.n_written, plan.csv_path, meta)
         except Aborted:
@@ -567,6 +799,18 @@ class _Session:
         finally:
             writer.close()
             self.frames_log.close()
+
+    def show_step(self, step: Step) -> None:
+        """A break, instructions or end screen of the form walk."""
+        if step.kind == "break":
+            self.text_screen(step.text, ("space",), "break", accept=BREAK_KEYS)
+        elif step.kind == "instructions":
+            text = self.plan.instructions[step.block.name]
+            self.text_screen(text, ("space",), "instructions", accept=BEGIN_KEYS)
+        else:
+            self.text_screen(
+                self.plan.options.end_text, ("space",), "end", max_s=30, accept=END_KEYS
+            )
 
     def next_of(self, bi: int, pos: int, k: int) -> tuple[Any, Any, Any] | None:
         """The item shown after position ``pos`` (trial ``k``) of block ``bi``: the item, its
@@ -652,26 +896,144 @@ class _Session:
             resp, _, _, status, _, _ = self.present(item, block, trial=None, order=order, ahead=nxt)
             if not block.feedback:
                 continue
-            if status == "timeout":
-                msg = "Time is up for this one."
-            else:
-                try:
-                    ok = get_family(item.family).score(item, resp, block.mode).correct
-                except ResponseError:
-                    ok = False
-                msg = "Correct." if ok else "Not correct."
-            right = item.answer_choice if block.mode == "select" else None
-            if right is not None and (status == "timeout" or msg != "Correct."):
-                # the number as it stood on this screen, not the bank's
-                shown = order.index(right) + 1 if order else right
-                msg += f" The right choice was number {shown}."
-            self.text_screen(msg + "\n\nPress SPACE to go on.", ("space",), "feedback")
+            text, picture = self.feedback(item, block, order, status, resp)
+            self.text_screen(text, ("space",), "feedback", accept=FEEDBACK_KEYS, picture=picture)
+
+    def feedback(
+        self, item: Any, block: Any, order: tuple[int, ...] | None, status: str, resp: Any
+    ) -> tuple[str, tuple[Any, float] | None]:
+        """The feedback after a practice item: its text ("Correct." / "Not correct." / time up,
+        then where the correct answer is) and the correct answer as the family draws it
+        (:meth:`~twofold.study.families.Family.answer_scene`) with the scale the item's
+        screen gives its stimulus; the choice number is the one shown on the screen."""
+        fam = get_family(item.family)
+        if status == "timeout":
+            msg = "Time is up for this one."
+        else:
+            try:
+                ok = fam.score(item, resp, block.mode).correct
+            except ResponseError:
+                ok = False
+            msg = "Correct." if ok else "Not correct."
+        shown = shown_item(item, order)
+        right = fam.correct_response(shown, block.mode)
+        if block.mode == "select" and isinstance(right, int) and shown.choices:
+            # the number as it stood on this screen, not the bank's
+            msg += f" The right choice was number {right}."
+            msg += "\n\nThe right choice:"
+        else:
+            msg += "\n\nThe correct answer:"
+        scene = fam.answer_scene(shown, block.mode, right)
+        return msg, (scene, self.stimulus_scale(fam.scene(shown, block.mode)))
+
+    def stimulus_scale(self, scene: Any) -> float:
+        """Pixels per scene unit of ``scene`` on a trial screen of this window (fitted to the
+        window less a margin, at most 1.6 as the screens cap it)."""
+        w, h = self.size
+        m = 0.03 * min(w, h)
+        return min((w - 2 * m) / max(scene.width, 1e-9), (h - 2 * m) / max(scene.height, 1e-9), 1.6)
 
     def close(self) -> None:
         try:
             self.win.close()
         except Exception:  # noqa: BLE001 - closing must not hide the real outcome
             pass
+
+
+CONSENT_KEYS = "Y = I agree to take part        N = I do not agree"
+BEGIN_KEYS = "Press SPACE to begin."
+BREAK_KEYS = "Press SPACE when you are ready to go on."
+FEEDBACK_KEYS = "Press SPACE to go on."
+END_KEYS = "Press SPACE to close."
+
+
+class Step:
+    """One step of a form as a participant meets it (see :func:`walk`).
+
+    ``kind`` is ``break`` (``text``), ``instructions``, ``practice`` (``trial`` = the
+    block's first test trial), ``trial`` (``bi``, ``pos``, ``trial``, ``item``) or ``end``.
+    """
+
+    def __init__(
+        self,
+        kind: str,
+        *,
+        bi: int = -1,
+        block: Any = None,
+        pos: int = -1,
+        trial: int | None = None,
+        item: str = "",
+        text: str = "",
+    ):
+        self.kind, self.bi, self.block, self.pos = kind, bi, block, pos
+        self.trial, self.item, self.text = trial, item, text
+
+    def __repr__(self) -> str:
+        return (
+            f"Step({self.kind!r}, block={getattr(self.block, 'name', None)!r}, trial={self.trial})"
+        )
+
+
+def _plural(n: int, word: str) -> str:
+    return f"{n} {word}{'' if n == 1 else 's'}"
+
+
+def break_text(finished: int, total: int, left_in_block: int, blocks_left: int) -> str:
+    """The text of a break screen: how far the participant has come.
+
+    ``left_in_block`` > 0: a break within a block (items left in it, and blocks after it);
+    else a break between blocks, with ``blocks_left`` blocks to go.
+    """
+    head = f"Take a short break.\n\nYou have finished {finished} of {total} items."
+    if left_in_block:
+        more = f"This part has {_plural(left_in_block, 'more item')}"
+        if blocks_left:
+            more += f"; {_plural(blocks_left, 'more part')} after it."
+        else:
+            more += ", and it is the last part."
+        return f"{head} {more}"
+    return f"{head} {_plural(blocks_left, 'part')} to go."
+
+
+def walk(form: Any, done: set[int] | frozenset[int], practice_done: list[str]) -> Any:
+    """The steps of ``form`` a participant still meets, in order (a generator of :class:`Step`):
+    breaks (with progress), each block's instructions, its practice (unless in
+    ``practice_done``, read as the walk goes on) and its trials not in ``done``, then the end.
+    """
+    total = sum(len(b.items) for b in form.blocks)
+    finished = len(done)
+    starts, k = [], 0
+    for b in form.blocks:
+        starts.append(k)
+        k += len(b.items)
+    todo_by_block = [
+        [t for t in range(starts[bi], starts[bi] + len(b.items)) if t not in done]
+        for bi, b in enumerate(form.blocks)
+    ]
+    shown = False  # a block was presented in this run
+    for bi, block in enumerate(form.blocks):
+        todo = todo_by_block[bi]
+        if not todo:
+            continue
+        left = sum(1 for t in todo_by_block[bi:] if t)
+        if shown and form.break_between_blocks:
+            yield Step("break", bi=bi, block=block, text=break_text(finished, total, 0, left))
+        yield Step("instructions", bi=bi, block=block)
+        shown = True
+        if block.practice and block.name not in practice_done:
+            first = starts[bi] if block.items else None
+            yield Step("practice", bi=bi, block=block, trial=first)
+        for pos, item in enumerate(block.items):
+            t = starts[bi] + pos
+            if t in done:
+                continue
+            if form.break_every and pos > 0 and pos % form.break_every == 0 and t != todo[0]:
+                in_block = sum(1 for x in todo if x >= t)
+                text = break_text(finished, total, in_block, left - 1)
+                yield Step("break", bi=bi, block=block, text=text)
+            yield Step("trial", bi=bi, block=block, pos=pos, trial=t, item=item)
+            finished += 1
+    yield Step("end")
 
 
 def _practice_label(block: Any, j: int) -> str:
