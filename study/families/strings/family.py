@@ -11,9 +11,9 @@ import numpy as np
 from ...exceptions import ResponseError
 from ...item import Item
 from .._base import Family, ParamSpec, Rejected
-from .drawing import StringsDrawing
 from .errors import _is_partial, _partials, _sample_edits
 from .grammar import ALPHABETS, RULES, Program, _runs, _selectors, _units, apply_program, is_literal
+from .scene import StringsScene
 from .search import _Analysis, consistent_programs, literal_edit
 from .text import _clean, _decode, _encode, _parse_reply
 
@@ -31,14 +31,14 @@ _ERROR_TYPES = {
 }
 
 
-class StringsFamily(StringsDrawing, Family):
+class StringsFamily(StringsScene, Family):
     """Symbol-string analogies with recorded alternative readings (see the module docstring)."""
 
     name = "strings"
     prefix = "str"
     reference_solver = "strings-ref"
     typical_rt_ms = 7000.0
-    version = "2"
+    version = "3"
     modes = ("generate", "select")
     params = (
         ParamSpec(
