@@ -133,7 +133,7 @@ def paint_scene(scene: Scene, fig: Any) -> list[dict[str, Any]]:
                     shape(((x0, y0), (x1, y0), (x1, y1), (x0, y1)), el.palette[v], el.line, 1.0, z)
                     pattern = el.hatches[v] if v < len(el.hatches) else None
                     if pattern:
-                        lines(hatch_segments(pattern, x0, y0, el.cell), el.mark, 1.2, True, z)
+                        lines(hatch_segments(pattern, x0, y0, el.cell), el.mark_of(v), 1.2, True, z)
         else:  # pragma: no cover - the Scene type admits nothing else
             raise TypeError(f"cannot paint {type(el).__name__}")
     return drawn

@@ -57,7 +57,7 @@ Point = tuple[float, float]
 Colour = str  # "#rrggbb"
 DashStyle = Literal["solid", "dashed", "dotted"]
 #: the hatch patterns painters know (each a few segments in the unit square, see hatch_segments)
-HATCHES = ("rising", "falling", "level", "upright", "crossed", "dots", "ring", "bar")
+HATCHES = ("rising", "falling", "level", "upright", "crossed", "dots", "ring", "bar", "plus")
 #: average advance of a glyph as a fraction of the letter height (DejaVu Sans / Sans Mono)
 _ADVANCE = {"sans": 0.62, "mono": 0.61}
 
@@ -137,7 +137,9 @@ class Grid:
 
     ``cells`` holds palette indices; ``palette`` their colours; ``hatches`` an optional pattern
     name (see :data:`HATCHES`) per index, drawn over the fill in ``mark`` colour so colours are
-    told apart without hue; ``line`` is the colour of the cell borders.
+    told apart without hue; ``marks`` optionally gives the hatch colour per index (else
+    ``mark``), so hatches stay visible on dark and light colours alike; ``line`` is the colour
+    of the cell borders.
     """
 
     x: float
@@ -148,6 +150,7 @@ class Grid:
     hatches: tuple[str | None, ...] = ()
     mark: Colour = "#202020"
     line: Colour = "#7a7a7a"
+    marks: tuple[Colour, ...] = ()
     role: str = "grid"
 
     @property
@@ -157,6 +160,10 @@ class Grid:
     def bbox(self) -> tuple[float, float, float, float]:
         r, c = self.shape
         return (self.x, self.y - r * self.cell, self.x + c * self.cell, self.y)
+
+    def mark_of(self, v: int) -> Colour:
+        """The hatch colour of palette index ``v``."""
+        return self.marks[v] if v < len(self.marks) else self.mark
 
     def cell_box(self, r: int, c: int) -> tuple[float, float, float, float]:
         """(x0, y0, x1, y1) of cell ``(r, c)`` (row 0 at the top)."""
@@ -317,6 +324,8 @@ def hatch_segments(pattern: str, x0: float, y0: float, side: float) -> tuple[Poi
         unit = [(lo, lo, hi, hi), (lo, hi, hi, lo)]
     elif pattern == "bar":
         unit = [(lo, 0.38, hi, 0.38), (lo, 0.62, hi, 0.62)]
+    elif pattern == "plus":
+        unit = [(0.3, 0.5, 0.7, 0.5), (0.5, 0.3, 0.5, 0.7)]
     elif pattern == "dots":
         d = 0.06
         unit = [(cx - d, cy, cx + d, cy) for cx, cy in ((0.32, 0.32), (0.68, 0.68))]
