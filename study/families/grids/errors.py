@@ -10,6 +10,7 @@ from typing import Any
 import numpy as np
 
 from ...item import Item
+from .legacy import native
 from .operations import _DIHEDRAL, _DIRS, _TILES, Grid, _recolour, apply_program
 from .search import _colours
 from .text import _arr
@@ -83,20 +84,21 @@ def _recolour_answer(g: Grid, rng: np.random.Generator) -> Grid:
 
 
 def _classify(item: Item, r: Grid) -> str:
-    test = _arr(item.stimulus["test"])
+    st = native(item.stimulus)
+    test = _arr(st["probe"])
     answer = _arr(item.answer)
     if r.shape == test.shape and np.array_equal(r, test):
-        return "identity_copy"
-    program = item.stimulus["program"]
+        return "copy-of-probe"
+    program = st["program"]
     for j in range(1, len(program)):
         for part in itertools.combinations(program, j):
             out = apply_program(test, list(part))
             if out is not None and out.shape == r.shape and np.array_equal(out, r):
-                return "partial"
+                return "part-of-rule"
     if r.shape != answer.shape:
-        return "wrong_size"
+        return "wrong-size"
     if np.array_equal(r != 0, answer != 0):
-        return "wrong_colours"
+        return "wrong-colours"
     if (r == answer).mean() >= 0.5:
-        return "wrong_content"
+        return "wrong-cells"
     return "other"

@@ -4,14 +4,13 @@ text."""
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from ...exceptions import ResponseError
 from ...item import Item, canonical_json
 from .._base import Family, ParamSpec, Rejected
-from .drawing import PALETTE, GridsDrawing
 from .errors import _classify, _perturb, _recolour_answer
 from .generation import (
     _conjugate_op,
@@ -26,12 +25,17 @@ from .generation import (
     _translate_all,
     _validity,
 )
+from .legacy import colours_of, current_name, native
 from .operations import _DIHEDRAL, KINDS, MAX_SIDE, OPS, Grid, _label, apply_op, apply_program
+from .scene import SIDE_CAP, answer_scene, scene, side_cap
 from .text import _CHOICE, _MARK, _arr, _is_grid, _lst, format_grid, parse_grids
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ...scene import Scene
 
 
 # -- the family ---------------------------------------------------------------------------------
-class GridsFamily(GridsDrawing, Family):
+class GridsFamily(Family):
     """Few-shot colour-grid transformations from a small grammar of grid operations.
 
     Parameters (generation spec)
@@ -40,9 +44,11 @@ class GridsFamily(GridsDrawing, Family):
         Operations composed.
     kinds : list of {"geometric", "colour", "object", "size"}, default all
         Kinds the operations are drawn from.
-    size : int, 3-15, default 8
+    size : int, 3-12, default 8
         Largest side of an input grid; sides are drawn from ``size - 3`` to ``size`` (smaller
-        when a scale or tile step would make the output wider than 30).
+        when a scale or tile step would make the output larger than the size cap, see
+        :data:`~twofold.study.families.grids.scene.SIDE_CAP`: 12 with up to four examples and
+        four choices, less with more choices).
     objects : int, 1-8, default 3
         Objects per input grid vary from ``objects - 1`` to ``objects + 1``.
     demos : int, 2-4, default 3
@@ -55,15 +61,18 @@ class GridsFamily(GridsDrawing, Family):
     Factors stored on every item: ``depth``, ``kinds`` (the kinds used, joined by ``+``),
     ``size`` (largest side of the test input), ``n_objects`` (objects in the test input),
     ``n_demos`` and ``size_change`` (some demonstration output differs in shape from its input).
-    The stimulus holds ``train`` (list of ``{"input", "output"}``), ``test`` and ``program``
-    (never shown). In select mode the choices come from the ``near-miss`` scheme.
+    The stimulus holds ``examples`` (list of ``{"before", "after"}``), ``probe`` and ``program``
+    (never shown); grids are lists of rows of colour indices 0-9, 0 the empty cell. Version 1
+    items (``train``/``test`` fields, another palette, snake_case names) are read through
+    :mod:`~twofold.study.families.grids.legacy`. In select mode the choices come from the
+    ``near-miss`` scheme.
     """
 
     name = "grids"
     prefix = "grd"
     reference_solver = "grids-ref"
     typical_rt_ms = 35000.0
-    version = "1"
+    version = "2"
     modes = ("generate", "select")
     params = (
         ParamSpec("depth", "int", 2, "number of operations composed", 1, 3),
@@ -74,7 +83,9 @@ class GridsFamily(GridsDrawing, Family):
             "operation kinds the composition draws from",
             options=KINDS,
         ),
-        ParamSpec("size", "int", 8, "largest side of an input grid (sides vary below it)", 3, 15),
+        ParamSpec(
+            "size", "int", 8, "largest side of an input grid (sides vary below it)", 3, SIDE_CAP
+        ),
         ParamSpec("objects", "int", 3, "typical number of objects in an input grid", 1, 8),
         ParamSpec("demos", "int", 3, "number of demonstration pairs", 2, 4),
         ParamSpec(
@@ -93,24 +104,24 @@ class GridsFamily(GridsDrawing, Family):
         "that the choices alone favour the answer only at chance"
     }
     variant_operators = {
-        "permute_colours": "relabel the colours 1-9 by one permutation across the whole item",
-        "rotate_flip": "rotate or mirror every grid of the item the same way "
+        "permute-colours": "relabel the colours 1-9 by one permutation across the whole item",
+        "turn-or-mirror": "rotate or mirror every grid of the item the same way "
         "(the program is conjugated)",
-        "translate_content": "move the content of every input grid to another place on its "
-        "canvas (each grid by its own offset; outputs recomputed)",
-        "resize_canvas": "add background rows and columns to every input grid",
+        "move-content": "move the content of every before grid and the probe to another place "
+        "on its canvas (each grid by its own offset; after grids recomputed)",
+        "grow-canvas": "add empty rows and columns to every before grid and the probe",
     }
     error_types = {
-        "identity_copy": "the test input copied unchanged",
-        "partial": "the output of part of the composition (e.g. its first steps)",
-        "wrong_size": "a grid of another shape than the answer",
-        "wrong_colours": "the right shape and layout of content but other colours",
-        "wrong_content": "the right shape, at least half the cells right, other content",
+        "copy-of-probe": "the probe copied unchanged",
+        "part-of-rule": "the result of part of the composition (e.g. its first steps)",
+        "wrong-size": "a grid of another shape than the answer",
+        "wrong-colours": "the right shape and layout of content but other colours",
+        "wrong-cells": "the right shape, at least half the cells right, other content",
         "other": "any other wrong response (the right shape, mostly wrong)",
     }
     default_choices = 4
     answer_format = (
-        "the output grid: one row per line, one digit 0-9 per cell (0 = background), "
+        "the answer grid: one row per line, one digit 0-9 per cell (0 = an empty cell), "
         "no spaces or other characters"
     )
 
@@ -128,7 +139,8 @@ class GridsFamily(GridsDrawing, Family):
         p = self._params(params)
         program = _sample_program(p, rng)
         growth = _growth(program)
-        hi = min(p["size"], MAX_SIDE // growth)
+        cap = side_cap(p["demos"], n_choices if "select" in modes else 0)
+        hi = min(p["size"], cap // growth)
         lo = max(3, min(hi, p["size"] - 3))
         if hi < 3:
             raise Rejected("grid too small for growth")
@@ -149,6 +161,7 @@ class GridsFamily(GridsDrawing, Family):
             modes=modes,
             scheme=distractor_scheme,
             n_choices=n_choices,
+            cap=cap,
         )
 
     def _params(self, params: Mapping[str, Any]) -> dict[str, Any]:
@@ -173,6 +186,7 @@ class GridsFamily(GridsDrawing, Family):
         n_choices: int,
         variant_of: str | None = None,
         variant_operator: str | None = None,
+        cap: int | None = None,
     ) -> Item:
         program = [list(op) for op in program]
         outs = []
@@ -187,15 +201,19 @@ class GridsFamily(GridsDrawing, Family):
             raise Rejected("size changes")
         if params["resize"] == "different" and not change:
             raise Rejected("size kept")
+        if cap is None:
+            cap = side_cap(len(demo_inputs), n_choices if "select" in modes else 0)
+        if max(max(g.shape) for g in [*demo_inputs, *demo_outputs, test_input, answer]) > cap:
+            raise Rejected("grid larger than the size cap")
         problem = _validity(program, demo_inputs, demo_outputs, test_input, answer)
         if problem:
             raise Rejected(problem)
         stimulus = {
-            "train": [
-                {"input": _lst(x), "output": _lst(y)}
+            "examples": [
+                {"before": _lst(x), "after": _lst(y)}
                 for x, y in zip(demo_inputs, demo_outputs, strict=True)
             ],
-            "test": _lst(test_input),
+            "probe": _lst(test_input),
             "program": program,
         }
         kinds = sorted({OPS[op[0]][0] for op in program}, key=KINDS.index)
@@ -213,7 +231,7 @@ class GridsFamily(GridsDrawing, Family):
             used_scheme = scheme or "near-miss"
             if used_scheme not in self.distractor_schemes:
                 raise Rejected(f"unknown distractor scheme {used_scheme}")
-            choices = _near_miss_choices(program, test_input, answer, n_choices, rng)
+            choices = _near_miss_choices(program, test_input, answer, n_choices, rng, cap)
         return Item.create(
             prefix=self.prefix,
             family=self.name,
@@ -233,10 +251,11 @@ class GridsFamily(GridsDrawing, Family):
 
     def check(self, item: Item) -> list[str]:
         problems = []
-        program = item.stimulus["program"]
-        xs = [_arr(p["input"]) for p in item.stimulus["train"]]
-        ys = [_arr(p["output"]) for p in item.stimulus["train"]]
-        test = _arr(item.stimulus["test"])
+        st = native(item.stimulus)
+        program = st["program"]
+        xs = [_arr(p["before"]) for p in st["examples"]]
+        ys = [_arr(p["after"]) for p in st["examples"]]
+        test = _arr(st["probe"])
         for i, (x, y) in enumerate(zip(xs, ys, strict=True)):
             out = apply_program(x, program)
             if out is None or not np.array_equal(out, y) or out.shape != y.shape:
@@ -258,19 +277,21 @@ class GridsFamily(GridsDrawing, Family):
 
     # -- variants -----------------------------------------------------------------------------
     def vary(self, item: Item, operator: str, rng: np.random.Generator) -> Item:
+        operator = current_name(operator)
         if operator not in self.variant_operators:
             raise Rejected(f"unknown operator {operator}")
-        program = [list(op) for op in item.stimulus["program"]]
-        xs = [_arr(p["input"]) for p in item.stimulus["train"]]
-        test = _arr(item.stimulus["test"])
+        st = native(item.stimulus)
+        program = [list(op) for op in st["program"]]
+        xs = [_arr(p["before"]) for p in st["examples"]]
+        test = _arr(st["probe"])
         grids = [*xs, test]
-        if operator == "permute_colours":
+        if operator == "permute-colours":
             perm = np.concatenate([[0], rng.permutation(9) + 1]).astype(np.int8)
             if (perm == np.arange(10)).all():
                 perm[1], perm[2] = perm[2], perm[1]
             grids = [perm[g] for g in grids]
             program = [_permute_op(op, perm) for op in program]
-        elif operator == "rotate_flip":
+        elif operator == "turn-or-mirror":
             # the mirror images of transpose along the other diagonal are not in the grammar,
             # so take the first map (in random order) under which every step has a counterpart
             for k in rng.permutation(len(_DIHEDRAL)):
@@ -282,10 +303,11 @@ class GridsFamily(GridsDrawing, Family):
                 grids = [apply_op(g, (name,)) for g in grids]  # type: ignore[misc]
                 program = conj
                 break
-        elif operator == "translate_content":
+        elif operator == "move-content":
             grids = _translate_all(grids, rng)
         else:
-            grids = _pad_all(grids, rng, _growth(program))
+            n = len(item.choices) if item.choices else 0
+            grids = _pad_all(grids, rng, _growth(program), side_cap(len(xs), n))
         scheme = item.distractor_scheme
         return self._build(
             program,
@@ -337,8 +359,9 @@ class GridsFamily(GridsDrawing, Family):
         self, item: Item, mode: str, rng: np.random.Generator
     ) -> tuple[Any, str]:
         answer = _arr(item.answer)
-        test = _arr(item.stimulus["test"])
-        program = item.stimulus["program"]
+        st = native(item.stimulus)
+        test = _arr(st["probe"])
+        program = st["program"]
         cands: list[Grid] = [test]
         for j in range(1, len(program)):
             out = apply_program(test, program[:j])
@@ -376,38 +399,54 @@ class GridsFamily(GridsDrawing, Family):
 
     # -- rendering ----------------------------------------------------------------------------
     def render_text(self, item: Item, mode: str) -> str:
-        st = item.stimulus
+        st = native(item.stimulus)
         lines = [
-            "Each example turns an input grid into an output grid by the same hidden rule.",
-            "Grids are written one row per line, one digit per cell; digits are colours and "
-            "0 is the background.",
+            "Each worked example shows a grid before and after a hidden change; the change is the "
+            "same in every example.",
+            "Grids are written one row per line, one digit per cell; each digit is a colour and "
+            "0 is an empty cell.",
             "",
         ]
-        for i, pair in enumerate(st["train"], start=1):
-            lines += [f"Example {i} input:", format_grid(pair["input"]), ""]
-            lines += [f"Example {i} output:", format_grid(pair["output"]), ""]
-        lines += ["Test input:", format_grid(st["test"]), ""]
+        for i, pair in enumerate(st["examples"], start=1):
+            lines += [f"Example {i}, before:", format_grid(pair["before"]), ""]
+            lines += [f"Example {i}, after:", format_grid(pair["after"]), ""]
+        lines += ["The grid to change:", format_grid(st["probe"]), ""]
         if mode == "select":
             for k, choice in enumerate(item.choices or (), start=1):
                 lines += [f"Choice {k}:", format_grid(choice), ""]
             lines.append(
-                "Which choice is the output for the test input? Reply with the choice number only."
+                "Which choice is that grid after the same change? Reply with the choice number "
+                "only."
             )
         else:
             lines.append(
-                "Give the output grid for the test input: one row per line, one digit 0-9 per "
+                "Write that grid after the same change: one row per line, one digit 0-9 per "
                 "cell, no spaces or other characters."
             )
         return "\n".join(lines)
 
     def render_structured(self, item: Item, mode: str) -> dict[str, Any]:
-        st = item.stimulus
+        st = native(item.stimulus)
+        col = colours_of(item)
         view: dict[str, Any] = {
-            "train": [{"input": p["input"], "output": p["output"]} for p in st["train"]],
-            "test_input": st["test"],
-            "palette": list(PALETTE),
+            "examples": [{"before": p["before"], "after": p["after"]} for p in st["examples"]],
+            "probe": st["probe"],
+            "palette": list(col["palette"]),
+            "colour_names": list(col["names"]),
+            "empty": 0,
             "response_format": "grid" if mode == "generate" else "choice number",
         }
         if mode == "select":
             view["choices"] = list(item.choices or ())
         return view
+
+    def scene(self, item: Item, mode: str) -> Scene:
+        """Examples in a strip across the top, the probe and the answer space below (see
+        :mod:`twofold.study.families.grids.scene`)."""
+        return scene(item, mode)
+
+    def answer_scene(self, item: Item, mode: str, answer: Any) -> Scene:
+        """Any grid (or, in select mode, a choice number) painted at the item's cell size."""
+        if mode == "generate":
+            answer = self.normalize(item, answer, mode)
+        return answer_scene(item, mode, answer)

@@ -295,12 +295,12 @@ def _translate_all(grids: list[Grid], rng: np.random.Generator) -> list[Grid]:
     return out
 
 
-def _pad_all(grids: list[Grid], rng: np.random.Generator, growth: int) -> list[Grid]:
+def _pad_all(grids: list[Grid], rng: np.random.Generator, growth: int, cap: int) -> list[Grid]:
     top, bottom, left, right = (int(v) for v in rng.integers(0, 2, size=4))
     if top + bottom + left + right == 0:
         bottom = right = 1
     out = [np.pad(g, ((top, bottom), (left, right))) for g in grids]
-    if any(max(g.shape) * growth > MAX_SIDE or max(g.shape) > 15 for g in out):
+    if any(max(g.shape) * growth > cap for g in out):
         raise Rejected("canvas would be too large")
     return out
 
@@ -311,6 +311,7 @@ def _near_miss_choices(
     answer: Grid,
     n: int,
     rng: np.random.Generator,
+    cap: int = MAX_SIDE,
 ) -> list[list[list[int]]]:
     """The answer and ``n - 1`` outputs of related programs, in random order.
 
@@ -337,7 +338,7 @@ def _near_miss_choices(
     pool: list[Grid] = []
     for prog in related:
         out = apply_program(test, prog)
-        if out is None or max(out.shape) > MAX_SIDE:
+        if out is None or max(out.shape) > cap:
             continue
         key = _key([out])
         if key not in seen:

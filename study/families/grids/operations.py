@@ -9,7 +9,9 @@ from typing import Any
 import numpy as np
 from scipy import ndimage
 
-#: Largest side of any grid (outputs of scale/tile included).
+#: Largest side an operation produces (outputs of scale/tile included) and a response may have.
+#: Version 1 items reach it; version 2 items stay within the screen-derived cap
+#: (:data:`~twofold.study.families.grids.scene.SIDE_CAP`).
 MAX_SIDE = 30
 
 _DIRS = ("down", "up", "left", "right")
