@@ -44,7 +44,7 @@ import time
 from pathlib import Path
 from typing import Any
 
-from twofold.study import __version__, get_family, render
+from twofold.study import __version__, get_family
 from twofold.study._version import package_version
 from twofold.study.exceptions import ResponseError, RunnerError
 from twofold.study.scene import MIN_TEXT
@@ -544,10 +544,9 @@ class _Session:
         key = (item.id, block.mode, order)
         if key in self.built:
             return self.built.pop(key)
-        shown = shown_item(item, order)
-        view = render(shown, "structured", block.mode)
+        shown = shown_item(item, order)  # the family's scene numbers the choices as shown
         screen = make_screen(
-            self.ctx, shown, view, block.mode, state_rule=getattr(block, "state_rule", False)
+            self.ctx, shown, block.mode, state_rule=getattr(block, "state_rule", False)
         )
         screen.choice_order = order
         return screen

@@ -1,0 +1,135 @@
+"""Type: a typed answer with visible editing (BackSpace, Return), and on-screen keys for symbols
+that cannot be typed (``symbol:<s>``, ``delete``, ``done``).
+
+The typed text is shown in the scene's ``answer_box`` (at the stimulus's scale) or, without
+one, in an entry row of the strip.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
+
+from .base import MARGIN, ROW, Answer, Screen
+from .widgets import ACCENT, MIN_TEXT_PX, MONO, PANEL, Keypad, make_text, text_width
+
+__all__ = ["TypeScreen"]
+
+_NAMED = {"space": " ", "minus": "-", "comma": ",", "period": ".", "slash": "/"}
+MAX_CHARS = 60
+ENTRY_ROW = 52.0
+
+
+class TypeScreen(Screen):
+    """A typed answer; with ``symbols`` in the response options, on-screen symbol keys too."""
+
+    def prepare(self) -> None:
+        self.symbols = [str(s) for s in self.options.get("symbols") or ()]
+        self.typed = ""
+        if self.symbols:
+            self.help_text = (
+                "Click the symbols (or type them); DELETE removes the last one, DONE submits."
+                "   ESC: end session"
+            )
+        else:
+            self.help_text = (
+                "Type your answer; BACKSPACE corrects, ENTER submits.   ESC: end session"
+            )
+        self.rows = [] if self.scene.answer_box else [ENTRY_ROW]
+        if self.symbols:
+            self.pad = Keypad(self.symbols, self.w - 2 * MARGIN)
+            self.rows += [self.pad.height, ROW]
+
+    def allowed(self, ch: str) -> bool:
+        if self.symbols:
+            return ch in self.symbols
+        return ch.isalnum() or ch in " -,./"
+
+    def build(self) -> list[Any]:
+        static: list[Any] = []
+        if self.scene.answer_box:
+            x0, y0, x1, y1 = self.painter.box_px(self.scene.answer_box)
+            row = 0
+        else:
+            y = self.row_y(0)
+            x0, x1 = -self.w * 0.3, self.w * 0.3
+            y0, y1 = y - ENTRY_ROW / 2, y + ENTRY_ROW / 2
+            static.append(
+                self.ctx.visual.Rect(
+                    self.ctx.win,
+                    width=x1 - x0,
+                    height=y1 - y0,
+                    pos=((x0 + x1) / 2, y),
+                    fillColor=PANEL,
+                    lineColor=ACCENT,
+                    lineWidth=2,
+                    units="pix",
+                )
+            )
+            row = 1
+        self.entry_box = (x0, y0, x1, y1)
+        self.entry_height = max(MIN_TEXT_PX, min((y1 - y0) * 0.62, 44.0))
+        self.entry = make_text(
+            self.ctx,
+            "_",
+            (x0 + 8, (y0 + y1) / 2),
+            height=self.entry_height,
+            color=ACCENT,
+            font=MONO,
+            anchor="left",
+        )
+        self.dynamic_texts.append(("entry", self.entry))
+        if self.symbols:
+            top = self.row_y(row) + self.rows[row] / 2
+            for sym, pos in self.pad.positions(top):
+                self.add_button(f"symbol:{sym}", sym, pos, (self.pad.key, self.pad.key), height=24)
+            self.row_of_buttons(
+                [("delete", "DELETE"), ("done", "DONE")], self.row_y(row + 1), gap=40
+            )
+        return static
+
+    def _show(self) -> None:
+        shown = self.typed + "_"
+        self.entry.height = self.entry_height
+        self.entry.text = shown
+        room = self.entry_box[2] - self.entry_box[0] - 16
+        tw = text_width(self.entry)
+        if tw > room:
+            self.entry.height = max(MIN_TEXT_PX, self.entry_height * room / tw)
+
+    def _room_for_more(self) -> bool:
+        room = self.entry_box[2] - self.entry_box[0] - 16
+        return len(self.typed) < MAX_CHARS and (len(self.typed) + 2) * MIN_TEXT_PX * 0.61 <= room
+
+    def draw_dynamic(self) -> None:
+        self.entry.draw()
+
+    def add(self, ch: str) -> None:
+        if self._room_for_more():
+            self.typed += ch
+            self._show()
+
+    def key(self, name: str, t: float) -> Answer | None:
+        if name in ("return", "enter", "num_enter"):
+            return Answer(self.typed, t) if self.typed else None
+        if name == "backspace":
+            self.typed = self.typed[:-1]
+            self._show()
+            return None
+        ch = _NAMED.get(name, name.replace("num_", ""))
+        if len(ch) == 1 and self.allowed(ch):
+            self.add(ch)
+        return None
+
+    def press(self, pos: Sequence[float], t: float) -> Answer | None:
+        for name, b in self.buttons.items():
+            if not b.contains(pos):
+                continue
+            if name.startswith("symbol:"):
+                self.add(name.split(":", 1)[1])
+            elif name == "delete":
+                self.typed = self.typed[:-1]
+                self._show()
+            elif name == "done" and self.typed:
+                return Answer(self.typed, t)
+        return None

@@ -1,0 +1,434 @@
+"""Screen widgets shared by every response screen: buttons, a highlight frame, label badges, the
+on-screen symbol keypad, the palette row, the grid editor view and the help line.
+
+Everything is in window pixels with the origin at the window centre. Sizes come from measured
+text extents (``TextStim.boundingBox``), so labels never leave their buttons; no text is drawn
+smaller than :data:`MIN_TEXT_PX`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from typing import Any
+
+from twofold.study.scene import hatch_segments
+
+from .paint import FONTS, text_box
+
+__all__ = [
+    "ACCENT",
+    "DIM",
+    "MIN_TEXT_PX",
+    "PANEL",
+    "SELECT",
+    "TEXT",
+    "Badge",
+    "Button",
+    "GridEditorView",
+    "Highlight",
+    "contrast_ratio",
+    "ink_for",
+    "make_text",
+]
+
+TEXT = "#e8e4da"  #: warm off-white text on the dark window
+DIM = "#aab0b8"  #: secondary text (help line, captions)
+ACCENT = "#d9a441"  #: amber: what can be acted on
+SELECT = "#4fb0a8"  #: teal: what is selected
+PANEL = "#343a44"  #: button faces
+PANEL_EDGE = "#5b6370"
+SANS, MONO = FONTS["sans"], FONTS["mono"]
+#: letter height floor of any text on screen (px)
+MIN_TEXT_PX = 18.0
+
+Box = tuple[float, float, float, float]
+
+
+def make_text(
+    ctx: Any,
+    text: str,
+    pos: tuple[float, float],
+    *,
+    height: float = 20,
+    color: str = TEXT,
+    font: str = SANS,
+    wrap: float | None = None,
+    anchor: str = "center",
+    valign: str = "center",
+    bold: bool = False,
+) -> Any:
+    """A ``TextStim`` in pixels (``wrap`` None: one line, never wrapped)."""
+    return ctx.visual.TextStim(
+        ctx.win,
+        text=text,
+        pos=pos,
+        height=height,
+        color=color,
+        font=font,
+        wrapWidth=wrap if wrap is not None else max(ctx.size) * 4,
+        anchorHoriz=anchor,
+        alignText=anchor,
+        anchorVert=valign,
+        bold=bold,
+        units="pix",
+    )
+
+
+def text_width(stim: Any) -> float:
+    return float(stim.boundingBox[0])
+
+
+# -- colour contrast (WCAG 2.x) -------------------------------------------------------------------
+def _luminance(colour: str) -> float:
+    """WCAG 2.x relative luminance of ``#rrggbb``."""
+    # reference: WCAG 2.1, "relative luminance" and "contrast ratio" definitions (from memory)
+    c = colour.lstrip("#")
+    out = []
+    for k in (0, 2, 4):
+        v = int(c[k : k + 2], 16) / 255.0
+        out.append(v / 12.92 if v <= 0.03928 else ((v + 0.055) / 1.055) ** 2.4)
+    return 0.2126 * out[0] + 0.7152 * out[1] + 0.0722 * out[2]
+
+
+def contrast_ratio(a: str, b: str) -> float:
+    """WCAG 2.x contrast ratio of two ``#rrggbb`` colours (1 to 21)."""
+    la, lb = sorted((_luminance(a), _luminance(b)), reverse=True)
+    return (la + 0.05) / (lb + 0.05)
+
+
+def ink_for(fill: str) -> str:
+    """Black or white text on ``fill``, whichever contrasts more (the grids palette helper in
+    ``twofold.study.colour`` when present)."""
+    try:
+        from twofold.study import colour as _colour  # type: ignore[attr-defined]
+
+        helper = getattr(_colour, "ink_for", None) or getattr(_colour, "label_colour", None)
+        if helper is not None:
+            return str(helper(fill))
+    except ImportError:
+        pass
+    black, white = "#000000", "#ffffff"
+    return black if contrast_ratio(fill, black) >= contrast_ratio(fill, white) else white
+
+
+# -- buttons ------------------------------------------------------------------------------------
+class Button:
+    """A labelled rectangle that can be clicked.
+
+    The label starts at ``height`` and shrinks to fit the width (never below
+    :data:`MIN_TEXT_PX`); with ``size`` None (or width 0) the button is as wide as its label.
+    """
+
+    def __init__(
+        self,
+        ctx: Any,
+        label: str,
+        pos: tuple[float, float],
+        size: tuple[float, float] | None = None,
+        *,
+        height: float = 20,
+        fill: str | None = PANEL,
+        edge: str = ACCENT,
+        colour: str = TEXT,
+        font: str = SANS,
+        pad: float = 12,
+    ):
+        self.ctx = ctx
+        self.text = make_text(ctx, label, pos, height=height, color=colour, font=font)
+        w, h = size if size is not None else (0.0, height + 18)
+        if label and w:
+            tw = text_width(self.text)
+            if tw > w - 2 * pad:  # shrink to fit, down to the floor
+                self.text.height = max(MIN_TEXT_PX, height * (w - 2 * pad) / max(tw, 1e-9))
+        if label:
+            w = max(w, text_width(self.text) + 2 * pad)
+        self.pos, self.size = pos, (w, h)
+        self.rect = ctx.visual.Rect(
+            ctx.win,
+            width=w,
+            height=h,
+            pos=pos,
+            fillColor=fill,
+            lineColor=edge,
+            lineWidth=2,
+            units="pix",
+        )
+        self.has_label = bool(label)
+
+    @staticmethod
+    def measure(ctx: Any, label: str, height: float = 20, pad: float = 12) -> float:
+        """The width a button needs for ``label`` at letter height ``height``."""
+        return text_width(make_text(ctx, label, (0, 0), height=height)) + 2 * pad
+
+    def move(self, pos: tuple[float, float]) -> None:
+        self.pos = pos
+        self.rect.pos = pos
+        self.text.pos = pos
+
+    def contains(self, p: Sequence[float]) -> bool:
+        return (
+            abs(p[0] - self.pos[0]) <= self.size[0] / 2
+            and abs(p[1] - self.pos[1]) <= self.size[1] / 2
+        )
+
+    def box(self) -> Box:
+        (x, y), (w, h) = self.pos, self.size
+        return (x - w / 2, y - h / 2, x + w / 2, y + h / 2)
+
+    def stims(self) -> list[Any]:
+        return [self.rect] + ([self.text] if self.has_label else [])
+
+    def draw(self) -> None:
+        for s in self.stims():
+            s.draw()
+
+
+class Highlight:
+    """A frame drawn around a box (a selected button, the current slot)."""
+
+    def __init__(self, ctx: Any, colour: str = SELECT, width: float = 4, gap: float = 5):
+        self.rect = ctx.visual.Rect(
+            ctx.win,
+            width=10,
+            height=10,
+            fillColor=None,
+            lineColor=colour,
+            lineWidth=width,
+            units="pix",
+        )
+        self.gap = gap
+        self.on: Box | None = None
+
+    def draw(self, box: Box | None) -> None:
+        if box is None:
+            return
+        if box != self.on:  # changing a stimulus costs time: only on a change
+            self.on = box
+            self.rect.pos = ((box[0] + box[2]) / 2, (box[1] + box[3]) / 2)
+            self.rect.width = box[2] - box[0] + 2 * self.gap
+            self.rect.height = box[3] - box[1] + 2 * self.gap
+        self.rect.draw()
+
+
+class Badge:
+    """A short label on a filled tab (e.g. the set label given to a test panel)."""
+
+    def __init__(self, ctx: Any, pos: tuple[float, float], *, height: float = 22):
+        self.ctx, self.pos, self.height = ctx, pos, height
+        self.text = make_text(ctx, "", pos, height=height, bold=True)
+        self.rect = ctx.visual.Rect(
+            ctx.win, width=10, height=height + 10, pos=pos, lineWidth=0, units="pix"
+        )
+        self.value = ""
+
+    def set(self, value: str, fill: str) -> None:
+        self.value = value
+        self.text.text = value
+        self.text.color = ink_for(fill)
+        self.rect.fillColor = fill
+        self.rect.width = text_width(self.text) + 16 if value else 10
+
+    def box(self) -> Box:
+        w, h = float(self.rect.width), float(self.rect.height)
+        return (self.pos[0] - w / 2, self.pos[1] - h / 2, self.pos[0] + w / 2, self.pos[1] + h / 2)
+
+    def draw(self) -> None:
+        if self.value:
+            self.rect.draw()
+            self.text.draw()
+
+
+# -- the grid editor view ------------------------------------------------------------------
+class GridEditorView:
+    """An editable colour grid with its top-left corner at ``top_left`` and cells of ``pitch``
+    pixels; hatches per colour index drawn over the fills, as pictures draw them."""
+
+    def __init__(
+        self,
+        ctx: Any,
+        grid: Sequence[Sequence[int]],
+        palette: Sequence[str],
+        hatches: Sequence[str | None],
+        top_left: tuple[float, float],
+        pitch: float,
+        *,
+        mark: str = "#202020",
+        line: str = "#7a7a7a",
+    ):
+        self.ctx, self.palette, self.hatches = ctx, list(palette), list(hatches)
+        self.top_left, self.pitch, self.mark, self.line = top_left, pitch, mark, line
+        self.stims: list[Any] = []
+        self.set(grid)
+
+    def set(self, grid: Sequence[Sequence[int]]) -> None:
+        import numpy as np
+
+        v = self.ctx.visual
+        self.grid = [[int(x) for x in r] for r in grid]
+        self.rows = len(self.grid)
+        self.cols = len(self.grid[0]) if self.rows else 0
+        self.stims = []
+        if not self.rows or not self.cols:
+            return
+        x0, y1 = self.top_left
+        w, h = self.cols * self.pitch, self.rows * self.pitch
+        self.back = v.Rect(
+            self.ctx.win,
+            width=w + 1,
+            height=h + 1,
+            pos=(x0 + w / 2, y1 - h / 2),
+            fillColor=self.line,
+            lineWidth=0,
+            units="pix",
+        )
+        self.cells = v.ElementArrayStim(
+            self.ctx.win,
+            units="pix",
+            nElements=self.rows * self.cols,
+            xys=np.array(
+                [self.cell_pos(r, c) for r in range(self.rows) for c in range(self.cols)],
+                dtype=float,
+            ),
+            sizes=max(self.pitch - 1.0, 1.0),
+            elementTex=np.ones((4, 4)),
+            elementMask=None,
+            colors=np.array([self._rgb(x) for r in self.grid for x in r], dtype=float),
+            colorSpace="rgb",
+            sfs=0,
+            interpolate=False,
+        )
+        self.stims = [self.back, self.cells]
+        self._hatch()
+
+    def _rgb(self, idx: int) -> list[float]:
+        c = self.palette[idx % len(self.palette)].lstrip("#")
+        return [int(c[k : k + 2], 16) / 255.0 * 2 - 1 for k in (0, 2, 4)]
+
+    def _hatch(self) -> None:
+        import numpy as np
+
+        xys, sizes, oris = [], [], []
+        for r in range(self.rows):
+            for c in range(self.cols):
+                idx = self.grid[r][c]
+                pattern = self.hatches[idx] if idx < len(self.hatches) else None
+                if not pattern:
+                    continue
+                cx, cy = self.cell_pos(r, c)
+                pts = hatch_segments(pattern, cx - self.pitch / 2, cy - self.pitch / 2, self.pitch)
+                for k in range(0, len(pts) - 1, 2):
+                    (ax, ay), (bx, by) = pts[k], pts[k + 1]
+                    xys.append(((ax + bx) / 2, (ay + by) / 2))
+                    sizes.append((math.hypot(bx - ax, by - ay), max(1.2, self.pitch / 18)))
+                    oris.append(-math.degrees(math.atan2(by - ay, bx - ax)))
+        self.hatch = None
+        if xys:
+            self.hatch = self.ctx.visual.ElementArrayStim(
+                self.ctx.win,
+                units="pix",
+                nElements=len(xys),
+                xys=np.array(xys, dtype=float),
+                sizes=np.array(sizes, dtype=float),
+                oris=np.array(oris, dtype=float),
+                elementTex=np.ones((4, 4)),
+                elementMask=None,
+                colors=self._rgb_of(self.mark),
+                colorSpace="rgb",
+                sfs=0,
+                interpolate=False,
+            )
+
+    @staticmethod
+    def _rgb_of(colour: str) -> list[float]:
+        c = colour.lstrip("#")
+        return [int(c[k : k + 2], 16) / 255.0 * 2 - 1 for k in (0, 2, 4)]
+
+    def cell_pos(self, r: int, c: int) -> tuple[float, float]:
+        x0, y1 = self.top_left
+        return (x0 + (c + 0.5) * self.pitch, y1 - (r + 0.5) * self.pitch)
+
+    def cell_at(self, p: Sequence[float]) -> tuple[int, int] | None:
+        x0, y1 = self.top_left
+        c = math.floor((p[0] - x0) / self.pitch)
+        r = math.floor((y1 - p[1]) / self.pitch)
+        if 0 <= r < self.rows and 0 <= c < self.cols:
+            return r, c
+        return None
+
+    def box(self) -> Box:
+        x0, y1 = self.top_left
+        return (x0, y1 - self.rows * self.pitch, x0 + self.cols * self.pitch, y1)
+
+    def paint(self, r: int, c: int, colour: int) -> bool:
+        """Set one cell; True when it changed."""
+        import numpy as np
+
+        if self.grid[r][c] == colour:
+            return False
+        self.grid[r][c] = colour
+        cols = np.array(self.cells.colors, dtype=float)
+        cols[r * self.cols + c] = self._rgb(colour)
+        self.cells.colors = cols
+        self._dirty_hatch = True
+        return True
+
+    def refresh(self) -> None:
+        """Rebuild the hatch marks after painting (once per frame, not per cell)."""
+        if getattr(self, "_dirty_hatch", False):
+            self._hatch()
+            self._dirty_hatch = False
+
+    def draw(self) -> None:
+        self.refresh()
+        for s in self.stims:
+            s.draw()
+        if self.rows and self.hatch is not None:
+            self.hatch.draw()
+
+
+def help_line(ctx: Any, text: str, width: float, bottom: float) -> Any:
+    """The help line: dim text wrapped to ``width``, its bottom edge at ``bottom``."""
+    return make_text(
+        ctx, text, (0, bottom), height=MIN_TEXT_PX, color=DIM, wrap=width, valign="bottom"
+    )
+
+
+def text_box_of(stim: Any) -> Box:
+    return text_box(stim)
+
+
+# -- on-screen symbol keypad ---------------------------------------------------------------------
+class Keypad:
+    """Layout of on-screen symbol keys: as many per row as fit ``width`` (at most ``most``),
+    each ``key`` pixels wide, rows ``pitch`` apart."""
+
+    def __init__(
+        self,
+        symbols: Sequence[str],
+        width: float,
+        *,
+        key: float = 48,
+        gap: float = 8,
+        most: int = 16,
+    ):
+        self.symbols = list(symbols)
+        self.key, self.gap = key, gap
+        fit = max(1, int((width + gap) // (key + gap)))
+        self.per_row = max(1, min(len(self.symbols) or 1, fit, most))
+        self.n_rows = math.ceil(len(self.symbols) / self.per_row) if self.symbols else 0
+        self.pitch = key + gap
+
+    def positions(self, top: float, centre: float = 0.0) -> list[tuple[str, tuple[float, float]]]:
+        """(symbol, centre) of every key, the first row's top edge at ``top``."""
+        out = []
+        for k, sym in enumerate(self.symbols):
+            rr, cc = divmod(k, self.per_row)
+            in_row = min(self.per_row, len(self.symbols) - rr * self.per_row)
+            x = centre + (cc - (in_row - 1) / 2) * self.pitch
+            out.append((sym, (x, top - self.key / 2 - rr * self.pitch)))
+        return out
+
+    @property
+    def height(self) -> float:
+        return self.n_rows * self.pitch - self.gap if self.n_rows else 0.0
