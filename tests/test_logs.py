@@ -36,7 +36,7 @@ def _row(trial: int, **kw):
         "item": "str-000000000000",
         "family": "strings",
         "mode": "generate",
-        "response": "ijkm",
+        "response": "pqrt",
         "correct": True,
         "status": "ok",
         "rt_ms": 1234.5,
@@ -71,7 +71,7 @@ def test_rows_round_trip_with_types(tmp_path):
     assert list(df.columns) == [c.name for c in TRIAL_COLUMNS]
     assert df["trial"].tolist() == [0, 1, 2]
     assert df["correct"].tolist()[:2] == [True, False] and pd.isna(df["correct"][2])
-    assert json.loads(df["response"][0]) == "ijkm"
+    assert json.loads(df["response"][0]) == "pqrt"
     assert json.loads(df["response"][1]) == {"a": [1, 2]}
     assert df["rt_ms"][0] == pytest.approx(1234.5) and pd.isna(df["rt_ms"][2])
     side = json.loads((tmp_path / "P001.json").read_text())

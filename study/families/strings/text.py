@@ -40,7 +40,7 @@ def _marker() -> re.Pattern[str]:
 
 
 def _segment_answer(segment: str, symbols: str, near: set[str]) -> str | None:
-    """The answer written at the start of a segment (``abd``, ``a b d``, ``**abd**``), or ``None``.
+    """The answer written at the start of a segment (``pqt``, ``p q t``, ``**pqt**``), or ``None``.
 
     Punctuation-only tokens are skipped. A run of single symbols separated by spaces is one answer.
     Otherwise the first token made of symbols is taken; for letter orders a later token whose
