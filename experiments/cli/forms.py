@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -97,3 +98,82 @@ def templates(
 
     for path in write_templates(load_study(study_file), overwrite=overwrite):
         stdout.print(f"wrote {path}")
+
+
+def parse_size(text: str) -> tuple[int, int]:
+    """``WIDTHxHEIGHT`` (e.g. ``1024x768``) as a checked window size in pixels."""
+    import re
+
+    from twofold.study.checks import check_int, fail
+    from twofold.study.exceptions import SpecError
+
+    accepted = "WIDTHxHEIGHT in pixels, e.g. 1024x768 (width 640-8192, height 480-8192)"
+    m = re.fullmatch(r"\s*(\d+)\s*[xX]\s*(\d+)\s*", text or "")
+    if not m:
+        raise fail("--size", text, accepted, error=SpecError)
+    w = check_int("--size", int(m.group(1)), low=640, high=8192, error=SpecError)
+    h = check_int("--size", int(m.group(2)), low=480, high=8192, error=SpecError)
+    return w, h
+
+
+@forms_app.command("preview")
+def preview(
+    study_file: Annotated[Path, typer.Argument(help="The study.toml (or its folder).")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Folder for the PNGs and index.json.")],
+    form: Annotated[
+        str | None, typer.Option("--form", help="Form id (default: the first form).")
+    ] = None,
+    list_no: Annotated[
+        int | None, typer.Option("--list", help="Preview the first form of this list.")
+    ] = None,
+    size: Annotated[
+        str | None,
+        typer.Option("--size", help="Window size WIDTHxHEIGHT (default: [runner] size)."),
+    ] = None,
+    respondent: Annotated[
+        str | None,
+        typer.Option(
+            "--respondent",
+            help="Whose choice orders to show (default: the form's respondent, or EXAMPLE).",
+        ),
+    ] = None,
+) -> None:
+    """Paint every screen a participant of a form sees to numbered PNGs, without a participant.
+
+    Consent pages, instructions, practice items and their feedback, every trial, breaks and the
+    end screen, drawn by the session's own screens in a window (a desktop or a virtual display
+    such as Xvfb); writes index.json beside the PNGs and never writes logs.
+    """
+    from twofold.experiments.human.runner import preview_form
+
+    from ._console import progress
+
+    win = parse_size(size) if size is not None else None
+    state: dict[str, Any] = {}
+
+    def on_start(f: Any, who: str, n: int) -> None:
+        console.print(
+            f"form {f.form_id} (list {f.list}): choice orders as shown to respondent {who}"
+        )
+        state["bar"] = stack.enter_context(progress("preview", n))
+
+    def on_step(step: Any) -> None:
+        state["bar"].advance()
+
+    with contextlib.ExitStack() as stack:
+        index = preview_form(
+            study_file,
+            out,
+            form_id=form,
+            list_no=list_no,
+            size=win,
+            respondent=respondent,
+            on_start=on_start,
+            on_step=on_step,
+        )
+    stdout.print(
+        f"wrote {len(index['screens'])} screens ({index['size'][0]}x{index['size'][1]}) and "
+        f"index.json to {out}",
+        markup=False,
+        highlight=False,
+    )

@@ -34,6 +34,7 @@ and the benchmark use it to know what is on screen; sessions never depend on it.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
 import json
 import math
@@ -51,7 +52,16 @@ from twofold.study.scene import MIN_TEXT
 
 from .prepare import SessionPlan, choice_order, paginate, reflow, shown_item
 
-__all__ = ["FRAMES_HEADER", "SessionResult", "frames_file", "run_session"]
+__all__ = [
+    "FRAMES_HEADER",
+    "SessionResult",
+    "Step",
+    "break_text",
+    "frames_file",
+    "preview_form",
+    "run_session",
+    "walk",
+]
 
 #: columns of ``<session>.frames.csv``: one row per trial; intervals between consecutive flips
 #: (ms, space separated), dropped = intervals over 1.5 refresh periods, prep = time spent
@@ -454,6 +464,15 @@ class _Session:
         fits = scene.width * scale <= box[2] - box[0] and scene.height * scale <= box[3] - box[1]
         return ScenePainter(self.ctx, scene, box, scale=scale if fits else None)
 
+    def text_pages(
+        self, text: str, keys: tuple[str, ...], *, accept: str | None = None, picture: Any = None
+    ) -> list[_Page]:
+        """The pages of a text screen accepting ``keys`` (see :meth:`text_screen`)."""
+        names = " / ".join(_KEY_NAMES.get(k, k.upper()) for k in keys)
+        accept = accept or f"Press {names} to go on."
+        note = "" if keys == ("space",) else f"({names} on the last page.)"
+        return self.pages(text, accept, picture=picture, wait_note=note)
+
     def text_screen(
         self,
         text: str,
@@ -472,10 +491,7 @@ class _Session:
         ``accept`` (default: the keys) on the last page and, on earlier pages, that the keys
         act on the last page.
         """
-        names = " / ".join(_KEY_NAMES.get(k, k.upper()) for k in keys)
-        accept = accept or f"Press {names} to go on."
-        note = "" if keys == ("space",) else f"({names} on the last page.)"
-        pages = self.pages(text, accept, picture=picture, wait_note=note)
+        pages = self.text_pages(text, keys, accept=accept, picture=picture)
         i = 0
         while True:
             page = pages[i]
@@ -799,17 +815,19 @@ class _Session:
             writer.close()
             self.frames_log.close()
 
+    def step_text(self, step: Step) -> tuple[str, str]:
+        """(text, footer) of a break, instructions or end step."""
+        if step.kind == "break":
+            return step.text, BREAK_KEYS
+        if step.kind == "instructions":
+            return self.plan.instructions[step.block.name], BEGIN_KEYS
+        return self.plan.options.end_text, END_KEYS
+
     def show_step(self, step: Step) -> None:
         """A break, instructions or end screen of the form walk."""
-        if step.kind == "break":
-            self.text_screen(step.text, ("space",), "break", accept=BREAK_KEYS)
-        elif step.kind == "instructions":
-            text = self.plan.instructions[step.block.name]
-            self.text_screen(text, ("space",), "instructions", accept=BEGIN_KEYS)
-        else:
-            self.text_screen(
-                self.plan.options.end_text, ("space",), "end", max_s=30, accept=END_KEYS
-            )
+        text, accept = self.step_text(step)
+        max_s = 30 if step.kind == "end" else None
+        self.text_screen(text, ("space",), step.kind, max_s=max_s, accept=accept)
 
     def next_of(self, bi: int, pos: int, k: int) -> tuple[Any, Any, Any] | None:
         """The item shown after position ``pos`` (trial ``k``) of block ``bi``: the item, its
@@ -907,13 +925,23 @@ class _Session:
         screen gives its stimulus; the choice number is the one shown on the screen."""
         fam = get_family(item.family)
         if status == "timeout":
-            msg = "Time is up for this one."
+            verdict = "timeout"
         else:
             try:
                 ok = fam.score(item, resp, block.mode).correct
             except ResponseError:
                 ok = False
-            msg = "Correct." if ok else "Not correct."
+            verdict = "correct" if ok else "wrong"
+        return self.feedback_view(item, block, order, verdict)
+
+    def feedback_view(
+        self, item: Any, block: Any, order: tuple[int, ...] | None, verdict: str
+    ) -> tuple[str, tuple[Any, float] | None]:
+        """Text and picture of a feedback screen for ``verdict`` (correct, wrong, timeout)."""
+        fam = get_family(item.family)
+        msg = {"timeout": "Time is up for this one.", "correct": "Correct."}.get(
+            verdict, "Not correct."
+        )
         shown = shown_item(item, order)
         right = fam.correct_response(shown, block.mode)
         if block.mode == "select" and isinstance(right, int) and shown.choices:
@@ -1083,3 +1111,214 @@ def run_session(plan: SessionPlan) -> SessionResult:
         return s.run()
     finally:
         s.close()
+
+
+# -- preview: every screen of a form, to PNG, without a participant ------------------------------
+class _Preview(_Session):
+    """Walks a form's screens like a session (the same layouts and screens) and saves each
+    drawn frame instead of waiting for input. Writes no log."""
+
+    def __init__(self, plan: SessionPlan, out: Path, on_step: Any = None):
+        super().__init__(plan)
+        self.out, self.on_step = out, on_step
+        self.rows: list[dict[str, Any]] = []
+
+    def save(self, draw: Any, screen: str, **where: Any) -> None:
+        draw()
+        img = self.win.getMovieFrame(buffer="back")
+        self.win.movieFrames.clear()
+        n = len(self.rows) + 1
+        parts = [f"{n:04d}", screen]
+        if where.get("block"):
+            parts.append(str(where["block"]))
+        if where.get("pages", 1) > 1:
+            parts.append(f"p{where['page']}")
+        name = "-".join(parts).replace("/", "_").replace(" ", "_") + ".png"
+        img.save(self.out / name)
+        self.win.flip()  # show it too (a real display watches the walk), clearing the buffer
+        row = {"file": name, "screen": screen, "block": None, "item": None, "trial": None}
+        row.update({"page": 1, "pages": 1, "note": None})
+        row.update(where)
+        self.rows.append(row)
+
+    def text(self, text: str, keys: tuple[str, ...], screen: str, **kw: Any) -> None:
+        picture = kw.pop("picture", None)
+        accept = kw.pop("accept", None)
+        pages = self.text_pages(text, keys, accept=accept, picture=picture)
+        for page in pages:
+            self.save(page.draw, screen, page=page.number, pages=page.of, **kw)
+
+    def item_screen(
+        self, item: Any, block: Any, order: tuple[int, ...] | None, trial: int | None, note: str
+    ) -> None:
+        screen = self.screen(item, block, order)
+        cd = self.countdown(block.time_limit_s)
+        paint = screen.draw if cd is None else cd.over(screen)
+        kind = "trial" if trial is not None else "practice"
+        self.save(paint, kind, block=block.name, item=item.id, trial=trial, note=note)
+
+    def walk_form(self) -> list[dict[str, Any]]:
+        plan = self.plan
+        self.text(plan.consent_text, ("y", "n"), "consent", accept=CONSENT_KEYS)
+        for step in walk(plan.form, set(), []):
+            if self.on_step is not None:
+                self.on_step(step)
+            block = step.block
+            if step.kind in ("break", "instructions", "end"):
+                text, accept = self.step_text(step)
+                where = {"block": block.name} if block is not None else {}
+                self.text(text, ("space",), step.kind, accept=accept, **where)
+            elif step.kind == "practice":
+                for j, pid in enumerate(block.practice):
+                    item = plan.bank[pid]
+                    order = self.order(item, block, _practice_label(block, j))
+                    self.item_screen(item, block, order, None, _order_note(order))
+                    if block.feedback:
+                        text, picture = self.feedback_view(item, block, order, "wrong")
+                        self.text(
+                            text,
+                            ("space",),
+                            "feedback",
+                            accept=FEEDBACK_KEYS,
+                            picture=picture,
+                            block=block.name,
+                            item=item.id,
+                            note="as after an answer that was not correct",
+                        )
+            else:
+                item = plan.bank[step.item]
+                order = self.order(item, block, step.trial)
+                self.item_screen(item, block, order, step.trial, _order_note(order))
+        return self.rows
+
+
+def _order_note(order: tuple[int, ...] | None) -> str | None:
+    return None if order is None else "choice order (bank numbers) " + " ".join(map(str, order))
+
+
+def preview_steps(form: Any) -> int:
+    """How many steps :func:`preview_form` reports through ``on_step`` for ``form``."""
+    return sum(1 for _ in walk(form, set(), []))
+
+
+def preview_form(
+    study_file: str | Path,
+    out: str | Path,
+    *,
+    form_id: str | None = None,
+    list_no: int | None = None,
+    size: tuple[int, int] | None = None,
+    respondent: str | None = None,
+    on_start: Any = None,
+    on_step: Any = None,
+) -> dict[str, Any]:
+    """Paint every screen a participant of a form sees to numbered PNGs in ``out``.
+
+    Consent pages, each block's instructions, practice items and their feedback (as after an
+    answer that was not correct), every trial with its choices in the order ``respondent``
+    would see them, breaks and the end screen, through the session's own screen code, in a
+    window of ``size`` (default: the study's ``[runner] size``). Writes ``index.json`` (the
+    form, respondent, size and one row per PNG: file, screen, block, item, trial, page,
+    pages, note) beside them; never writes logs. ``on_start(form, respondent, n_steps)`` and
+    ``on_step(step)`` report progress.
+
+    Raises
+    ------
+    RunnerError
+        No display or no PsychoPy (naming what is missing), or the window cannot open.
+    SpecError
+        A broken study, an unknown form id or list.
+    """
+    import importlib.util
+
+    from twofold.study import load_study
+    from twofold.study.checks import fail
+    from twofold.study.exceptions import SpecError
+    from twofold.study.forms import assignment, load_forms, parse_blocks
+
+    from .prepare import _read, block_instructions, check_placeholders, parse_runner
+
+    study = load_study(study_file)
+    opts = parse_runner(study)
+    where = study.file.name
+    forms = load_forms(study)
+    if form_id is not None:
+        chosen = [f for f in forms if f.form_id == form_id]
+        accepted = "a form id of the study: " + ", ".join(f.form_id for f in forms[:5])
+        if len(forms) > 5:
+            accepted += ", ..."
+        if not chosen:
+            raise fail("--form", form_id, accepted, where=where, error=SpecError)
+    elif list_no is not None:
+        chosen = [f for f in forms if f.list == list_no]
+        if not chosen:
+            lists = sorted({f.list for f in forms})
+            raise fail("--list", list_no, f"a list number of the forms: {lists}", error=SpecError)
+    else:
+        chosen = forms[:1]
+    form = chosen[0]
+    bank = study.bank()
+    if form.bank_hash != bank.hash:
+        raise RunnerError(
+            f"form {form.form_id} was built on bank {form.bank_hash[:12]}, the study's bank is "
+            f"{bank.hash[:12]}; rebuild the forms in a new study folder."
+        )
+    if respondent is None:
+        owners = [r for r, f in assignment(study).items() if f == form.form_id]
+        respondent = owners[0] if owners else "EXAMPLE"
+    own = {}
+    for b in parse_blocks(study):
+        if b.instructions:
+            own[b.name] = _read(study.root / b.instructions, "instructions", where)
+            check_placeholders(own[b.name], f"instructions of block {b.name}", where)
+    consent = _read(study.root / opts.consent, "runner.consent", where)
+    if size is not None:
+        opts = dataclasses.replace(opts, size=size, fullscreen=False)
+    plan = SessionPlan(
+        study=study,
+        options=dataclasses.replace(opts, fullscreen=False),
+        bank=bank,
+        form=form,
+        respondent=respondent,
+        csv_path=Path(os.devnull),
+        sidecar_path=Path(os.devnull),
+        resume=False,
+        done=set(),
+        consent_text=consent,
+        instructions=block_instructions(form, bank, opts, own),
+        previous={},
+    )
+    if importlib.util.find_spec("psychopy") is None:
+        raise RunnerError(
+            "forms preview needs PsychoPy, which is not installed: pip install 'twofold[human]'"
+        )
+    if sys.platform.startswith("linux") and not (
+        os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")
+    ):
+        raise RunnerError(
+            "forms preview needs a display and DISPLAY is not set: run it on a desktop or "
+            "under a virtual display (xvfb-run -a twofold forms preview ...; "
+            "apt-get install xvfb)"
+        )
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    for old in out.glob("[0-9][0-9][0-9][0-9]-*.png"):
+        old.unlink()  # a previous preview's screens: the index below lists only this one's
+    if on_start is not None:
+        on_start(form, respondent, preview_steps(form))
+    p = _Preview(plan, out, on_step)
+    p.open_window(plan.options.size, False)
+    try:
+        rows = p.walk_form()
+    finally:
+        p.close()
+    index = {
+        "study": study.name,
+        "form": form.form_id,
+        "list": form.list,
+        "respondent": respondent,
+        "size": list(p.size),
+        "screens": rows,
+    }
+    (out / "index.json").write_text(json.dumps(index, indent=1) + "\n", "utf-8")
+    return index
