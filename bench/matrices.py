@@ -30,7 +30,7 @@ def main() -> None:
         "select balanced": {"modes": ["select"], "distractor_scheme": "balanced"},
         "both, 5 rules, hard": {
             "modes": ["generate", "select"],
-            "params": {"n_rules": 5, "rule_set": "hard"},
+            "params": {"n_rules": 5, "rule_set": "three-sum"},
         },
         "both, 2 irrelevant": {
             "modes": ["generate", "select"],

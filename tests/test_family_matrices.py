@@ -23,7 +23,7 @@ SETTINGS = settings(max_examples=25, deadline=None, suppress_health_check=[Healt
 params_st = st.fixed_dictionaries(
     {
         "n_rules": st.integers(1, 4),
-        "rule_set": st.sampled_from(["basic", "all", "hard"]),
+        "rule_set": st.sampled_from(["kept-step", "every-kind", "three-sum"]),
         "n_irrelevant": st.integers(0, 1),
         "max_count": st.integers(3, 6),
     }
@@ -64,12 +64,12 @@ def holds(rule, attr, rows):
     n = [[value(attr, v) for v in row] for row in rows]
     if rule == "fixed":
         return len({v for row in rows for v in row}) == 1
-    if rule == "constant":
+    if rule == "kept":
         return all(len(set(row)) == 1 for row in rows)
-    if rule.startswith("progression"):
-        k = int(rule[len("progression") :])
+    if rule.startswith("step"):
+        k = int(rule[len("step") :])
         return all(r[1] - r[0] == k and r[2] - r[1] == k for r in n)
-    if rule == "distribution":
+    if rule == "each-of-three":
         return all(len(set(r)) == 3 and set(r) == set(rows[0]) for r in rows)
     if attr not in ("size", "count"):
         return False
@@ -81,12 +81,12 @@ def holds(rule, attr, rows):
 
 
 RULE_SPACE = [
-    "constant",
-    "progression+1",
-    "progression-1",
-    "progression+2",
-    "progression-2",
-    "distribution",
+    "kept",
+    "step+1",
+    "step-1",
+    "step+2",
+    "step-2",
+    "each-of-three",
     "sum",
     "difference",
 ]
@@ -163,7 +163,7 @@ def test_rejections_are_counted_and_impossible_levels_fail_clearly():
     bad = parse_spec(
         {"seed": 1, "families": {"matrices": {"n": 1, "params": {"n_rules": 5, "n_irrelevant": 2}}}}
     )
-    with pytest.raises(GenerationError, match="exceeds the 5 attributes"):
+    with pytest.raises(GenerationError, match="exceeds the 6 attributes"):
         generate_bank(bad)
 
 
@@ -346,8 +346,10 @@ def test_parse_text_reads_messy_replies(seed, style):
         + str(p["count"])
         + ", **Position:** "
         + p["position"]
+        + ", **Turn:** "
+        + p["turn"]
         + ".",
-        f"I first guessed shape=circle size=1 but on reflection the answer is\n'{_line(p)}'",
+        f"I first guessed shape=drop size=1 but on reflection the answer is\n'{_line(p)}'",
         '{"shape": "'
         + p["shape"]
         + '", "size": "'
@@ -358,6 +360,8 @@ def test_parse_text_reads_messy_replies(seed, style):
         + str(p["count"])
         + ', "position": "'
         + p["position"]
+        + '", "turn": "'
+        + p["turn"]
         + '"}',
     ]
     got = FAM.parse_text(item, replies[style], "generate")
@@ -367,7 +371,7 @@ def test_parse_text_reads_messy_replies(seed, style):
 
 def test_parse_text_refuses_replies_without_a_panel():
     item = make(seed=1)
-    for text in ("I am not sure.", "shape=triangle size=2", ""):
+    for text in ("I am not sure.", "shape=tee size=2", ""):
         with pytest.raises(ResponseError, match="no value for"):
             FAM.parse_text(item, text, "generate")
     assert FAM.parse_text(item, "The answer is choice 3.", "select") == 3
@@ -386,7 +390,7 @@ def test_views_are_deterministic_and_answer_free(params, seed, mode):
     assert canonical_json(view) == canonical_json(render(item, "structured", mode))
     flat = canonical_json(view)
     assert "rules" not in view and '"answer"' not in flat and "accepted" not in flat
-    for rule in set(item.stimulus["rules"].values()) - {"fixed", "constant"}:
+    for rule in set(item.stimulus["rules"].values()) - {"fixed", "kept"}:
         assert rule not in text and rule not in flat
     assert view["panels"][2][2] is None
     assert "row 3, column 3: ?" in text

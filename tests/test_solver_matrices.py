@@ -64,14 +64,16 @@ def test_default_items_are_solved(mode):
 @pytest.mark.parametrize("mode", ["generate", "select"])
 def test_harder_items_and_smaller_budgets_lower_accuracy(mode):
     base, _ = accuracy(DEFAULT, mode)
-    many, effort_many = accuracy(items({"n_rules": 5, "rule_set": "hard"}, n=30), mode)
+    many, effort_many = accuracy(items({"n_rules": 5, "rule_set": "three-sum"}, n=30), mode)
     noisy, _ = accuracy(items({"n_rules": 3, "n_irrelevant": 2}, n=60), mode)
     tiny, _ = accuracy(DEFAULT, mode, budget=6)
     assert many < base - 0.3
     assert noisy < base - 0.15
     assert tiny < base - 0.3
     # with a budget large enough for the whole rule space, hard items are solved again
-    big, effort_big = accuracy(items({"n_rules": 5, "rule_set": "hard"}, n=30), mode, budget=40)
+    big, effort_big = accuracy(
+        items({"n_rules": 5, "rule_set": "three-sum"}, n=30), mode, budget=40
+    )
     assert big >= 0.9 and effort_big > effort_many - 1e-9
 
 

@@ -8,6 +8,9 @@ guessed: in generate mode the value of the panel left of the gap is copied; in s
 are ignored and ties between the choices are broken at random. An attribute that fits no rule is
 treated as free (any value). More rule-governed attributes, attributes that vary under no rule and
 harder rules (tried later) all cost more effort, so accuracy at a fixed budget falls with them.
+
+The attributes are read from the view, so items of every family version are solved (version 1
+items have five attributes, version 2 items six); rules are named as in ``HYPOTHESES``.
 """
 
 from __future__ import annotations
@@ -15,7 +18,7 @@ from __future__ import annotations
 from typing import Any
 
 from twofold.study.exceptions import InputError
-from twofold.study.families.matrices import ATTRIBUTES, HYPOTHESES, rule_fits
+from twofold.study.families.matrices import HYPOTHESES, rule_fits
 
 from ._base import Answer, ItemSeeded, register_solver
 
@@ -37,7 +40,7 @@ class MatricesReference(ItemSeeded):
 
     medium = "structured"
     #: declared solver version (part of the trial-cache key)
-    version = "2"
+    version = "3"
 
     def __init__(self, *, seed: int = 0, budget: int = 24):
         if isinstance(budget, bool) or not isinstance(budget, int) or budget < 0:
@@ -60,7 +63,8 @@ class MatricesReference(ItemSeeded):
         panels = view["panels"]
         visible = [panels[r][c] for r in range(3) for c in range(3) if (r, c) != (2, 2)]
         rng = self._trial_rng(view, mode)
-        order = [ATTRIBUTES[int(j)] for j in rng.permutation(len(ATTRIBUTES))]
+        attributes = list(levels)
+        order = [attributes[int(j)] for j in rng.permutation(len(attributes))]
         effort = 0
         predicted: dict[str, Any] = {}
         notes = []
