@@ -91,25 +91,25 @@ def test_found_program_explains_the_demonstrations(default_items):
     assert ans.effort_unit == "programs"
     prog = ans.raw["program"]
     assert ans.explanation.startswith(G.describe_program(prog))
-    for pair in view["train"]:
-        out = G.apply_program(np.asarray(pair["input"], np.int8), prog)
-        assert out.tolist() == pair["output"]
+    for pair in view["examples"]:
+        out = G.apply_program(np.asarray(pair["before"], np.int8), prog)
+        assert out.tolist() == pair["after"]
 
 
 def test_copy_input_baseline():
     item = items(1)[0]
     view = render(item, "structured", "generate")
     ans = make_builtin("copy-input").solve(view, "generate")
-    assert ans.answer == item.stimulus["test"]
-    assert FAM.score(item, ans.answer, "generate").error_type == "identity_copy"
+    assert ans.answer == item.stimulus["probe"]
+    assert FAM.score(item, ans.answer, "generate").error_type == "copy-of-probe"
     sel = items(8, mode="select", key="copy")
     for it in sel:
         v = render(it, "structured", "select")
         k = make_builtin("copy-input").solve(v, "select").answer
-        test = np.asarray(it.stimulus["test"])
+        test = np.asarray(it.stimulus["probe"])
         same = [c for c in it.choices if np.asarray(c).shape == test.shape]
-        if any(c == it.stimulus["test"] for c in it.choices):
-            assert it.choices[k - 1] == it.stimulus["test"]
+        if any(c == it.stimulus["probe"] for c in it.choices):
+            assert it.choices[k - 1] == it.stimulus["probe"]
         elif same:
             assert np.asarray(it.choices[k - 1]).shape == test.shape
 
@@ -118,6 +118,9 @@ def test_bad_options_and_views_are_named():
     with pytest.raises(InputError, match="budget"):
         make_builtin("grids-ref", budget=0)
     with pytest.raises(InputError, match="mode"):
-        make_builtin("grids-ref").solve({"train": [], "test_input": [[1]]}, "draw")
+        make_builtin("grids-ref").solve({"examples": [], "probe": [[1]]}, "draw")
     with pytest.raises(InputError, match="view"):
         make_builtin("grids-ref").solve("a text prompt", "generate")
+    with pytest.raises(InputError, match="examples"):
+        # the version 1 view layout is not read: views are always made by the current family
+        make_builtin("grids-ref").solve({"train": [], "test_input": [[1]]}, "generate")

@@ -5,8 +5,8 @@
     by consistency with the demonstrations (see :func:`twofold.study.families.grids.search`).
     Effort is the number of programs tried.
 ``copy-input``
-    A baseline: the test input unchanged (generate mode), or the choice most like the test input
-    (select mode).
+    A baseline: the probe unchanged (generate mode), or the choice most like the probe (select
+    mode).
 """
 
 from __future__ import annotations
@@ -28,14 +28,14 @@ def _arr(grid: Any) -> np.ndarray:
 
 
 def _view_parts(view: Any) -> tuple[list[tuple[np.ndarray, np.ndarray]], np.ndarray]:
-    if not isinstance(view, dict) or "train" not in view or "test_input" not in view:
+    if not isinstance(view, dict) or "examples" not in view or "probe" not in view:
         raise InputError(
             f"field 'view': got {str(view)[:60]!r}; accepted: the structured view of a grids "
-            "item (a dict with 'train' and 'test_input').",
+            "item (a dict with 'examples' and 'probe').",
             field="view",
         )
-    pairs = [(_arr(p["input"]), _arr(p["output"])) for p in view["train"]]
-    return pairs, _arr(view["test_input"])
+    pairs = [(_arr(p["before"]), _arr(p["after"])) for p in view["examples"]]
+    return pairs, _arr(view["probe"])
 
 
 def _choices(view: dict[str, Any]) -> list[np.ndarray]:
@@ -101,7 +101,7 @@ class GridsRefSolver:
                     answer=test.tolist(),
                     effort=float(stats.tried),
                     effort_unit="programs",
-                    explanation=f"{why} after {stats.tried} programs; copied the test input",
+                    explanation=f"{why} after {stats.tried} programs; copied the probe",
                 )
             guess = int(np.random.default_rng(self.seed).integers(len(choices))) + 1
             return Answer(
@@ -122,7 +122,7 @@ class GridsRefSolver:
 
 
 class CopyInputSolver:
-    """Baseline: answer with the test input (or the choice most like it)."""
+    """Baseline: answer with the probe (or the choice most like it)."""
 
     medium = "structured"
 
@@ -137,7 +137,7 @@ class CopyInputSolver:
                 answer=test.tolist(),
                 effort=1.0,
                 effort_unit="programs",
-                explanation="copied the test input",
+                explanation="copied the probe",
             )
         choices = _choices(view)
         scores = [_similarity(c, test) for c in choices]
@@ -146,7 +146,7 @@ class CopyInputSolver:
             answer=k,
             effort=1.0,
             effort_unit="programs",
-            explanation=f"choice {k} is the most like the test input",
+            explanation=f"choice {k} is the most like the probe",
         )
 
 
@@ -163,9 +163,7 @@ def make_grids_ref(*, seed: int = 0, budget: int = 2_000, depth: int = 3) -> Gri
     return GridsRefSolver(seed=seed, budget=budget, depth=depth)
 
 
-@register_solver(
-    "copy-input", "grids baseline: the test input unchanged, or the choice most like it"
-)
+@register_solver("copy-input", "grids baseline: the probe unchanged, or the choice most like it")
 def make_copy_input(*, seed: int = 0, budget: int | None = None) -> CopyInputSolver:
     """The copy-the-input baseline for the grids family."""
     return CopyInputSolver(seed=seed, budget=budget)
