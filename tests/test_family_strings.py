@@ -516,3 +516,203 @@ def test_every_glyph_is_in_the_fonts_of_pictures_and_screens():
         cmap = TTFont(os.path.join(folder, name)).getBestCmap()
         missing = [g for g in ALPHABETS["glyphs"] if ord(g) not in cmap]
         assert missing == [], (name, missing)
+
+
+# -- scenes -----------------------------------------------------------------------------------
+SCENE_PARAMS = st.fixed_dictionaries(
+    {
+        "rule": st.sampled_from(["any", *RULES]),
+        "length": st.integers(3, 10),
+        "grouping": st.sampled_from(["none", "pairs", "mixed"]),
+        "direction": st.sampled_from(["up", "down"]),
+        "wrap": st.booleans(),
+        "alphabet": st.sampled_from(list(ALPHABETS)),
+    }
+)
+
+
+def _rows_of_cells(scene, role="cell"):
+    """The cells of a scene grouped by row (same bottom edge), each row sorted left to right."""
+    rows: dict[float, list] = {}
+    for el in scene.of_role(role):
+        x0, y0, x1, y1 = el.bbox()
+        rows.setdefault(round(y0, 3), []).append((x0, x1))
+    return [sorted(r) for r in rows.values()]
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(params=SCENE_PARAMS, seed=st.integers(0, 2**32), n_choices=st.integers(2, 8))
+def test_scenes_fit_and_strings_are_evenly_spaced(params, seed, n_choices):
+    from twofold.study.scene import MIN_TEXT, Text, scene_problems
+
+    item = make(params, seed, ("generate", "select"), n_choices=n_choices)
+    for mode in item.modes:
+        sc = FAM.scene(item, mode)
+        assert scene_problems(sc) == []
+        assert sc == FAM.scene(item, mode)
+        # every string is a run of equal cells that touch: one cell per symbol, evenly spaced;
+        # two strings on one row (the example's, two choices) stand well apart
+        for row in _rows_of_cells(sc) + _rows_of_cells(sc, "key"):
+            widths = {round(x1 - x0, 6) for x0, x1 in row}
+            assert len(widths) == 1
+            gaps = [b[0] - a[1] for a, b in zip(row, row[1:], strict=False)]
+            assert all(abs(g) < 1e-6 or g >= min(widths) for g in gaps)
+        symbols = [el for el in sc.elements if isinstance(el, Text) and el.role == "symbol"]
+        assert all(el.font == "mono" and el.size >= MIN_TEXT for el in symbols)
+        key = "".join(el.text for el in symbols[: len(item.stimulus["symbols"])])
+        assert key == item.stimulus["symbols"]  # the order is shown, first, as a key strip
+        shown = "".join(el.text for el in symbols)
+        assert item.stimulus["source"] + item.stimulus["changed"] in shown
+        if mode == "generate":
+            assert sc.response.kind == "type" and sc.answer_box is not None
+            assert item.answer not in shown[len(key) :].replace(item.stimulus["target"], "", 1)
+        else:
+            assert sc.response.kind == "choose"
+            assert [s.key for s in sc.slots] == [f"choice:{k + 1}" for k in range(n_choices)]
+
+
+def test_choices_of_9_to_17_symbols_fit_with_their_numbers_outside_the_boxes():
+    from twofold.study.scene import scene_problems
+
+    seen = set()
+    for length in (9, 12, 17):
+        for grouping, n in (("none", length), ("pairs", length // 2)):
+            if n < 3 or (grouping == "none" and n > 10):
+                continue
+            item = make({"length": n, "grouping": grouping}, length, ("select",), n_choices=8)
+            sc = FAM.scene(item, "select")
+            assert scene_problems(sc) == []
+            badges = sc.of_role("badge")
+            assert [b.text for b in badges] == [str(k) for k in range(1, 9)]
+            for k, badge in enumerate(badges, start=1):
+                bx0, by0, bx1, by1 = badge.bbox()
+                sx0, sy0, sx1, sy1 = sc.slot(f"choice:{k}").bbox()
+                assert bx1 <= sx0 and sy0 <= (by0 + by1) / 2 <= sy1  # left of its box, level
+            # every choice's cells lie inside its box, and boxes do not overlap
+            boxes = [sc.slot(f"choice:{k}").bbox() for k in range(1, 9)]
+            for a in range(8):
+                for b in range(a + 1, 8):
+                    A, B = boxes[a], boxes[b]
+                    assert A[2] <= B[0] or B[2] <= A[0] or A[3] <= B[1] or B[3] <= A[1]
+            seen.add(max(len(c) for c in item.choices))
+    assert max(seen) >= 15 and min(seen) <= 10
+
+
+def test_typed_answers_offer_keys_only_for_untypeable_orders():
+    for alphabet, keys in (("letters", []), ("digits", []), ("glyphs", list(ALPHABETS["glyphs"]))):
+        item = make({"alphabet": alphabet}, 4)
+        sc = FAM.scene(item, "generate")
+        assert sc.response.kind == "type"
+        assert list(sc.response.options["symbols"]) == keys
+
+
+def test_answer_scene_draws_any_string_in_the_cells_of_the_stimulus():
+    item = make({"length": 4}, 6, ("generate", "select"))
+    sc = FAM.scene(item, "generate")
+    cell = sc.of_role("cell")[0].bbox()
+    side = cell[2] - cell[0]
+    for answer in (item.answer, "pq", item.stimulus["target"] + "p"):
+        ans = FAM.answer_scene(item, "generate", answer)
+        assert ans.width == pytest.approx(len(answer) * side) and ans.height == pytest.approx(side)
+        assert "".join(el.text for el in ans.of_role("symbol")) == answer
+    x0, y0, x1, y1 = sc.answer_box
+    assert y1 - y0 == pytest.approx(side)
+    ans = FAM.answer_scene(item, "select", 2)
+    assert "".join(el.text for el in ans.of_role("symbol")) == item.choices[1]
+    assert [b.text for b in ans.of_role("badge")] == ["2"]
+
+
+# an item written by version 2 (the last version with a matplotlib drawing), saved as generated
+V2_RECORD = {
+    "accepted": [],
+    "answer": "qqrrssuu",
+    "choices": ["rrrrsstt", "qqsssstt", "qqrrssuu", "qqrrtttt"],
+    "distractor_scheme": "near-miss",
+    "factors": {
+        "alphabet": "letters",
+        "direction": "up",
+        "grouping": "pairs",
+        "length": 4,
+        "n_readings": 1,
+        "n_symbols": 8,
+        "rule": "succ-last",
+        "wrap": False,
+    },
+    "family": "strings",
+    "family_version": "2",
+    "id": "str-34c2f363c1ed",
+    "modes": ["generate", "select"],
+    "params": {
+        "alphabet": "letters",
+        "direction": "up",
+        "grouping": "pairs",
+        "length": 4,
+        "rule": "any",
+        "wrap": False,
+    },
+    "seed": 30,
+    "stimulus": {
+        "alphabet": "letters",
+        "changed": "ffgghhjj",
+        "circular": True,
+        "source": "ffgghhii",
+        "symbols": "abcdefghijklmnopqrstuvwxyz",
+        "target": "qqrrsstt",
+    },
+    "variant_of": None,
+    "variant_operator": None,
+}
+
+
+def test_version_2_records_load_score_and_render(tmp_path):
+    from twofold.study.bank import Bank
+    from twofold.study.item import Item
+    from twofold.study.scene import scene_problems
+
+    assert FAM.version == "3"
+    item = Item.from_record(V2_RECORD)
+    assert item.id == V2_RECORD["id"] and item.family_version == "2"
+    FAM.validate_item(item, deep=True)
+    assert FAM.score(item, "qqrrssuu", "generate").correct
+    assert FAM.score(item, 3, "select").correct
+    assert FAM.score(item, "qqrrsstt", "generate").error_type == "no-change"
+    for mode in item.modes:
+        assert scene_problems(FAM.scene(item, mode)) == []
+        assert render_picture(item, mode).startswith(b"\x89PNG")
+    bank = Bank.from_items([item], seed=1, created="2026-01-01T00:00:00+00:00")
+    write_bank(bank, tmp_path / "old")
+    loaded = load_bank(tmp_path / "old")
+    assert loaded.hash == bank.hash and next(iter(loaded)).to_record() == V2_RECORD
+
+
+# -- the example bank -------------------------------------------------------------------------
+def _textbook_looking(text: str) -> bool:
+    """Strings that read as well-known textbook letter-string problems (common practice: the
+    handful of strings every introduction uses, and letter runs that start at either end of the
+    alphabet)."""
+    famous = {"abc", "abd", "ijk", "ijl", "xyz", "mrrjjj", "iijjkk", "mno", "nop", "rst"}
+    if text in famous:
+        return True
+    return set(text) <= set(LETTERS) and text[0] in "az"
+
+
+def test_textbook_check_is_not_vacuous():
+    assert _textbook_looking("xyz") and _textbook_looking("aabbcc") and _textbook_looking("zyx")
+    assert not _textbook_looking("pqrs") and not _textbook_looking("0123")
+
+
+def test_the_example_bank_has_no_textbook_strings():
+    import pathlib
+    import tomllib
+
+    root = pathlib.Path(__file__).resolve().parents[1]
+    raw = tomllib.loads((root / "example_study" / "generate.toml").read_text())
+    raw["families"] = {"strings": raw["families"]["strings"]}  # the other families do not matter
+    bank = generate_bank(parse_spec(raw))
+    assert len(bank) == 40
+    flagged = [
+        (it.stimulus["source"], it.stimulus["changed"], it.stimulus["target"])
+        for it in bank
+        if any(_textbook_looking(it.stimulus[k]) for k in ("source", "changed", "target"))
+    ]
+    assert flagged == []
