@@ -3,19 +3,24 @@
 from __future__ import annotations
 
 import itertools
+import json
 from collections import Counter
+from pathlib import Path
 
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from twofold.study import generate_bank, load_bank, parse_spec, write_bank
+from twofold.study.conformance import check_family
 from twofold.study.exceptions import GenerationError, ResponseError
 from twofold.study.families import Rejected, get_family
+from twofold.study.families import matrices as M
 from twofold.study.families.matrices import ATTRIBUTES, LEVELS
 from twofold.study.generate import item_rng
 from twofold.study.item import canonical_json, validate_record
 from twofold.study.render import render, render_picture
+from twofold.study.scene import DESIGN_BOX, MIN_OBJECT, scene_problems
 
 FAM = get_family("matrices")
 SETTINGS = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -452,3 +457,262 @@ def test_balanced_scheme_refuses_a_prime_number_of_choices_beyond_the_levels():
     )
     with pytest.raises(GenerationError, match="balanced: cannot build 7 choices"):
         generate_bank(spec)
+
+
+# -- scenes -----------------------------------------------------------------------------------
+def _objects(scene, box=None):
+    """Object outlines (with fill and edge) inside ``box``, relative to its bottom-left corner."""
+    x0, y0 = (box[0], box[1]) if box else (0.0, 0.0)
+    out = []
+    for el in scene.of_role("object"):
+        bx = el.bbox()
+        if box and not (
+            bx[0] >= box[0] and bx[2] <= box[2] and bx[1] >= box[1] and bx[3] <= box[3]
+        ):
+            continue
+        pts = tuple((round(x - x0, 2), round(y - y0, 2)) for x, y in el.points)
+        out.append((pts, el.fill, el.edge, el.edge_width))
+    return sorted(out)
+
+
+def _same(a, b):
+    """Two lists from :func:`_objects` alike up to rounding (0.02 scene units)."""
+    return len(a) == len(b) and all(
+        pa[1:] == pb[1:]
+        and len(pa[0]) == len(pb[0])
+        and np.allclose(np.array(pa[0]), np.array(pb[0]), atol=0.02)
+        for pa, pb in zip(a, b, strict=True)
+    )
+
+
+def _boxes(scene, role):
+    return [el.bbox() for el in scene.of_role(role)]
+
+
+scene_params = st.fixed_dictionaries(
+    {
+        "n_rules": st.integers(1, 4),
+        "rule_set": st.sampled_from(["kept-step", "every-kind", "three-sum"]),
+        "n_irrelevant": st.integers(0, 2),
+        "max_count": st.integers(1, 6),
+    }
+)
+
+
+@SETTINGS
+@given(
+    params=scene_params,
+    seed=st.integers(0, 2**31),
+    scheme=st.sampled_from(["one-off", "balanced"]),
+    n_choices=st.sampled_from([2, 3, 4, 6, 8, 9, 12]),
+)
+def test_scenes_are_legible_in_both_modes(params, seed, scheme, n_choices):
+    try:
+        item = make(params, seed=seed, scheme=scheme, n_choices=n_choices)
+    except AssertionError:  # no valid item for these parameters (e.g. balanced with 1 level)
+        return
+    for mode in ("generate", "select"):
+        sc = FAM.scene(item, mode)
+        assert scene_problems(sc, min_object=MIN_OBJECT) == []
+        # laid out for the design box: painted there at scale 1, the floors hold on screen
+        assert sc.width <= DESIGN_BOX[0] + 1e-6 and sc.height <= DESIGN_BOX[1] + 1e-6
+        assert sc == FAM.scene(item, mode)
+    sel = FAM.scene(item, "select")
+    assert sel.response.kind == "choose"
+    assert [s.key for s in sel.slots] == [f"choice:{k}" for k in range(1, n_choices + 1)]
+    # the choices stand to the right of the matrix
+    right_of_matrix = max(b[2] for b in _boxes(sel, "panel") + _boxes(sel, "gap"))
+    assert all(s.bbox()[0] > right_of_matrix for s in sel.slots)
+
+
+@pytest.mark.parametrize("n_choices", [2, 4, 6, 8, 9, 12])
+def test_choices_are_drawn_at_the_matrix_scale_with_badges_outside_their_frames(n_choices):
+    for seed in range(6):
+        item = make({"n_rules": 3, "max_count": 6}, seed=seed, n_choices=n_choices)
+        sc = FAM.scene(item, "select")
+        panels, frames = _boxes(sc, "panel"), _boxes(sc, "frame")
+        assert len(panels) == 8 and len(frames) == n_choices
+        sides = {round(b[2] - b[0], 6) for b in panels + frames + _boxes(sc, "gap")}
+        sides |= {round(b[3] - b[1], 6) for b in panels + frames}
+        assert len(sides) == 1
+        # a matrix panel and the same panel as a choice draw the same objects, to the unit
+        for r in range(3):
+            for c in range(3):
+                p = item.stimulus["panels"][r][c]
+                if p is None:
+                    continue
+                box = panels[3 * r + c - (1 if 3 * r + c > 8 else 0)]
+                assert _same(_objects(sc, box), _objects(FAM.answer_scene(item, "select", p)))
+        badges = sc.of_role("badge")
+        assert [b.text for b in badges] == [str(k) for k in range(1, n_choices + 1)]
+        for k, (badge, slot) in enumerate(zip(badges, sc.slots, strict=True), start=1):
+            b, s = badge.bbox(), slot.bbox()
+            for f in frames:  # outside every frame ...
+                assert b[2] <= f[0] or b[0] >= f[2] or b[3] <= f[1] or b[1] >= f[3]
+            # ... and next to its own: at its top-left corner
+            assert 0 <= s[0] - b[2] <= 12 and abs(b[3] - s[3]) <= 2
+            assert _same(_objects(sc, s), _objects(FAM.answer_scene(item, "select", k)))
+
+
+def test_no_two_choices_draw_alike_and_every_value_draws_differently():
+    for seed in range(40):
+        for scheme in ("one-off", "balanced"):
+            item = make({"n_rules": 2, "max_count": 6}, seed=seed, scheme=scheme)
+            sc = FAM.scene(item, "select")
+            drawn = [tuple(_objects(sc, s.bbox())) for s in sc.slots]
+            assert all(drawn) and len(set(drawn)) == len(drawn)
+    item = make({"max_count": 6}, seed=3)
+    for attr in ATTRIBUTES:
+        values = LEVELS[attr]
+        pictures = {
+            v: tuple(_objects(FAM.answer_scene(item, "generate", {**item.answer, attr: v})))
+            for v in values
+        }
+        assert len(set(pictures.values())) == len(values), attr
+
+
+def test_generate_builds_the_missing_panel_at_its_own_scale():
+    for seed in range(10):
+        item = make({"max_count": 6 if seed % 2 else 3}, seed=seed, modes=("generate",))
+        sc = FAM.scene(item, "generate")
+        assert sc.response.kind == "build" and not sc.slots
+        attrs = sc.response.options["attributes"]
+        assert list(attrs) == list(ATTRIBUTES)
+        assert attrs["count"] == list(range(1, item.params["max_count"] + 1))
+        (gap,) = _boxes(sc, "gap")
+        assert sc.answer_box == pytest.approx(gap)
+        x0, y0, x1, y1 = sc.answer_box
+        rng = np.random.default_rng(seed)
+        for _ in range(25):  # any complete panel, not only the answer
+            panel = {a: list(v)[int(rng.integers(len(v)))] for a, v in attrs.items()}
+            ans = FAM.answer_scene(item, "generate", panel)
+            assert (ans.width, ans.height) == pytest.approx((x1 - x0, y1 - y0))
+            assert scene_problems(ans, min_object=MIN_OBJECT) == []
+            assert len(ans.of_role("object")) == panel["count"]
+        # a panel of the matrix drawn on its own equals the matrix's panel
+        p = item.stimulus["panels"][0][1]
+        box = _boxes(sc, "panel")[1]
+        assert _same(_objects(sc, box), _objects(FAM.answer_scene(item, "generate", p)))
+    with pytest.raises(ResponseError, match="response.turn"):
+        FAM.answer_scene(item, "generate", {a: v for a, v in item.answer.items() if a != "turn"})
+
+
+def test_every_size_and_count_stays_above_the_object_floor():
+    # the smallest panels (eight to twelve choices) with the tallest groups
+    item = make({"max_count": 6}, seed=1, n_choices=12)
+    for shape, size, count, turn, position in itertools.product(
+        LEVELS["shape"], LEVELS["size"], LEVELS["count"], LEVELS["turn"], LEVELS["position"]
+    ):
+        panel = {**item.answer, "shape": shape, "size": size, "count": count}
+        panel.update(turn=turn, position=position)
+        ans = FAM.answer_scene(item, "select", panel)
+        assert scene_problems(ans, min_object=MIN_OBJECT) == [], panel
+        frame = ans.of_role("panel")[0].bbox()
+        for b in _boxes(ans, "object"):  # inside the panel, apart from each other
+            assert frame[0] < b[0] and b[2] < frame[2] and frame[1] < b[1] and b[3] < frame[3]
+
+
+def test_too_many_choices_are_refused_by_name():
+    spec = parse_spec(
+        {"seed": 1, "families": {"matrices": {"n": 1, "modes": ["select"], "n_choices": 16}}}
+    )
+    with pytest.raises(GenerationError, match="at most 12 fit beside the matrix"):
+        generate_bank(spec)
+
+
+def _lightness(colour):
+    # reference: CIE 1976 L* from relative luminance Y (white Y = 1; from memory)
+    y = M.contrast_ratio(colour, "#000000") * 0.05 - 0.05
+    return 116 * y ** (1 / 3) - 16 if y > (6 / 29) ** 3 else y * (29 / 3) ** 3
+
+
+def test_edges_and_shades_contrast():
+    # reference: WCAG 2.x contrast ratio; black on white is 21:1 and #777777 on white about
+    # 4.48:1 (from memory)
+    assert M.contrast_ratio("#000000", "#ffffff") == pytest.approx(21.0)
+    assert M.contrast_ratio("#777777", "#ffffff") == pytest.approx(4.48, abs=0.01)
+    for seed in range(5):
+        item = make({"max_count": 6}, seed=seed)
+        for mode in ("generate", "select"):
+            sc = FAM.scene(item, mode)
+            backs = {el.fill for el in sc.of_role("panel") + sc.of_role("frame")}
+            for obj in sc.of_role("object"):
+                # WCAG 2.x non-text contrast (SC 1.4.11): at least 3:1 against the panel
+                assert all(M.contrast_ratio(obj.edge, b) >= 3.0 for b in backs)
+            for el in sc.of_role("panel") + sc.of_role("frame") + sc.of_role("gap"):
+                assert M.contrast_ratio(el.edge, sc.background) >= 3.0
+            for t in sc.of_role("badge") + sc.of_role("mark"):
+                # WCAG 2.x text contrast (SC 1.4.3): at least 4.5:1
+                assert M.contrast_ratio(t.colour, sc.background) >= 4.5
+                assert all(M.contrast_ratio(t.colour, el.fill) >= 4.5 for el in sc.of_role("gap"))
+    # neighbouring shades differ by at least 15 in L*, so a one-level change is seen
+    greys = [M.SHADE_FILL[s] for s in LEVELS["shade"]]
+    steps = [_lightness(a) - _lightness(b) for a, b in zip(greys, greys[1:], strict=False)]
+    assert min(steps) >= 15, steps
+
+
+def test_structured_view_keeps_values_and_no_drawing_hints():
+    item = make(seed=3)
+    view = render(item, "structured", "select")
+    assert "drawing" not in view
+    assert list(view["attributes"]) == list(ATTRIBUTES)
+    assert view["attributes"]["turn"] == ["up", "right", "down", "left"]
+    text = render(item, "text", "select")
+    assert "turn: up|right|down|left" in text and "drop|crescent|house|tee|ring" in text
+    for old in ("triangle", "hexagon", "progression", "distribution", "constant"):
+        assert old not in text and old not in canonical_json(view)
+    assert "draw" not in type(FAM).__dict__  # pictures paint the scene
+
+
+def test_conformance():
+    check_family(FAM, n=6)
+
+
+# -- version 1 banks -------------------------------------------------------------------------------
+V1_BANK = Path(__file__).parent / "data" / "matrices_v1"  # written by family version 1 (five
+# attributes, polygon shapes, constant/progression/distribution rules) before version 2 existed
+
+
+def test_version_1_banks_load_score_classify_and_draw():
+    bank = load_bank(V1_BANK)  # validates every item
+    assert bank.hash == json.loads((V1_BANK / "bank.json").read_text())["bank_hash"]
+    rules_seen = set()
+    for item in bank:
+        assert item.family_version == "1" and "turn" not in item.answer
+        assert item.answer["shape"] in ("triangle", "square", "pentagon", "hexagon", "circle")
+        rules_seen |= set(item.stimulus["rules"].values())
+        assert FAM.check(item) == []
+        assert FAM.score(item, item.answer, "generate").correct
+        assert FAM.score(item, dict(item.answer), "generate").label == "intended"
+        assert FAM.score(item, item.answer_choice, "select").correct
+        for k in range(1, len(item.choices) + 1):
+            if k != item.answer_choice:
+                assert FAM.score(item, k, "select").error_type in FAM.error_types
+        wrong = {**item.answer, "shape": "drop"}  # a version 2 value is not a version 1 value
+        with pytest.raises(ResponseError, match="triangle"):
+            FAM.score(item, wrong, "generate")
+        for mode in ("generate", "select"):
+            resp, etype = FAM.sample_error(item, mode, np.random.default_rng(1))
+            assert FAM.score(item, resp, mode).error_type == etype != "wrong-turn"
+            sc = FAM.scene(item, mode)
+            assert scene_problems(sc, min_object=MIN_OBJECT) == []
+            assert "turn" not in render(item, "structured", mode)["attributes"]
+            assert "turn" not in render(item, "text", mode)
+        # old shapes keep their old outlines: a square has four corners, a hexagon six
+        for shape, corners in (("triangle", 3), ("square", 4), ("hexagon", 6)):
+            ans = FAM.answer_scene(item, "generate", {**item.answer, "shape": shape})
+            assert {len(o.points) for o in ans.of_role("object")} == {corners}
+        assert FAM.parse_text(item, _v1_line(item.answer), "generate") == item.answer
+        assert render_picture(item, "select").startswith(b"\x89PNG")
+    assert {"constant", "distribution", "sum", "difference"} <= rules_seen
+    assert any(r.startswith("progression") for r in rules_seen)
+    # an item is not rewritten by reading it: the record keeps its version 1 rule names
+    item = bank.items[0]
+    assert FAM.broken_rules(item, item.answer) == []
+    assert bank.items[0].to_json() == load_bank(V1_BANK).items[0].to_json()
+    with pytest.raises(Rejected, match="family version 1"):
+        FAM.vary(item, "swap-rows", np.random.default_rng(0))
+
+
+def _v1_line(p):
+    return " ".join(f"{a}={p[a]}" for a in ("shape", "size", "shade", "count", "position"))

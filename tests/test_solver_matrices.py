@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from twofold.experiments.solvers import builtin_solvers, make_builtin
+from twofold.study import load_bank
 from twofold.study.exceptions import InputError
 from twofold.study.families import Rejected, get_family
 from twofold.study.generate import item_rng
@@ -107,3 +110,15 @@ def test_bad_options_are_named():
         make_builtin("matrices-ref", budget=-1)
     with pytest.raises(InputError, match="seed"):
         make_builtin("matrices-ref", seed="x")
+
+
+def test_version_1_items_are_solved():
+    # a bank written by family version 1 (five attributes, its own shapes and rule names)
+    bank = load_bank(Path(__file__).parent / "data" / "matrices_v1")
+    assert {it.family_version for it in bank} == {"1"}
+    for mode in ("generate", "select"):
+        acc, effort = accuracy(bank.items, mode, budget=40)
+        assert acc >= 0.9 and effort > 5
+        # with too small a budget the version 1 items, like version 2 items, are missed
+        tiny, _ = accuracy(bank.items, mode, budget=4)
+        assert tiny < acc - 0.3

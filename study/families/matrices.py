@@ -1200,7 +1200,7 @@ class MatricesFamily(Family):
             "shows one or more copies of one shape. A panel is written as its attributes:",
             *(f"  {a}: {_levels_text(inv, a)} ({self._NOTES[a]})" for a in inv.attributes),
             "Along every row, each attribute obeys a rule of its own (for example: it stays "
-            "put, it moves up or down by even amounts, three values take turns, or the third "
+            "put, it moves up or down by even amounts, three values appear once each, or the third "
             "number comes from adding or subtracting the first two).",
             "",
         ]
