@@ -697,3 +697,296 @@ def test_bank_round_trip(tmp_path):
         assert FAM.check(it) == []
     report = audit_bank(again)
     assert report["uniqueness"] == [] and report["duplicates"]["same_content"] == []
+
+
+# -- scenes -------------------------------------------------------------------------------------
+def _panels_and_contents(scene):
+    """(panel bbox, [elements drawn in it]) in drawing order."""
+    out = []
+    for el in scene.elements:
+        if el.role == "panel":
+            out.append((el.bbox(), []))
+        elif el.role in ("object", "edge") and out:
+            out[-1][1].append(el)
+    return out
+
+
+def _inside(inner, outer, slack=0.0):
+    return (
+        inner[0] >= outer[0] - slack
+        and inner[1] >= outer[1] - slack
+        and inner[2] <= outer[2] + slack
+        and inner[3] <= outer[3] + slack
+    )
+
+
+SCENE_PARAMS = st.fixed_dictionaries(
+    {
+        "length": st.integers(1, 5),
+        "distractors": st.integers(0, 4),
+        "objects": st.integers(2, 6),
+        "per_set": st.integers(2, 12),
+        "n_test": st.integers(2, 10),
+    }
+)
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(params=SCENE_PARAMS, seed=st.integers(0, 2**32))
+def test_scenes_fit_and_objects_stay_inside_their_panels(params, seed):
+    from twofold.study.scene import scene_problems
+
+    item = make(params, seed)
+    st_ = item.stimulus
+    for mode in ("select", "generate"):
+        sc = FAM.scene(item, mode)
+        assert scene_problems(sc) == []
+        assert sc == FAM.scene(item, mode)
+        panels = _panels_and_contents(sc)
+        n_test = len(st_["test"]) if mode == "select" else 0
+        assert len(panels) == len(st_["sets"]["A"]) + len(st_["sets"]["B"]) + n_test
+        n_objects = sum(len(p) for p in [*st_["sets"]["A"], *st_["sets"]["B"]])
+        n_objects += sum(len(p) for p in st_["test"]) if n_test else 0
+        assert len(sc.of_role("object")) == n_objects
+        sides = {round(b[2] - b[0], 6) for b, _ in panels}
+        assert len(sides) == 1  # one panel size: sizes compare across panels
+        for box, contents in panels:
+            assert round(box[2] - box[0], 6) == round(box[3] - box[1], 6)
+            for el in contents:  # tilted objects and dashed rings included
+                assert _inside(el.bbox(), box), (el.role, el.bbox(), box)
+
+
+def test_select_scene_labels_test_panels_and_generate_scene_shows_only_the_sets():
+    item = make({"per_set": 5, "n_test": 4}, 4)
+    sel = FAM.scene(item, "select")
+    assert sel.response.kind == "label"
+    assert sel.response.options == {"labels": ["A", "B"], "rule": False}
+    assert [s.key for s in sel.slots] == [f"test:{k}" for k in range(1, 5)]
+    bands = {el.text: el.bbox() for el in sel.of_role("band-label")}
+    assert set(bands) == {"Set A", "Set B", "Test\nA or B?"}
+    assert bands["Set A"][1] > bands["Set B"][3]  # set A above set B
+    assert bands["Set B"][1] > bands["Test\nA or B?"][3]  # test panels below
+    set_panels = [b for b, _ in _panels_and_contents(sel)][:10]
+    for k in range(1, 5):  # a free box for the chosen label under each test panel, in its slot
+        slot = sel.slot(f"test:{k}").bbox()
+        assert slot[3] < min(b[1] for b in set_panels)
+    assert len(sel.of_role("label-box")) == 4
+    gen = FAM.scene(item, "generate")
+    assert gen.response.kind == "type" and gen.slots == () and gen.answer_box is not None
+    assert {el.text for el in gen.of_role("band-label")} == {"Set A", "Set B"}
+    assert len(_panels_and_contents(gen)) == 10
+    words = " ".join(el.text for el in [*sel.elements, *gen.elements] if hasattr(el, "text"))
+    assert "left" not in words.lower() and "right" not in words.lower()
+    assert "Type the rule" in words.replace("\n", " ")
+
+
+def test_shades_stay_distinct_and_dashed_edges_contrast_with_what_is_behind():
+    from twofold.study.families.contrast.scene import PANEL, SHADES, contrast_ratio
+
+    # our own threshold for neighbouring steps of the ramp
+    assert contrast_ratio(SHADES["light"], SHADES["mid"]) >= 2.0
+    assert contrast_ratio(SHADES["mid"], SHADES["dark"]) >= 2.0
+    # reference: SOURCES.md#wcag-contrast - WCAG 2.x contrast ratio (from memory)
+    assert contrast_ratio("#000000", "#ffffff") == pytest.approx(21.0)
+    seen_nested = 0
+    for seed in range(6):
+        item = make({"objects": 5, "distractors": 4}, seed)
+        for _box, contents in _panels_and_contents(FAM.scene(item, "select")):
+            shapes = [el for el in contents if el.role == "object"]
+            for k, el in enumerate(contents):
+                if el.role != "edge":
+                    continue
+                own = contents[k - 1]  # an object's dashes follow its fill
+                hosts = [s for s in shapes if s is not own and _inside(own.bbox(), s.bbox())]
+                behind = hosts[0].fill if hosts else PANEL
+                seen_nested += bool(hosts)
+                # reference: WCAG 2.x SC 1.4.11 non-text contrast, 3:1 (from memory)
+                assert contrast_ratio(el.colour, behind) >= 3.0
+                assert len(el.points) >= 8 and el.segments  # real dashes, several of them
+    assert seen_nested > 0
+
+
+def test_one_tilt_and_sizes_that_do_not_depend_on_it():
+    import math
+
+    from twofold.study.families.contrast.scene import TILT_DEGREES, object_outline
+
+    o = {"shape": "square", "size": "large", "tilt": "tilted"}
+    pts = object_outline(o, 0.0, 0.0, 10.0)
+    (x0, y0), (x1, y1) = pts[0], pts[1]
+    assert math.degrees(math.atan2(y1 - y0, x1 - x0)) == pytest.approx(-TILT_DEGREES)
+    for shape in ("square", "triangle", "dome", "cross"):
+        for tilt in ("upright", "tilted"):
+            radius = max(
+                math.hypot(x, y)
+                for x, y in object_outline({**o, "shape": shape, "tilt": tilt}, 0, 0, 10)
+            )
+            assert radius == pytest.approx(10.0, abs=1e-3)
+
+
+def test_answer_scene_shows_any_labels_under_the_test_panels():
+    item = make({"n_test": 4}, 2)
+    for labels in (item.answer["labels"], "ABBA", ["B", "B", "B", "B"]):
+        sc = FAM.answer_scene(item, "select", labels)
+        texts = [el.text for el in sc.of_role("answer")]
+        want = "".join(labels)
+        assert texts == [f"T{k + 1}: {want[k]}" for k in range(4)]
+        assert len(_panels_and_contents(sc)) == 4
+    with pytest.raises(ResponseError):
+        FAM.answer_scene(item, "select", "ABC")
+    rule = FAM.answer_scene(item, "generate", item.answer)
+    assert item.answer["rule"] in rule.of_role("answer")[0].text
+
+
+def test_default_set_size_is_five():
+    assert FAM.default_params()["per_set"] == 5 and FAM.version == "2"
+    item = make(seed=1)
+    assert len(item.stimulus["sets"]["A"]) == len(item.stimulus["sets"]["B"]) == 5
+
+
+# an item written by version 1 (6 panels per set, the old layout), saved as generated
+V1_RECORD = json.loads(
+    """
+{
+ "accepted": [],
+ "answer": {
+  "labels": "ABAB",
+  "rule": "~#[upright]=1"
+ },
+ "choices": null,
+ "distractor_scheme": "per-panel",
+ "factors": {
+  "attribute": "count",
+  "distractors": 4,
+  "objects": 4,
+  "relational": false,
+  "rule_length": 3
+ },
+ "family": "contrast",
+ "family_version": "1",
+ "id": "con-2022598e7939",
+ "modes": [
+  "select",
+  "generate"
+ ],
+ "params": {
+  "attribute": "any",
+  "distractors": 4,
+  "kind": "any",
+  "length": 3,
+  "minimal": true,
+  "n_test": 4,
+  "objects": 4,
+  "per_set": 6
+ },
+ "seed": 21,
+ "stimulus": {
+  "sets": {
+   "A": [
+    [
+     "dome large light dashed upright bottom centre",
+     "cross small light solid upright top left",
+     "cross small dark solid tilted top centre"
+    ],
+    [
+     "cross small dark dashed tilted bottom centre",
+     "triangle medium mid dashed tilted bottom left",
+     "triangle medium light solid tilted top centre"
+    ],
+    [
+     "dome small dark dashed upright top right",
+     "square medium mid solid upright top centre"
+    ],
+    [
+     "dome medium dark dashed upright middle centre",
+     "cross large mid dashed upright bottom left"
+    ],
+    [
+     "dome large dark solid upright middle right",
+     "triangle large dark dashed upright bottom left"
+    ],
+    [
+     "cross large light solid upright bottom right",
+     "dome small mid dashed upright top left",
+     "dome medium dark dashed tilted middle centre"
+    ]
+   ],
+   "B": [
+    [
+     "cross medium mid solid tilted middle right",
+     "square large dark solid upright middle left"
+    ],
+    [
+     "cross medium dark dashed tilted bottom right",
+     "triangle small mid dashed upright bottom right in0"
+    ],
+    [
+     "triangle large mid dashed upright bottom left",
+     "triangle medium dark solid tilted middle left",
+     "dome small light dashed tilted top centre"
+    ],
+    [
+     "square large light dashed upright bottom left",
+     "triangle large dark dashed tilted top centre"
+    ],
+    [
+     "square small mid dashed tilted top right",
+     "square medium mid solid upright bottom left"
+    ],
+    [
+     "cross small mid solid upright bottom right",
+     "cross large dark solid tilted top left"
+    ]
+   ]
+  },
+  "test": [
+   [
+    "dome medium light dashed tilted top right",
+    "square medium light solid tilted middle left",
+    "cross small mid dashed tilted top centre",
+    "square small mid dashed tilted middle centre"
+   ],
+   [
+    "triangle small mid dashed upright top centre",
+    "triangle small dark solid tilted bottom right"
+   ],
+   [
+    "square large mid dashed tilted bottom right",
+    "cross medium dark solid upright top left",
+    "cross large dark solid upright middle centre"
+   ],
+   [
+    "triangle small light dashed upright bottom right",
+    "triangle medium dark solid tilted top right",
+    "cross small light dashed tilted top right in1"
+   ]
+  ]
+ },
+ "variant_of": null,
+ "variant_operator": null
+}
+"""
+)
+
+
+def test_version_1_records_load_score_and_render(tmp_path):
+    from twofold.study.bank import Bank
+    from twofold.study.item import Item
+    from twofold.study.scene import scene_problems
+
+    item = Item.from_record(V1_RECORD)
+    assert item.id == V1_RECORD["id"] and item.family_version == "1"
+    assert len(item.stimulus["sets"]["A"]) == 6
+    FAM.validate_item(item, deep=True)
+    assert FAM.score(item, "ABAB", "select").correct
+    assert FAM.score(item, "BABA", "select").error_type == "reversed-sets"
+    assert FAM.score(item, "~#[upright]=1", "generate").correct
+    for mode in item.modes:
+        sc = FAM.scene(item, mode)
+        assert scene_problems(sc) == []
+        assert len(_panels_and_contents(sc)) == 12 + (4 if mode == "select" else 0)
+        assert render_picture(item, mode).startswith(b"\x89PNG")
+    bank = Bank.from_items([item], seed=1, created="2026-01-01T00:00:00+00:00")
+    write_bank(bank, tmp_path / "old")
+    loaded = load_bank(tmp_path / "old")
+    assert loaded.hash == bank.hash and next(iter(loaded)).to_record() == V1_RECORD
