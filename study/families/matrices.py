@@ -55,6 +55,7 @@ from typing import Any
 import numpy as np
 
 from ..checks import fail
+from ..colour import contrast_ratio
 from ..exceptions import ItemError, ResponseError
 from ..item import Item, canonical_json
 from ..scene import (
@@ -334,23 +335,6 @@ def _norm_value(inv: Inventory, attr: str, value: Any) -> Any:
             v = "middle"
         return v if v in inv.index[attr] else None
     return None
-
-
-# -- colour ----------------------------------------------------------------------------------
-def _relative_luminance(colour: str) -> float:
-    # reference: WCAG 2.x definition of relative luminance (sRGB, 0.03928 threshold; from memory)
-    def lin(c: float) -> float:
-        return c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4
-
-    h = colour.lstrip("#")
-    r, g, b = (lin(int(h[k : k + 2], 16) / 255) for k in (0, 2, 4))
-    return 0.2126 * r + 0.7152 * g + 0.0722 * b
-
-
-def contrast_ratio(a: str, b: str) -> float:
-    """WCAG 2.x contrast ratio of two ``#rrggbb`` colours (1 to 21)."""
-    la, lb = _relative_luminance(a), _relative_luminance(b)
-    return (max(la, lb) + 0.05) / (min(la, lb) + 0.05)
 
 
 # -- outlines --------------------------------------------------------------------------------
