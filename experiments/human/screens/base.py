@@ -84,6 +84,7 @@ class Screen:
         w, h = ctx.size
         self.w, self.h = w, h
         self.rows: list[float] = []
+        self.side = 0.0  # width of a control column right of the scene (px), set by prepare
         self.prepare()
         bottom = -h / 2 + MARGIN / 2
         self.help = (
@@ -92,7 +93,8 @@ class Screen:
         help_h = float(self.help.boundingBox[1]) if self.help is not None else 0.0
         self._rows_top = bottom + help_h + GAP + sum(self.rows) + GAP * len(self.rows)
         self.strip_top = self._rows_top + (GAP if self.rows else 0.0)
-        self.scene_box = (-w / 2 + MARGIN, self.strip_top, w / 2 - MARGIN, h / 2 - MARGIN)
+        right = w / 2 - MARGIN - (self.side + 2 * GAP if self.side else 0.0)
+        self.scene_box = (-w / 2 + MARGIN, self.strip_top, right, h / 2 - MARGIN)
         self.painter = ScenePainter(ctx, scene, self.scene_box, capture=False)
         static = list(self.build())
         static = self.painter.stims + static

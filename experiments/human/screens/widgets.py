@@ -255,9 +255,11 @@ class GridEditorView:
         *,
         mark: str = "#202020",
         line: str = "#7a7a7a",
+        marks: Sequence[str] = (),
     ):
         self.ctx, self.palette, self.hatches = ctx, list(palette), list(hatches)
         self.top_left, self.pitch, self.mark, self.line = top_left, pitch, mark, line
+        self.marks = list(marks)
         self.stims: list[Any] = []
         self.set(grid)
 
@@ -308,7 +310,10 @@ class GridEditorView:
     def _hatch(self) -> None:
         import numpy as np
 
-        xys, sizes, oris = [], [], []
+        xys: list[tuple[float, float]] = []
+        sizes: list[tuple[float, float]] = []
+        oris: list[float] = []
+        inks: list[list[float]] = []
         for r in range(self.rows):
             for c in range(self.cols):
                 idx = self.grid[r][c]
@@ -322,6 +327,7 @@ class GridEditorView:
                     xys.append(((ax + bx) / 2, (ay + by) / 2))
                     sizes.append((math.hypot(bx - ax, by - ay), max(1.2, self.pitch / 18)))
                     oris.append(-math.degrees(math.atan2(by - ay, bx - ax)))
+                    inks.append(self._rgb_of(self.mark_of(idx)))
         self.hatch = None
         if xys:
             self.hatch = self.ctx.visual.ElementArrayStim(
@@ -333,11 +339,15 @@ class GridEditorView:
                 oris=np.array(oris, dtype=float),
                 elementTex=np.ones((4, 4)),
                 elementMask=None,
-                colors=self._rgb_of(self.mark),
+                colors=np.array(inks, dtype=float),
                 colorSpace="rgb",
                 sfs=0,
                 interpolate=False,
             )
+
+    def mark_of(self, idx: int) -> str:
+        """The hatch colour of palette index ``idx``."""
+        return self.marks[idx] if idx < len(self.marks) else self.mark
 
     @staticmethod
     def _rgb_of(colour: str) -> list[float]:
@@ -432,3 +442,98 @@ class Keypad:
     @property
     def height(self) -> float:
         return self.n_rows * self.pitch - self.gap if self.n_rows else 0.0
+
+
+# -- the palette row ------------------------------------------------------------------------
+class PaletteRow:
+    """Colour swatches side by side (``colour:<index>``): each shows its colour, its hatch
+    pattern (as the grid cells show it) and its label in black or white, whichever contrasts
+    more with the swatch (WCAG 2.x ratio at least 4.5:1 for our palettes)."""
+
+    def __init__(
+        self,
+        ctx: Any,
+        palette: Sequence[str],
+        hatches: Sequence[str | None],
+        labels: Sequence[str],
+        marks: Sequence[str],
+        centre: tuple[float, float],
+        *,
+        swatch: tuple[float, float] = (46.0, 58.0),
+        gap: float = 8.0,
+        inks: Sequence[str] = (),
+    ):
+        import numpy as np
+
+        self.ctx, self.swatch = ctx, swatch
+        n = len(palette)
+        sw, sh = swatch
+        total = n * sw + (n - 1) * gap
+        x0 = centre[0] - total / 2
+        self.centres = [(x0 + sw / 2 + k * (sw + gap), centre[1]) for k in range(n)]
+        self.stims: list[Any] = []
+        self.labels: list[Any] = []
+        xys: list[tuple[float, float]] = []
+        sizes: list[tuple[float, float]] = []
+        oris: list[float] = []
+        cols: list[list[float]] = []
+        side = min(sw, sh * 0.5) - 6  # the hatch square at the top of the swatch
+        for k, (colour, (cx, cy)) in enumerate(zip(palette, self.centres, strict=True)):
+            self.stims.append(
+                ctx.visual.Rect(
+                    ctx.win,
+                    width=sw,
+                    height=sh,
+                    pos=(cx, cy),
+                    fillColor=colour,
+                    lineColor=PANEL_EDGE,
+                    lineWidth=2,
+                    units="pix",
+                )
+            )
+            pattern = hatches[k] if k < len(hatches) else None
+            if pattern:
+                mark = marks[k] if k < len(marks) else "#202020"
+                pts = hatch_segments(pattern, cx - side / 2, cy + sh / 2 - 3 - side, side)
+                for j in range(0, len(pts) - 1, 2):
+                    (ax, ay), (bx, by) = pts[j], pts[j + 1]
+                    xys.append(((ax + bx) / 2, (ay + by) / 2))
+                    sizes.append((math.hypot(bx - ax, by - ay), 2.0))
+                    oris.append(-math.degrees(math.atan2(by - ay, bx - ax)))
+                    c = mark.lstrip("#")
+                    cols.append([int(c[i : i + 2], 16) / 255.0 * 2 - 1 for i in (0, 2, 4)])
+            label = labels[k] if k < len(labels) else str(k)
+            ink = inks[k] if k < len(inks) else ink_for(colour)
+            if contrast_ratio(ink, colour) < 4.5:  # a palette helper that cannot be met
+                ink = ink_for(colour)
+            t = make_text(ctx, label, (cx, cy - sh / 4), height=20, color=ink, bold=True)
+            self.labels.append(t)
+            self.stims.append(t)
+        if xys:
+            self.stims.append(
+                ctx.visual.ElementArrayStim(
+                    ctx.win,
+                    units="pix",
+                    nElements=len(xys),
+                    xys=np.array(xys, dtype=float),
+                    sizes=np.array(sizes, dtype=float),
+                    oris=np.array(oris, dtype=float),
+                    elementTex=np.ones((4, 4)),
+                    elementMask=None,
+                    colors=np.array(cols, dtype=float),
+                    colorSpace="rgb",
+                    sfs=0,
+                    interpolate=False,
+                )
+            )
+
+    def box(self, k: int) -> Box:
+        (cx, cy), (sw, sh) = self.centres[k], self.swatch
+        return (cx - sw / 2, cy - sh / 2, cx + sw / 2, cy + sh / 2)
+
+    def at(self, p: Sequence[float]) -> int | None:
+        for k in range(len(self.centres)):
+            x0, y0, x1, y1 = self.box(k)
+            if x0 <= p[0] <= x1 and y0 <= p[1] <= y1:
+                return k
+        return None
