@@ -163,6 +163,7 @@ class _Page:
 
     def __init__(self, text: str, stims: list[Any], boxes: dict[str, Any], number: int, of: int):
         self.text, self.stims, self.boxes, self.number, self.of = text, stims, boxes, number, of
+        self.footer, self.letter = "", 0
 
     def draw(self) -> None:
         for s in self.stims:
@@ -445,7 +446,9 @@ class _Session:
                     stims.append(painter)
                     x0, y0, x1, y1 = painter.extent()
                     boxes["picture"] = [x0 + w / 2, h / 2 - y1, x1 + w / 2, h / 2 - y0]
-            out.append(_Page(chunk, stims, boxes, i + 1, n))
+            page = _Page(chunk, stims, boxes, i + 1, n)
+            page.footer, page.letter = foot, size
+            out.append(page)
         return out
 
     def picture(self, picture: tuple[Any, float], stim: Any, floor_y: float, size: float) -> Any:
@@ -501,10 +504,13 @@ class _Session:
             self.probe(
                 name,
                 onset,
-                text=page.text[:200],
+                text=page.text,
                 page=page.number,
                 pages=page.of,
                 boxes=page.boxes,
+                footer=page.footer,
+                words=len(page.text.split()),
+                letter=page.letter,
             )
             turn = 0
             while not turn:
@@ -1136,7 +1142,8 @@ class _Preview(_Session):
         name = "-".join(parts).replace("/", "_").replace(" ", "_") + ".png"
         img.save(self.out / name)
         self.win.flip()  # show it too (a real display watches the walk), clearing the buffer
-        row = {"file": name, "screen": screen, "block": None, "item": None, "trial": None}
+        row: dict[str, Any] = {"file": name, "screen": screen, "block": None, "item": None}
+        row["trial"] = None
         row.update({"page": 1, "pages": 1, "note": None})
         row.update(where)
         self.rows.append(row)
@@ -1149,7 +1156,12 @@ class _Preview(_Session):
             self.save(page.draw, screen, page=page.number, pages=page.of, **kw)
 
     def item_screen(
-        self, item: Any, block: Any, order: tuple[int, ...] | None, trial: int | None, note: str
+        self,
+        item: Any,
+        block: Any,
+        order: tuple[int, ...] | None,
+        trial: int | None,
+        note: str | None,
     ) -> None:
         screen = self.screen(item, block, order)
         cd = self.countdown(block.time_limit_s)
