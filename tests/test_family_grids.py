@@ -9,6 +9,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy import ndimage
+from twofold.experiments.solvers import make_builtin as make_solver
+from twofold.study import colour as C
 from twofold.study.bank import load_bank, write_bank
 from twofold.study.exceptions import ResponseError
 from twofold.study.families import Rejected, get_family
@@ -16,6 +18,8 @@ from twofold.study.families import grids as G
 from twofold.study.generate import generate_bank, item_rng, parse_spec
 from twofold.study.item import Item, canonical_json, validate_record
 from twofold.study.render import render, render_picture
+from twofold.study.scene import DESIGN_BOX, MIN_CELL, scene_problems
+from twofold.study.scene import Grid as SceneGrid
 
 FAM = get_family("grids")
 SETTINGS = settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -159,23 +163,23 @@ def test_deterministic_and_schema_valid(seed, depth):
 def test_answer_follows_the_program_and_item_is_valid(seed, depth):
     item = make(seed, depth=depth)
     program = item.stimulus["program"]
-    for pair in item.stimulus["train"]:
-        assert G.apply_program(arr(pair["input"]), program).tolist() == pair["output"]
-        assert pair["input"] != pair["output"]
-    answer = G.apply_program(arr(item.stimulus["test"]), program)
+    for pair in item.stimulus["examples"]:
+        assert G.apply_program(arr(pair["before"]), program).tolist() == pair["after"]
+        assert pair["before"] != pair["after"]
+    answer = G.apply_program(arr(item.stimulus["probe"]), program)
     assert answer.tolist() == item.answer
-    assert item.answer != item.stimulus["test"]
+    assert item.answer != item.stimulus["probe"]
     assert FAM.check(item) == []
     # no consistent program of depth <= 2 gives another test output
-    pairs = [(arr(p["input"]), arr(p["output"])) for p in item.stimulus["train"]]
-    for prog, out in G.search(pairs, arr(item.stimulus["test"]), max_depth=min(depth, 2)):
+    pairs = [(arr(p["before"]), arr(p["after"])) for p in item.stimulus["examples"]]
+    for prog, out in G.search(pairs, arr(item.stimulus["probe"]), max_depth=min(depth, 2)):
         assert out.tolist() == item.answer
         assert len(prog) == depth
 
 
 def test_check_reports_a_tampered_item():
     item = make(3)
-    bad = item.replace(prefix="grd", answer=item.stimulus["test"])
+    bad = item.replace(prefix="grd", answer=item.stimulus["probe"])
     assert "the answer does not follow the program" in FAM.check(bad)
 
 
@@ -209,7 +213,7 @@ def test_factors_follow_parameters(seed, resize, kinds):
     used = {G.OPS[op[0]][0] for op in item.stimulus["program"]}
     assert used <= set(kinds)
     assert item.factors["size_change"] is (resize == "different")
-    assert item.factors["n_demos"] == len(item.stimulus["train"])
+    assert item.factors["n_demos"] == len(item.stimulus["examples"])
 
 
 def test_bad_parameter_is_named():
@@ -237,12 +241,12 @@ def test_variants_keep_structure(seed, operator):
     assert var.factors["depth"] == item.factors["depth"]
     assert var.factors["n_demos"] == item.factors["n_demos"]
     names = [op[0] for op in var.stimulus["program"]]
-    if operator != "rotate_flip":
+    if operator != "turn-or-mirror":
         assert names == [op[0] for op in item.stimulus["program"]]
     else:
         kinds = [G.OPS[n][0] for n in names]
         assert kinds == [G.OPS[op[0]][0] for op in item.stimulus["program"]]
-    if operator == "permute_colours":
+    if operator == "permute-colours":
         # the layout of content is unchanged, only colours are relabelled
         assert (arr(var.answer) != 0).tolist() == (arr(item.answer) != 0).tolist() or any(
             op[0] in ("recolour", "count_row") for op in item.stimulus["program"]
@@ -273,17 +277,17 @@ def format_text(grid):
 
 def test_error_types_by_comparison():
     item = make(8, depth=2)
-    test = arr(item.stimulus["test"])
+    test = arr(item.stimulus["probe"])
     answer = arr(item.answer)
     program = item.stimulus["program"]
-    assert FAM.score(item, test.tolist(), "generate").error_type == "identity_copy"
+    assert FAM.score(item, test.tolist(), "generate").error_type == "copy-of-probe"
     first = G.apply_program(test, program[:1])
     if not np.array_equal(first, answer) and not (
         first.shape == test.shape and np.array_equal(first, test)
     ):
-        assert FAM.score(item, first.tolist(), "generate").error_type == "partial"
+        assert FAM.score(item, first.tolist(), "generate").error_type == "part-of-rule"
     bigger = np.pad(answer, ((0, 1), (0, 0)))
-    assert FAM.score(item, bigger.tolist(), "generate").error_type == "wrong_size"
+    assert FAM.score(item, bigger.tolist(), "generate").error_type == "wrong-size"
 
 
 def test_wrong_colours_and_content():
@@ -291,17 +295,17 @@ def test_wrong_colours_and_content():
     answer = arr(item.answer)
     c = int(answer[answer != 0][0])
     recoloured = np.where(answer == c, c % 9 + 1, answer)
-    if np.array_equal(recoloured, arr(item.stimulus["test"])):
+    if np.array_equal(recoloured, arr(item.stimulus["probe"])):
         pytest.skip("recolouring happened to give the test input")
     assert FAM.score(item, recoloured.tolist(), "generate").error_type in (
-        "wrong_colours",
-        "partial",
+        "wrong-colours",
+        "part-of-rule",
     )
     one = answer.copy()
     zeros = np.argwhere(answer == 0)
     one[tuple(zeros[0])] = 9
     et = FAM.score(item, one.tolist(), "generate").error_type
-    assert et == "wrong_content"
+    assert et == "wrong-cells"
 
 
 def test_malformed_response_is_named():
@@ -332,7 +336,7 @@ def test_parse_text_reads_messy_replies(seed, wrap):
     g = item.answer
     text = wrap.format(
         g=G.format_grid(g),
-        t=G.format_grid(item.stimulus["test"]),
+        t=G.format_grid(item.stimulus["probe"]),
         sp="\n".join(" ".join(str(v) for v in row) for row in g),
         js=json.dumps(g),
         pipes="\n".join("| " + " | ".join(str(v) for v in row) + " |" for row in g),
@@ -358,24 +362,19 @@ def test_views_deterministic_and_answer_free(seed, mode):
     )
     text = render(item, "text", mode)
     assert text == render(item, "text", mode) == render(other, "text", mode)
-    assert "0 is the background" in text
+    assert "0 is an empty cell" in text
     view = FAM.render_structured(item, mode)
     assert canonical_json(view) == canonical_json(FAM.render_structured(other, mode))
     assert "program" not in canonical_json(view) and "answer" not in view
-    assert view["test_input"] == item.stimulus["test"]
+    assert view["probe"] == item.stimulus["probe"]
+    assert [p["before"] for p in view["examples"]] == [
+        p["before"] for p in item.stimulus["examples"]
+    ]
     if mode == "select":
         assert view["choices"] == list(item.choices)
         assert "Choice 1:" in text
     png = render_picture(item, mode)
     assert png.startswith(b"\x89PNG") and png == render_picture(other, mode)
-
-
-def test_digit_labels_change_the_picture(monkeypatch):
-    item = make(5)
-    plain = render_picture(item, "generate", fmt="svg")
-    monkeypatch.setattr(G.drawing, "DIGIT_LABELS", True)
-    labelled = render_picture(item, "generate", fmt="svg")
-    assert plain != labelled
 
 
 def test_palette_is_ten_distinct_colours():
@@ -400,7 +399,7 @@ def test_bank_round_trip(tmp_path):
                     "n": 6,
                     "modes": ["generate", "select"],
                     "params": {"depth": [1, 2]},
-                    "variants": {"operators": ["permute_colours", "resize_canvas"]},
+                    "variants": {"operators": ["permute-colours", "grow-canvas"]},
                 }
             },
         }
@@ -443,3 +442,259 @@ def test_select_choices_do_not_give_the_answer_away():
     (row,) = report["shortcuts"]
     assert not row["flagged"]
     assert row["majority_accuracy"] < 0.32 and row["centroid_accuracy"] < 0.32
+
+
+# -- scenes ---------------------------------------------------------------------------------------
+def _grids_of(sc):
+    return [e for e in sc.elements if isinstance(e, SceneGrid)]
+
+
+@pytest.mark.parametrize("mode", ["generate", "select"])
+def test_scenes_are_legible_with_one_cell_size(mode):
+    seen = 0
+    for seed in range(24):
+        item = make(900 + seed, modes=(mode,), demos=2 + seed % 3, size=4 + seed % 9)
+        sc = FAM.scene(item, mode)
+        assert scene_problems(sc) == [], (item.id, scene_problems(sc))
+        cells = {g.cell for g in _grids_of(sc)}
+        assert len(cells) == 1 and min(cells) >= MIN_CELL
+        st = item.stimulus
+        grids = [st["probe"], item.answer, *(item.choices or ())]
+        grids += [g for p in st["examples"] for g in (p["before"], p["after"])]
+        assert max(max(len(g), len(g[0])) for g in grids) <= G.SIDE_CAP
+        # every example, the probe and (select) every choice is drawn, nothing else
+        n = 2 * len(st["examples"]) + 1 + len(item.choices or ())
+        assert len(_grids_of(sc)) == n
+        assert item.answer not in [[list(r) for r in g.cells] for g in _grids_of(sc)] or (
+            mode == "select"
+        )
+        seen += 1
+    assert seen == 24
+
+
+def test_size_cap_follows_from_the_design_box():
+    # 112 + 36 N <= 560 (height) and 160 + 60 N <= 960 (choices row): N = 12 (see grids.scene)
+    assert G.SIDE_CAP == 12 == min((560 - 112) // 36, (960 - 160) // 60)
+    assert G.side_cap(4, 4) == G.SIDE_CAP
+    assert G.side_cap(4, 8) < G.SIDE_CAP  # more choices in the row leave less room per grid
+    # the cap binds: a 13-wide layout does not fit at the smallest legible cell
+    from twofold.study.families.grids.scene import _Plan
+
+    s = (13, 13)
+    w, h = _Plan([(s, s)] * 4, s, None, [s] * 4).extent(MIN_CELL)
+    assert w > DESIGN_BOX[0] or h > DESIGN_BOX[1]
+    with pytest.raises(ValueError, match="size"):
+        make(1, size=13)
+
+
+def test_generator_respects_a_tighter_cap_with_many_choices():
+    cap = G.side_cap(4, 8)
+    p = FAM.default_params() | {"demos": 4, "size": 12}
+    got = 0
+    for attempt in range(300):
+        s, rng = item_rng(77, "many-choices", attempt)
+        try:
+            item = FAM.generate(
+                p, rng, seed=s, modes=["select"], distractor_scheme="near-miss", n_choices=8
+            )
+        except Rejected:
+            continue
+        grids = [item.stimulus["probe"], *item.choices]
+        grids += [g for e in item.stimulus["examples"] for g in (e["before"], e["after"])]
+        assert max(max(len(g), len(g[0])) for g in grids) <= cap
+        assert scene_problems(FAM.scene(item, "select")) == []
+        got += 1
+        if got == 3:
+            break
+    assert got == 3
+
+
+def test_generate_scene_offers_a_paint_response_sized_for_the_cap():
+    item = make(31)
+    sc = FAM.scene(item, "generate")
+    assert sc.response.kind == "paint"
+    opt = sc.response.options
+    assert opt["start"] == item.stimulus["probe"]
+    assert opt["palette"] == list(G.PALETTE)
+    assert opt["hatches"][0] is None and all(opt["hatches"][1:])
+    assert len(set(opt["labels"])) == 10
+    cell = _grids_of(sc)[0].cell
+    assert opt["cell"] == cell and opt["max_size"] == [G.SIDE_CAP, G.SIDE_CAP]
+    x0, y0, x1, y1 = sc.answer_box
+    assert (x1 - x0, y1 - y0) == pytest.approx((G.SIDE_CAP * cell, G.SIDE_CAP * cell))
+    # the answer box lies right of the probe, not over it
+    probe = next(g for g in _grids_of(sc) if g.role == "probe")
+    assert probe.bbox()[2] < x0
+    # any complete grid paints at the item's cell size into a scene the size of the box
+    for grid in (item.answer, [[9, 0, 1]], [[v % 10 for v in range(12)]] * 12):
+        ans = FAM.answer_scene(item, "generate", grid)
+        assert (ans.width, ans.height) == pytest.approx((x1 - x0, y1 - y0))
+        (g,) = _grids_of(ans)
+        assert g.cell == cell and [list(r) for r in g.cells] == grid
+        assert scene_problems(ans) == []
+    with pytest.raises(ResponseError):
+        FAM.answer_scene(item, "generate", [[1, 2], [3]])
+
+
+def test_select_scene_slots_and_badges():
+    item = make(32, modes=("select",))
+    sc = FAM.scene(item, "select")
+    keys = [s.key for s in sc.slots]
+    assert keys == [f"choice:{k}" for k in range(1, len(item.choices) + 1)]
+    badges = sc.of_role("badge")
+    assert [b.text for b in badges] == [str(k) for k in range(1, len(item.choices) + 1)]
+    choices = [g for g in _grids_of(sc) if g.role == "choice"]
+    for slot, badge, grid, choice in zip(sc.slots, badges, choices, item.choices, strict=True):
+        sx0, sy0, sx1, sy1 = slot.bbox()
+        bx0, by0, bx1, by1 = badge.bbox()
+        assert by0 >= sy1 - 0.5  # the badge sits above the frame, outside it
+        gx0, gy0, gx1, gy1 = grid.bbox()
+        assert sx0 <= gx0 and gx1 <= sx1 and sy0 <= gy0 and gy1 <= sy1
+        assert [list(r) for r in grid.cells] == choice
+    k = item.answer_choice
+    ans = FAM.answer_scene(item, "select", k)
+    assert [list(r) for r in _grids_of(ans)[0].cells] == item.answer
+
+
+def test_hatches_and_inks_are_painted():
+    from matplotlib.figure import Figure
+    from twofold.study.render import paint_scene
+
+    item = make(33)
+    sc = FAM.scene(item, "generate")
+    drawn = paint_scene(sc, Figure(figsize=(9.6, 5.6)))
+    used = {v for g in _grids_of(sc) for row in g.cells for v in row} - {0}
+    assert used
+    line_colours = {d["colour"] for d in drawn if d["kind"] == "line"}
+    # each colour's hatch is drawn in its own ink (black or white, whichever reads on it)
+    assert {C.GRID_INKS[v] for v in used} <= line_colours
+    cells = [d for d in drawn if d["kind"] == "shape" and d.get("fill") in C.GRID_PALETTE]
+    assert cells
+
+
+def test_conformance():
+    from twofold.study.conformance import check_family
+
+    check_family(FAM, n=4)
+
+
+# -- version 1 items ------------------------------------------------------------------------------
+# A record written by version 1 of the family (git 462485e, seed 2026, depth 2, size 6, 2 demos).
+V1_RECORD = json.loads(
+    '{"id": "grd-8309dd9cc7d0", "family": "grids", "family_version": "1", "params": {"demos":'
+    ' 2, "depth": 2, "kinds": ["geometric", "colour", "object", "size"], "objects": 3, "resiz'
+    'e": "any", "size": 6}, "factors": {"depth": 2, "kinds": "colour+object", "n_demos": 2, "'
+    'n_objects": 2, "size": 6, "size_change": false}, "modes": ["generate", "select"], "stimu'
+    'lus": {"program": [["gravity", "right"], ["recolour", 3, 4]], "test": [[0, 0, 0, 0], [3,'
+    ' 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [5, 5, 0, 0]], "train": [{"input": '
+    '[[0, 0, 0], [0, 3, 0], [0, 0, 0], [0, 0, 0], [0, 3, 3], [0, 0, 0]], "output": [[0, 0, 0]'
+    ', [0, 0, 4], [0, 0, 0], [0, 0, 0], [0, 4, 4], [0, 0, 0]]}, {"input": [[0, 0, 0, 0, 0, 0]'
+    ", [3, 0, 0, 0, 0, 0], [0, 0, 0, 3, 3, 0], [0, 3, 0, 3, 3, 0], [0, 3, 0, 0, 0, 0], [0, 0,"
+    ' 0, 0, 0, 0]], "output": [[0, 0, 0, 0, 0, 0], [0, 0, 0, 0, 0, 4], [0, 0, 0, 0, 4, 4], [0'
+    ', 0, 0, 4, 4, 4], [0, 0, 0, 4, 0, 0], [0, 0, 0, 0, 0, 0]]}]}, "answer": [[0, 0, 0, 0], ['
+    '0, 0, 0, 4], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 5, 5]], "accepted": [], "c'
+    'hoices": [[[0, 0, 0, 0], [5, 5, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, '
+    "0, 0]], [[0, 0, 0, 0], [0, 0, 0, 2], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 5,"
+    " 5]], [[0, 0, 0, 0], [0, 0, 0, 4], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 5, 5"
+    "]], [[0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [0, 0, 0, 0], [4, 0, 0, 0], [5, 5, 0, 0]]"
+    '], "distractor_scheme": "near-miss", "variant_of": null, "variant_operator": null, "seed'
+    '": 4513359881998389325}'
+)
+
+
+def _hue_category(colour: str) -> str:
+    """A coarse hue category of ``#rrggbb`` (HSV hue bins; common practice naming)."""
+    import colorsys
+
+    h, s, v = colorsys.rgb_to_hsv(*C.hex_to_rgb(colour))
+    if s < 0.15:
+        return "neutral-light" if v > 0.9 else "neutral"
+    deg = h * 360
+    if deg < 15 or deg >= 345:
+        return "red"
+    if deg < 42:
+        return "brown" if v < 0.55 else "orange"
+    if deg < 70:
+        return "yellow"
+    if deg < 160:
+        return "green"
+    if deg < 195:
+        return "teal"
+    if deg < 250:
+        return "blue"
+    if deg < 295:
+        return "purple"
+    return "purple" if v < 0.6 else "pink"  # dark magentas read as purple, light ones as pink
+
+
+def test_v1_record_loads_unchanged_and_scores():
+    item = Item.from_record(V1_RECORD)
+    assert item.family_version == "1" and item.to_record() == V1_RECORD  # nothing rewritten
+    FAM.validate_item(item)
+    assert FAM.check(item) == []
+    st = V1_RECORD["stimulus"]
+    for mode in ("generate", "select"):
+        assert FAM.score(item, FAM.correct_response(item, mode), mode).correct
+    # wrong answers classify under the version 2 names
+    assert FAM.score(item, st["test"], "generate").error_type == "copy-of-probe"
+    first = G.apply_program(arr(st["test"]), st["program"][:1]).tolist()
+    assert FAM.score(item, first, "generate").error_type == "part-of-rule"
+    bigger = np.pad(arr(item.answer), ((0, 1), (0, 0))).tolist()
+    assert FAM.score(item, bigger, "generate").error_type == "wrong-size"
+    for k in range(1, len(item.choices) + 1):
+        if k != item.answer_choice:
+            assert FAM.score(item, k, "select").error_type in FAM.error_types
+    # every version 1 name has a version 2 counterpart of the family
+    for old, new in G.V1_NAMES.items():
+        assert new in FAM.error_types or new in FAM.variant_operators, old
+        assert "_" not in new
+
+
+def test_v1_record_renders_with_its_old_hues():
+    item = Item.from_record(V1_RECORD)
+    st = V1_RECORD["stimulus"]
+    text = FAM.render_text(item, "generate")
+    assert G.format_grid(st["test"]) in text and "Example 2, after:" in text
+    view = FAM.render_structured(item, "select")
+    assert view["probe"] == st["test"]
+    assert view["examples"][0] == {
+        "before": st["train"][0]["input"],
+        "after": st["train"][0]["output"],
+    }
+    solved = make_solver("grids-ref").solve(view, "select")
+    assert FAM.score(item, solved.answer, "select").correct
+    for mode in ("generate", "select"):
+        sc = FAM.scene(item, mode)
+        assert scene_problems(sc) == []
+        grids = _grids_of(sc)
+        probe = next(g for g in grids if g.role == "probe")
+        assert [list(r) for r in probe.cells] == st["test"]  # the old indices, unchanged
+        assert len({g.cell for g in grids}) == 1
+        for old, colour in enumerate(probe.palette):
+            assert colour == G.PALETTE[G.V1_TO_V2[old]]
+            assert _hue_category(colour) == _hue_category(G.V1_PALETTE[old]), old
+        assert probe.hatches[0] is None and all(probe.hatches[1:])
+        assert render_picture(item, mode).startswith(b"\x89PNG")
+    # the answer paints at the item's cell size in its old colours
+    ans = FAM.answer_scene(item, "generate", item.answer)
+    x0, y0, x1, y1 = FAM.scene(item, "generate").answer_box
+    assert (ans.width, ans.height) == pytest.approx((x1 - x0, y1 - y0))
+
+
+def test_new_palette_shares_no_hue_category_with_version_1():
+    cats_old = [_hue_category(c) for c in G.V1_PALETTE]
+    cats_new = [_hue_category(c) for c in G.PALETTE]
+    assert all(a != b for a, b in zip(cats_old, cats_new, strict=True)), (cats_old, cats_new)
+    # the mapping is a permutation that keeps each old colour's category
+    assert sorted(G.V1_TO_V2) == list(range(10))
+    assert [cats_new[j] for j in G.V1_TO_V2] == cats_old
+
+
+def test_variants_of_a_v1_item_and_old_operator_names():
+    item = Item.from_record(V1_RECORD)
+    _, rng = item_rng(5, "vary-v1")
+    var = FAM.vary(item, "permute_colours", rng)  # a version 1 name still works
+    assert var.family_version == FAM.version == "2"
+    assert var.variant_operator == "permute-colours"
+    assert "examples" in var.stimulus and "train" not in var.stimulus
+    assert FAM.check(var) == []

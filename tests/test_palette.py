@@ -140,15 +140,3 @@ def test_every_colour_has_a_hatch_label_and_readable_ink():
         assert ink in ("#000000", "#ffffff")
         # reference: SOURCES.md#wcag-contrast — 4.5:1 for normal text (common practice)
         assert C.contrast_ratio(colour, ink) >= 4.5, colour
-
-
-def test_palette_shares_no_hue_category_with_the_first_version():
-    # hue categories by index of the version 1 palette (study/families/grids, version 1)
-    old = ("white", "blue", "orange", "blue", "purple", "yellow", "teal", "grey", "brown", "pink")
-    new = (
-        "grey", "orange", "teal", "brown", "blue", "blue", "yellow", "pink", "purple", "white",
-    )  # fmt: skip
-    assert [C.GRID_NAMES[i] for i in range(10)][1:] == [
-        "orange", "teal", "brown", "sky", "navy", "yellow", "pink", "violet", "white",
-    ]  # fmt: skip
-    assert all(a != b for a, b in zip(old, new, strict=True))

@@ -54,7 +54,7 @@ SIDE_ARROW = 40.0  #: between the probe and the answer space
 PAD = 6.0  #: inside a choice frame, around the choice grid
 MAX_CELL = 28.0  #: largest cell size (small grids stop growing here)
 LABEL_SIZE = 18.0
-BADGE_SIZE = 20.0
+BADGE_SIZE = 18.0  #: its box (1.2 x size) fits the label band
 INK = "#1a1a1a"
 FRAME = "#4d4d4d"
 
@@ -232,8 +232,8 @@ def scene(item: Item, mode: str) -> Scene:
             fx = x_right + (k - 1) * (fw + GAP)
             els.append(Shape(rect(fx, y_grid - fh, fx + fw, y_grid), None, FRAME, 1.5, "frame"))
             els.append(
-                Text(fx + 2, low_top - LABEL / 2, str(k), BADGE_SIZE, INK, anchor="left",
-                     bold=True, role="badge")
+                Text(fx + 2, y_grid + 0.2, str(k), BADGE_SIZE, INK, anchor="left",
+                     valign="bottom", bold=True, role="badge")
             )  # fmt: skip
             s = _shape(choice)
             gx = fx + fw / 2 - s[1] * c / 2
