@@ -44,9 +44,9 @@ logging.console.setLevel(logging.ERROR)
 from twofold.study import generate_bank, parse_spec, render
 from twofold.experiments.human.screens import Ctx, make_screen
 spec = {"seed": 2, "families": {"grids": {"n": 6, "modes": ["generate"],
-        "params": {"size": 15, "demos": 4}}}}
+        "params": {"size": 12, "demos": 4}}}}
 items = [it for it in generate_bank(parse_spec(spec))
-         if len(it.stimulus["test"]) >= 15 or len(it.stimulus["test"][0]) >= 15]
+         if len(it.stimulus["probe"]) >= 12 or len(it.stimulus["probe"][0]) >= 12]
 item = items[0]
 W, H = int(sys.argv[1]), int(sys.argv[2])
 win = visual.Window(size=[W, H], units="pix", color="#20242b", checkTiming=False)
@@ -66,8 +66,8 @@ for k in range(300):
     win.flip()
     times.append(time.perf_counter() - t0)
 print(json.dumps({"build_ms": build * 1000, "frame_ms": [t * 1000 for t in times],
-                  "test": [len(item.stimulus["test"]), len(item.stimulus["test"][0])],
-                  "demos": len(item.stimulus["train"])}))
+                  "test": [len(item.stimulus["probe"]), len(item.stimulus["probe"][0])],
+                  "demos": len(item.stimulus["examples"])}))
 win.close()
 """
 
