@@ -60,6 +60,14 @@ most a third of the training panels); anything else is ``other``. A wrong rule (
 compared by its truth on all panels: its negation, a shorter superset, a subset covering set A, a
 rule about unused attributes only, or ``other``.
 
+Layout and versions
+-------------------
+Items are drawn as one scene (:mod:`~twofold.study.families.contrast.scene`): a labelled band
+"Set A" above a labelled band "Set B", the test panels below. Version 2 shows 5 panels per set by
+default (``per_set``): one row per band at the design box, with panels large enough for nested
+objects; version 1 (6 per set) wrote records in the same format, which load, score and render
+unchanged (only the default changed, so no adapter is needed).
+
 Validity
 --------
 A candidate item is rejected (:class:`~twofold.study.families.Rejected`, counted by the bank) when

@@ -35,6 +35,10 @@ applies each to the target's own parse, rejects an item when a strictly shorter 
 another answer (reason ``"simpler reading"``), and records as accepted answers the answers of
 non-literal descriptions at most :data:`ACCEPT_MARGIN` bits longer than the intended one, labelled
 by the kind of reading (``symbol-level``, ``group-level``, ``counted-from-start``...).
+
+Items are drawn as one scene (:mod:`~twofold.study.families.strings.scene`). Version 3 changed
+only how items are drawn; version 2 records have the same format and load, score and render
+unchanged.
 """
 
 from __future__ import annotations
