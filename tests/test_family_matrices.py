@@ -612,6 +612,25 @@ def test_every_size_and_count_stays_above_the_object_floor():
             assert frame[0] < b[0] and b[2] < frame[2] and frame[1] < b[1] and b[3] < frame[3]
 
 
+def test_neighbouring_sizes_and_heights_differ_visibly():
+    # at the smallest panels (12 choices) and the tallest groups (six copies in two rows)
+    item = make({"max_count": 6}, seed=1, n_choices=12)
+
+    def boxes(**change):
+        return _boxes(FAM.answer_scene(item, "select", {**item.answer, **change}), "object")
+
+    for shape in LEVELS["shape"]:
+        longs = [
+            max(b[2] - b[0], b[3] - b[1])
+            for size in LEVELS["size"]
+            for b in boxes(shape=shape, size=size, count=1)[:1]
+        ]
+        assert min(n - m for m, n in zip(longs, longs[1:], strict=False)) >= 2.5, shape
+    for count in LEVELS["count"]:
+        tops = [max(b[3] for b in boxes(count=count, position=p)) for p in LEVELS["position"]]
+        assert min(m - n for m, n in zip(tops, tops[1:], strict=False)) >= 8, count
+
+
 def test_too_many_choices_are_refused_by_name():
     spec = parse_spec(
         {"seed": 1, "families": {"matrices": {"n": 1, "modes": ["select"], "n_choices": 16}}}
