@@ -781,7 +781,8 @@ def test_select_scene_labels_test_panels_and_generate_scene_shows_only_the_sets(
 
 
 def test_shades_stay_distinct_and_dashed_edges_contrast_with_what_is_behind():
-    from twofold.study.families.contrast.scene import PANEL, SHADES, contrast_ratio
+    from twofold.study.colour import contrast_ratio
+    from twofold.study.families.contrast.scene import PANEL, SHADES
 
     # our own threshold for neighbouring steps of the ramp
     assert contrast_ratio(SHADES["light"], SHADES["mid"]) >= 2.0

@@ -19,6 +19,7 @@ import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+from ...colour import contrast_ratio
 from ...item import Item
 from ...scene import (
     DESIGN_BOX,
@@ -44,7 +45,6 @@ __all__ = [
     "SHADES",
     "SIZE_SCALE",
     "TILT_DEGREES",
-    "contrast_ratio",
     "object_outline",
 ]
 
@@ -105,19 +105,6 @@ _OUTLINES = {"square": _SQUARE, "triangle": _TRIANGLE, "cross": _CROSS, "dome": 
 #: radius of the circle around each outline and of the circle inside it (a nested object's room)
 _OUTER = {k: max(math.hypot(x, y) for x, y in v) for k, v in _OUTLINES.items()}
 _INNER = {"square": 1.0, "triangle": 0.5, "cross": math.sqrt(2) * _ARM, "dome": 1.0}
-
-
-def _lum(colour: str) -> float:
-    h = colour.lstrip("#")
-    cs = [int(h[k : k + 2], 16) / 255 for k in (0, 2, 4)]
-    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in cs]
-    return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
-
-
-def contrast_ratio(a: str, b: str) -> float:
-    """The WCAG 2.x contrast ratio of two ``#rrggbb`` colours (1 to 21)."""
-    hi, lo = sorted((_lum(a), _lum(b)), reverse=True)
-    return (hi + 0.05) / (lo + 0.05)
 
 
 def _ink(behind: str) -> str:
