@@ -109,7 +109,7 @@ def paint_scene(scene: Scene, fig: Any) -> list[dict[str, Any]]:
                 fontsize=el.size * pt,
                 color=el.colour,
                 ha={"left": "left", "centre": "center", "right": "right"}[el.anchor],
-                va={"top": "top", "middle": "center", "bottom": "bottom"}[el.valign],
+                va={"top": "top", "middle": "center_baseline", "bottom": "bottom"}[el.valign],
                 fontweight="bold" if el.bold else "normal",
                 family=FONTS[el.font],
                 linespacing=1.25,
