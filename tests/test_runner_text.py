@@ -391,7 +391,11 @@ def test_practice_feedback_shows_the_answer_and_the_countdown_runs(x_display, tm
     from _display import Driver, make_runner_study
 
     path = make_runner_study(
-        tmp_path / "s", STRINGS_BODY, runner="size = [1024, 768]\ncountdown = true\n", n_forms=2
+        # a tall window: the scene is as wide as the window, so its top would reach the corner
+        tmp_path / "s",
+        STRINGS_BODY,
+        runner="size = [800, 1000]\ncountdown = true\n",
+        n_forms=2,
     )
     bank = load_study(path).bank()
     d = Driver(x_display, path, "P001", tmp_path)
@@ -406,6 +410,7 @@ def test_practice_feedback_shows_the_answer_and_the_countdown_runs(x_display, tm
         w, h = s["window"][2:]
         cd = s["countdown"]
         assert _inside(cd, w, h) and cd[0] > w * 0.75 and cd[3] < h * 0.1  # top right, small
+        assert s["crossing"] == []  # the screen keeps the corner free
         item = bank[s["item"]]
         wrong = "q" if item.answer != "q" else "z"
         d.key(wrong)

@@ -170,9 +170,14 @@ class _Page:
             s.draw()
 
 
+#: px along the window's top edge kept free for the countdown (its text is MIN_TEXT high)
+COUNTDOWN_ROOM = 34.0
+
+
 class _Countdown:
-    """The seconds left of a timed trial, small, in the window's top right corner (a corner
-    the screens leave free), drawn after the screen; it changes once a second."""
+    """The seconds left of a timed trial, small, in the window's top right corner (the screens
+    keep :data:`COUNTDOWN_ROOM` along the top edge free for it, ``Ctx.top``), drawn after the
+    screen; it changes once a second."""
 
     def __init__(self, sess: Any):
         w, h = sess.size
@@ -247,6 +252,8 @@ class _Session:
         from .screens import Ctx
 
         self.ctx = Ctx(win=self.win, visual=visual, size=self.size, background=opts.background)
+        if opts.countdown and any(b.time_limit_s for b in self.plan.form.blocks):
+            self.ctx.top = COUNTDOWN_ROOM  # the screens keep the top edge free for it
 
     def open(self) -> None:
         opts = self.plan.options
@@ -643,6 +650,7 @@ class _Session:
             targets=screen.targets,
             choice_order=list(screen.choice_order) if screen.choice_order else None,
             countdown=cd.box if cd is not None else None,
+            crossing=self.crossing(screen, cd) if cd is not None and self.probe_path else None,
         )
         answer, press_t, dirty = None, 0.0, False
         while answer is None:
@@ -691,6 +699,21 @@ class _Session:
                 self.idle(None)
                 last = None
         return answer.value, onset, answer.t, "ok", answer.detail, frames
+
+    @staticmethod
+    def crossing(screen: Any, cd: _Countdown) -> list[str]:
+        """What of ``screen`` the countdown's box overlaps (names from ``Screen.boxes()``)."""
+        a = cd.box
+        boxes = [(name, x0, y0, x1, y1) for name, x0, y0, x1, y1, _ in screen.boxes()]
+        # the box the screen may paint its scene into (not only what this scene filled)
+        if getattr(screen, "scene_box", None) is not None:
+            x0, y0, x1, y1 = screen.scene_box
+            boxes.append(("scene", x0 + cd.w / 2, cd.h / 2 - y1, x1 + cd.w / 2, cd.h / 2 - y0))
+        return [
+            name
+            for name, x0, y0, x1, y1 in boxes
+            if a[0] < x1 and x0 < a[2] and a[1] < y1 and y0 < a[3]
+        ]
 
     def countdown(self, time_limit: float | None) -> _Countdown | None:
         """The seconds-left corner of a timed trial (``[runner] countdown``), or None."""

@@ -43,6 +43,7 @@ class Ctx:
     visual: Any
     size: tuple[int, int]
     background: str
+    top: float = 0.0  #: px kept free along the window's top edge (the runner's countdown)
 
 
 class Screen:
@@ -94,7 +95,7 @@ class Screen:
         self._rows_top = bottom + help_h + GAP + sum(self.rows) + GAP * len(self.rows)
         self.strip_top = self._rows_top + (GAP if self.rows else 0.0)
         right = w / 2 - MARGIN - (self.side + 2 * GAP if self.side else 0.0)
-        self.scene_box = (-w / 2 + MARGIN, self.strip_top, right, h / 2 - MARGIN)
+        self.scene_box = (-w / 2 + MARGIN, self.strip_top, right, h / 2 - MARGIN - ctx.top)
         self.painter = ScenePainter(ctx, scene, self.scene_box, capture=False)
         static = list(self.build())
         static = self.painter.stims + static

@@ -75,7 +75,7 @@ class BuildScreen(Screen):
 
     def build(self) -> list[Any]:
         x0 = self.w / 2 - MARGIN - self.side
-        top = self.h / 2 - MARGIN
+        top = self.h / 2 - MARGIN - self.ctx.top  # the countdown keeps the top edge
         places, height = self._column(self.side)
         top -= max(0.0, (top - self.strip_top - height) / 2)  # centred in the height
         self.opt: dict[tuple[str, Any], Button] = {}
