@@ -52,7 +52,7 @@ W, H = int(sys.argv[1]), int(sys.argv[2])
 win = visual.Window(size=[W, H], units="pix", color="#20242b", checkTiming=False)
 ctx = Ctx(win=win, visual=visual, size=(W, H), background="#20242b")
 t0 = time.perf_counter()
-screen = make_screen(ctx, item, render(item, "structured", "generate"), "generate")
+screen = make_screen(ctx, item, "generate")
 build = time.perf_counter() - t0
 screen.press(screen.targets["copy"], 0.0)  # a full 15x15 output grid in the editor
 for _ in range(20):

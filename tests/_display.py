@@ -399,20 +399,28 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
                 d.key({"A": "f", "B": "j"}[lab])
             else:
                 d.click(f"label:{lab}")
+        # the review state: nothing submitted yet; the rule box takes the typing
         d.type("dark ones")
         d.key("Return")
         return {"response": labels, "correct": True, "detail": "rule statement: dark ones"}
     if fam == "grids":
+        from twofold.study import get_family
+
+        opts = get_family(fam).scene(item, mode).response.options
+        empty = int(opts.get("empty", 0))
+        keys = [_KEYSYM.get(lab, lab.lower()) for lab in opts["labels"]]
         target = item.answer
-        test = item.stimulus["test"]
+        start = opts["start"]
         d.click("copy")
-        d.click("reset")
-        rows, cols = len(test), len(test[0])
+        d.click("clear")
+        rows, cols = len(start), len(start[0])
         d.refresh_until(present=[f"cell:{rows - 1},{cols - 1}"], absent=[f"cell:{rows},0"])
-        # drag across the first row with colour 1 (then repaint it below)
-        d.key("1")
-        row0 = [d.state["targets"][f"cell:0,{c}"] for c in range(cols)]
-        d.drag(row0)
+        # a fast drag across the first row in one colour (a continuous stroke; repainted below)
+        d.key(keys[1 if empty != 1 else 2])
+        d.drag([d.state["targets"][f"cell:0,{c}"] for c in (0, cols - 1)])
+        d.click("undo")  # the whole stroke is one undo step
+        d.click("undo")  # and so is the clear: the copied probe is back
+        d.click("clear")
         for name, diff in (("rows", len(target) - rows), ("cols", len(target[0]) - cols)):
             for _ in range(abs(diff)):
                 d.click(f"{name}{'+' if diff > 0 else '-'}")
@@ -423,18 +431,22 @@ def answer(d: Driver, item: Any, mode: str, *, step: int = 0) -> dict[str, Any]:
         by_colour: dict[int, list[str]] = {}
         for r, line in enumerate(target):
             for c, v in enumerate(line):
-                if r == 0 or v != 0:
+                if v != empty:
                     by_colour.setdefault(int(v), []).append(f"cell:{r},{c}")
         for k, (colour, cells) in enumerate(sorted(by_colour.items())):
             if k % 2:
                 d.click(f"colour:{colour}")
             else:
-                d.key(str(colour))
+                d.key(keys[colour])  # the swatch's label
             for cell in cells:
                 d.click(cell)
         d.click("submit")
         return {"response": target, "correct": True}
     raise AssertionError(f"no way to answer {fam} in {mode}")
+
+
+#: X keysym names of swatch labels that are not letters or digits
+_KEYSYM = {".": "period", ",": "comma", "-": "minus", "/": "slash", "+": "plus", "*": "asterisk"}
 
 
 def on_screen(state: dict[str, Any], bank_choice: int) -> int:
@@ -522,3 +534,141 @@ def timed_keys(d: Driver, bank: Any, n: int, *, seed: int = 0) -> list[tuple[int
         t_inject = d.key(str(on_screen(s, bank[s["item"]].answer_choice)))
         out.append((s["trial"], (t_inject - s["onset"]) * 1000.0))
     return out
+
+
+# -- screens painted in a subprocess (window tests of the painter and of screen layouts) -----------
+def screen_job(display: str, tmp: Path, job: dict[str, Any], timeout: float = 240.0) -> Any:
+    """Run :func:`screen_worker` on ``job`` in a subprocess under ``display``; its JSON result.
+
+    PsychoPy is imported only there (it changes ``HOME``-dependent state and ``sys.path``)."""
+    env = session_env(display, tmp / "home", tmp / "probe-unused.json")
+    out = subprocess.run(
+        [sys.executable, "-c", "import _display; _display.screen_worker()"],
+        input=json.dumps(job),
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=timeout,
+    )
+    assert out.returncode == 0, out.stderr[-4000:]
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def _bank(job: dict[str, Any]) -> list[Any]:
+    from twofold.study import generate_bank, parse_spec
+
+    if job.get("toy"):
+        import _toyfamily
+
+        _toyfamily.use_toy()
+    items: list[Any] = []
+    for spec in job["specs"]:
+        items += list(generate_bank(parse_spec(spec)).items)
+    return items
+
+
+def _act(screen: Any, item: Any, mode: str) -> None:
+    """Bring ``screen`` to its fullest state: every label given and a rule typed, every
+    attribute picked, the answer typed, the answer grid at its largest size."""
+    kind = type(screen).__name__
+    if kind == "LabelScreen":
+        for k in range(screen.n):
+            screen.key("a" if k % 2 == 0 else "j", 1.0)
+        if screen.rule:
+            for ch in "the dark ones with dashed edges":
+                screen.key("space" if ch == " " else ch, 2.0)
+    elif kind == "BuildScreen":
+        for a, vals in screen.attrs.items():
+            v = item.answer.get(a, vals[-1]) if isinstance(item.answer, dict) else vals[-1]
+            screen.press(screen.targets[f"attr:{a}={v}"], 1.0)
+    elif kind == "TypeScreen":
+        text = item.answer if isinstance(item.answer, str) else str(item.answer)
+        for ch in text * 3:  # longer than any answer: the entry must stay in its box
+            screen.add(ch)
+    elif kind == "EditorScreen":
+        rows, cols = screen.max_size
+        screen.press(screen.targets["size"], 1.0)
+        for ch in f"{rows}x{cols}":
+            screen.key(ch, 1.0)
+        screen.key("return", 1.0)
+        screen.press(screen.targets["copy"], 1.0)
+
+
+def screen_worker() -> None:
+    """Subprocess side of :func:`screen_job`. Jobs (JSON on stdin):
+
+    - ``{"task": "records", "specs": [...], "toy": bool}``: for every item and mode, the records
+      :class:`ScenePainter` reads back from its stimuli (1024x768 window);
+    - ``{"task": "boxes", "specs": [...], "sizes": [[w, h], ...]}``: for every window size,
+      item, mode (and rule state for contrast), the screen's boxes when built and in its
+      fullest state (see :func:`_act`), the window size, the scene scale;
+    - ``{"task": "drag", "specs": [...]}``: a fast drag across a row of the grid editor (two
+      pointer positions, first and last cell): the cells painted and the undo steps.
+    """
+    import logging as _logging
+
+    job = json.loads(sys.stdin.read())
+    from psychopy import logging, visual
+
+    logging.console.setLevel(_logging.ERROR)
+    from twofold.experiments.human.screens import Ctx, ScenePainter, make_screen
+    from twofold.study import get_family
+
+    items = _bank(job)
+    out: list[Any] = []
+    sizes = job.get("sizes") or [[1024, 768]]
+    for w, h in sizes:
+        win = visual.Window(size=[w, h], units="pix", color="#20242b", checkTiming=False)
+        ctx = Ctx(win=win, visual=visual, size=(w, h), background="#20242b")
+        for item in items:
+            for mode in item.modes:
+                fam = get_family(item.family)
+                if job["task"] == "records":
+                    sc = fam.scene(item, mode)
+                    p = ScenePainter(ctx, sc, (-w / 2 + 12, -h / 2 + 12, w / 2 - 12, h / 2 - 12))
+                    recs = [
+                        {k: (list(map(list, v)) if k == "points" else v) for k, v in r.items()}
+                        for r in p.records()
+                    ]
+                    out.append({"item": item.id, "mode": mode, "records": recs})
+                    continue
+                if job["task"] == "drag":
+                    if mode != "generate" or item.family != "grids":
+                        continue
+                    s = make_screen(ctx, item, mode)
+                    s.press(s.targets["clear"], 0.0)
+                    cols = s.view.cols
+                    s.press(s.targets["cell:0,0"], 0.0)  # one press, one jump, no stops
+                    s.drag(s.targets[f"cell:0,{cols - 1}"])
+                    row = list(s.view.grid[0])
+                    s.press(s.targets["undo"], 0.0)
+                    after_undo = list(s.view.grid[0])
+                    from twofold.experiments.human.screens.paint import hex_of
+
+                    inks = [hex_of(t.color, t.colorSpace) for t in s.swatches.labels]
+                    out.append(
+                        {"colour": s.colour, "row": row, "after_undo": after_undo,
+                         "empty": s.empty, "fills": s.swatches.fills, "inks": inks}
+                    )  # fmt: skip
+                    continue
+                rules = [False, True] if item.family == "contrast" and mode == "select" else [False]
+                for rule in rules:
+                    s = make_screen(ctx, item, mode, state_rule=rule)
+                    first = s.boxes()
+                    _act(s, item, mode)
+                    s.draw()
+                    win.flip()
+                    out.append(
+                        {
+                            "item": item.id,
+                            "family": item.family,
+                            "mode": mode,
+                            "rule": rule,
+                            "size": [w, h],
+                            "kind": type(s).__name__,
+                            "scale": s.painter.scale,
+                            "boxes": [first, s.boxes()],
+                        }
+                    )
+        win.close()
+    print(json.dumps(out))

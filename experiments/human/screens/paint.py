@@ -368,8 +368,13 @@ class ScenePainter:
                     {
                         "kind": "shape",
                         "points": [self.from_px(*map(float, p)) for p in stim.vertices],
-                        "fill": hex_of(stim.fillColor, space),
-                        "edge": hex_of(stim.lineColor, space) if stim.lineWidth else None,
+                        # PsychoPy keeps "no colour" as a transparent colour
+                        "fill": hex_of(stim.fillColor, space) if _opaque(stim, "fill") else None,
+                        "edge": (
+                            hex_of(stim.lineColor, space)
+                            if stim.lineWidth and _opaque(stim, "border")
+                            else None
+                        ),
                     }
                 )
             elif kind == "polyline":
@@ -430,6 +435,12 @@ class ScenePainter:
             out.append(("grid", *b, None))
             out.append(("cell", b[0], b[3] - pitch, b[0] + pitch, b[3], None))
         return out
+
+
+def _opaque(stim: Any, which: str) -> bool:
+    """Whether a ShapeStim's fill (``fill``) or edge (``border``) colour is drawn."""
+    colour = getattr(stim, f"_{which}Color", None)
+    return colour is not None and float(getattr(colour, "alpha", 1.0) or 0.0) > 0.0
 
 
 def text_box(stim: Any) -> tuple[float, float, float, float]:

@@ -466,6 +466,7 @@ class PaletteRow:
         import numpy as np
 
         self.ctx, self.swatch = ctx, swatch
+        self.fills = list(palette)
         n = len(palette)
         sw, sh = swatch
         total = n * sw + (n - 1) * gap
