@@ -114,6 +114,7 @@ class LabelScreen(Screen):
                 lineColor=DIM,
                 lineWidth=2,
                 units="pix",
+                autoLog=False,
             )
             self.entry = make_text(
                 self.ctx, "", (x0 + 8, y2), height=22, color=ACCENT, font=MONO, anchor="left"

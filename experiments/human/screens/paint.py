@@ -112,6 +112,7 @@ class ScenePainter:
                     lineColor=None,
                     lineWidth=0,
                     units="pix",
+                    autoLog=False,
                 )
             )
         for el in scene.elements:
@@ -155,7 +156,9 @@ class ScenePainter:
         return [self.to_px(x, y) for x, y in points]
 
     def _shape(self, el: Shape) -> None:
-        stim = self.ctx.visual.ShapeStim(
+        # convex outlines need no tesselation (3x faster to make); concave ones do
+        cls = self.ctx.visual.BaseShapeStim if _convex(el.points) else self.ctx.visual.ShapeStim
+        stim = cls(
             self.ctx.win,
             vertices=self._px_points(el.points),
             closeShape=True,
@@ -163,6 +166,7 @@ class ScenePainter:
             lineColor=el.edge,
             lineWidth=max(el.edge_width * self.scale, MIN_LINE_PX) if el.edge else 0,
             units="pix",
+            autoLog=False,
             interpolate=True,
         )
         self.stims.append(stim)
@@ -190,6 +194,7 @@ class ScenePainter:
         return self.ctx.visual.ElementArrayStim(
             self.ctx.win,
             units="pix",
+            autoLog=False,
             nElements=len(xys),
             xys=np.array(xys, dtype=float),
             sizes=np.array(sizes, dtype=float),
@@ -221,6 +226,7 @@ class ScenePainter:
                 lineColor=el.colour,
                 lineWidth=max(el.width * self.scale, MIN_LINE_PX),
                 units="pix",
+                autoLog=False,
                 interpolate=True,
             )
             self.stims.append(stim)
@@ -243,6 +249,7 @@ class ScenePainter:
             anchorVert=_VALIGN[el.valign],
             wrapWidth=w,
             units="pix",
+            autoLog=False,
         )
         self.stims.append(stim)
         self._plan.append(("text", stim, None))
@@ -267,6 +274,7 @@ class ScenePainter:
             lineColor=None,
             lineWidth=0,
             units="pix",
+            autoLog=False,
         )
         xys: list[tuple[float, float]] = []
         cols_rgb: list[list[float]] = []
@@ -291,6 +299,7 @@ class ScenePainter:
         cells = v.ElementArrayStim(
             self.ctx.win,
             units="pix",
+            autoLog=False,
             nElements=len(xys),
             xys=np.array(xys, dtype=float),
             sizes=max(pitch - border, 1.0),
@@ -332,6 +341,7 @@ class ScenePainter:
             ctx.win,
             stim=list(stims),
             rect=norm,
+            autoLog=False,
             pos=((x0 + x1) / 2, (y0 + y1) / 2),
             interpolate=False,
         )
@@ -343,6 +353,7 @@ class ScenePainter:
             ctx.win,
             image=buf.image,
             units="pix",
+            autoLog=False,
             pos=((x0 + x1) / 2, (y0 + y1) / 2),
             size=(x1 - x0, y1 - y0),
             interpolate=False,
@@ -435,6 +446,23 @@ class ScenePainter:
             out.append(("grid", *b, None))
             out.append(("cell", b[0], b[3] - pitch, b[0] + pitch, b[3], None))
         return out
+
+
+def _convex(points: Sequence[tuple[float, float]]) -> bool:
+    """Whether a closed outline is convex (every turn the same way)."""
+    n = len(points)
+    if n < 4:
+        return n == 3
+    sign = 0.0
+    for k in range(n):
+        (ax, ay), (bx, by), (cx, cy) = points[k], points[(k + 1) % n], points[(k + 2) % n]
+        cross = (bx - ax) * (cy - by) - (by - ay) * (cx - bx)
+        if abs(cross) < 1e-9:
+            continue
+        if sign and (cross > 0) != (sign > 0):
+            return False
+        sign = cross
+    return True
 
 
 def _opaque(stim: Any, which: str) -> bool:

@@ -64,6 +64,7 @@ class TypeScreen(Screen):
                     lineColor=ACCENT,
                     lineWidth=2,
                     units="pix",
+                    autoLog=False,
                 )
             )
             row = 1

@@ -72,6 +72,7 @@ def make_text(
         anchorVert=valign,
         bold=bold,
         units="pix",
+        autoLog=False,
     )
 
 
@@ -153,6 +154,7 @@ class Button:
             lineColor=edge,
             lineWidth=2,
             units="pix",
+            autoLog=False,
         )
         self.has_label = bool(label)
 
@@ -196,6 +198,7 @@ class Highlight:
             lineColor=colour,
             lineWidth=width,
             units="pix",
+            autoLog=False,
         )
         self.gap = gap
         self.on: Box | None = None
@@ -218,7 +221,7 @@ class Badge:
         self.ctx, self.pos, self.height = ctx, pos, height
         self.text = make_text(ctx, "", pos, height=height, bold=True)
         self.rect = ctx.visual.Rect(
-            ctx.win, width=10, height=height + 10, pos=pos, lineWidth=0, units="pix"
+            ctx.win, width=10, height=height + 10, pos=pos, lineWidth=0, units="pix", autoLog=False
         )
         self.value = ""
 
@@ -283,10 +286,12 @@ class GridEditorView:
             fillColor=self.line,
             lineWidth=0,
             units="pix",
+            autoLog=False,
         )
         self.cells = v.ElementArrayStim(
             self.ctx.win,
             units="pix",
+            autoLog=False,
             nElements=self.rows * self.cols,
             xys=np.array(
                 [self.cell_pos(r, c) for r in range(self.rows) for c in range(self.cols)],
@@ -333,6 +338,7 @@ class GridEditorView:
             self.hatch = self.ctx.visual.ElementArrayStim(
                 self.ctx.win,
                 units="pix",
+                autoLog=False,
                 nElements=len(xys),
                 xys=np.array(xys, dtype=float),
                 sizes=np.array(sizes, dtype=float),
@@ -490,6 +496,7 @@ class PaletteRow:
                     lineColor=PANEL_EDGE,
                     lineWidth=2,
                     units="pix",
+                    autoLog=False,
                 )
             )
             pattern = hatches[k] if k < len(hatches) else None
@@ -515,6 +522,7 @@ class PaletteRow:
                 ctx.visual.ElementArrayStim(
                     ctx.win,
                     units="pix",
+                    autoLog=False,
                     nElements=len(xys),
                     xys=np.array(xys, dtype=float),
                     sizes=np.array(sizes, dtype=float),
