@@ -473,6 +473,9 @@ def play(
     step = 0
     while True:
         s = d.wait(None)
+        if s.get("page", 1) < s.get("pages", 1):  # a paged text screen: on to its last page
+            d.key("Right")
+            continue
         if s["screen"] == "consent":
             d.key(consent)
             if consent != "y":
@@ -594,6 +597,85 @@ def _act(screen: Any, item: Any, mode: str) -> None:
         screen.press(screen.targets["copy"], 1.0)
 
 
+def _interact(ctx: Any, item: Any, mode: str) -> list[dict[str, Any]]:
+    """Scripted respondents on one item's screen(s); what each step gave (see the tests in
+    test_screens_fit.py)."""
+    from twofold.experiments.human.screens import make_screen
+
+    def ans(a: Any) -> Any:
+        return None if a is None else [a.value, a.t, a.detail]
+
+    out: list[dict[str, Any]] = []
+    s = make_screen(ctx, item, mode)
+    kind = type(s).__name__
+    if kind == "LabelScreen":
+        for rule in (False, True):
+            s = make_screen(ctx, item, mode, state_rule=rule)
+            steps = [ans(s.key("a" if k % 2 == 0 else "j", 1.0 + k)) for k in range(s.n)]
+            review = [s.showing("submit"), "submit" in s.targets]
+            s.press(s.targets["test:1"], 20.0)  # change the first label by clicks
+            s.press(s.targets["label:B"], 21.0)
+            early = ans(s.key("return", 22.0)) if rule else None
+            for ch in "ab":  # in the rule state, typing goes to the rule box
+                s.key(ch, 23.0)
+            out.append(
+                {"kind": kind, "rule": rule, "n": s.n, "steps": steps, "review": review,
+                 "given": list(s.given), "early": early, "final": ans(s.key("return", 30.0))}
+            )  # fmt: skip
+    elif kind == "BuildScreen":
+        early = ans(s.press(s.targets["submit"], 1.0))
+        picks = {a: vals[0] for a, vals in s.attrs.items()}
+        for a, v in picks.items():
+            s.press(s.targets[f"attr:{a}={v}"], 2.0)
+        p = s.preview
+        box = s.painter.box_px(s.scene.answer_box)
+        out.append(
+            {"kind": kind, "early": early, "picks": picks,
+             "scales": [p.scale if p else None, s.painter.scale],
+             "extent": list(p.extent()) if p else None, "answer_box": list(box),
+             "final": ans(s.press(s.targets["submit"], 3.0))}
+        )  # fmt: skip
+    elif kind == "TypeScreen" and s.symbols:
+        empty = ans(s.key("return", 1.0))
+        a, b = s.symbols[0], s.symbols[-1]
+        for name in (f"symbol:{a}", f"symbol:{b}", "delete", f"symbol:{a}"):
+            s.press(s.targets[name], 2.0)
+        out.append(
+            {"kind": kind, "empty": empty, "typed": s.typed, "want": a + a,
+             "final": ans(s.press(s.targets["done"], 3.0))}
+        )  # fmt: skip
+    elif kind == "EditorScreen":
+        log: dict[str, Any] = {"kind": kind, "start": s.start, "empty": s.empty}
+        grid = lambda: [list(r) for r in s.view.grid]  # noqa: E731
+        s.press(s.targets["clear"], 0.0)
+        log["cleared"] = grid()
+        s.key(_KEYSYM.get(s.labels[2], s.labels[2].lower()), 0.0)  # a colour by its label
+        log["colour"] = s.colour
+        s.press(s.targets["fill"], 0.0)
+        s.press(s.targets["cell:0,0"], 0.0)
+        log["filled"] = grid()
+        s.press(s.targets["undo"], 0.0)
+        log["fill_undone"] = grid()
+        s.press(s.targets["copy"], 0.0)
+        log["copied"] = grid()
+        rows, cols = s.view.rows, s.view.cols
+        s.press(s.targets["rows+"], 0.0)
+        s.press(s.targets["cols-"], 0.0)
+        log["resized"] = [s.view.rows, s.view.cols, f"cell:{rows},0" in s.targets]
+        s.press(s.targets["size"], 0.0)
+        for ch in ("3", "x", "4"):
+            s.key(ch, 0.0)
+        s.key("return", 0.0)
+        log["typed_size"] = [s.view.rows, s.view.cols]
+        for _ in range(3):  # typed size, cols-, rows+: each one undo step
+            s.press(s.targets["undo"], 0.0)
+        log["undone"] = grid()
+        log["size"] = [rows, cols]
+        log["final"] = ans(s.key("return", 5.0))
+        out.append(log)
+    return out
+
+
 def screen_worker() -> None:
     """Subprocess side of :func:`screen_job`. Jobs (JSON on stdin):
 
@@ -631,6 +713,9 @@ def screen_worker() -> None:
                         for r in p.records()
                     ]
                     out.append({"item": item.id, "mode": mode, "records": recs})
+                    continue
+                if job["task"] == "interact":
+                    out += _interact(ctx, item, mode)
                     continue
                 if job["task"] == "drag":
                     if mode != "generate" or item.family != "grids":

@@ -47,7 +47,9 @@ def test_new_scaffolds_every_family_and_prints_the_steps(lab):
     assert sorted(b["families"][0] for b in blocks) == list(FAMILIES)
     texts = {b["families"][0]: (folder / b["instructions"]).read_text("utf-8") for b in blocks}
     assert len(set(texts.values())) == 4  # one text per family and mode, not one for all
-    assert "press A (or F)" in texts["contrast"] and "paint the result" in texts["grids"]
+    # the family's task in words; how to answer is filled in per screen at session time
+    assert "belongs to set A or to" in texts["contrast"] and "Colour grids" in texts["grids"]
+    assert all("{how}" in t and "{time_limit}" in t for t in texts.values())
     assert "TEMPLATE" in (folder / "consent.txt").read_text("utf-8")
     steps = [line for line in out.splitlines() if line[:2] in {f"{k}." for k in range(1, 9)}]
     assert len(steps) == 8
