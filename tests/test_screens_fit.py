@@ -154,3 +154,66 @@ def test_fast_drag_paints_every_cell_and_swatch_labels_contrast(x_display, tmp_p
         assert g["after_undo"] == [g["empty"]] * len(g["row"])  # the stroke was one undo step
         for fill, ink in zip(g["fills"], g["inks"], strict=True):
             assert _ratio(fill, ink) >= 4.5, (fill, ink)
+
+
+# -- the interactions the layouts serve ----------------------------------------------------------
+@pytest.fixture(scope="module")
+def acted(x_display, tmp_path_factory):  # noqa: F811
+    specs = [
+        {"seed": 7, "families": {"contrast": {"n": 1, "modes": ["select"]}}},
+        {"seed": 7, "families": {"matrices": {"n": 1, "modes": ["generate"]}}},
+        {"seed": 8, "families": {"strings": {"n": 1, "modes": ["generate"],
+                                             "params": {"alphabet": "glyphs"}}}},
+        {"seed": 7, "families": {"grids": {"n": 1, "modes": ["generate"]}}},
+    ]  # fmt: skip
+    got = screen_job(
+        x_display, tmp_path_factory.mktemp("act"), {"task": "interact", "specs": specs}
+    )
+    return {(g["kind"], g.get("rule")): g for g in got}
+
+
+def test_labels_wait_for_review_and_can_change(acted):
+    for rule in (False, True):
+        g = acted[("LabelScreen", rule)]
+        assert g["n"] >= 2
+        assert g["steps"] == [None] * g["n"]  # the last label does not submit
+        assert g["review"] == [True, True]  # a review state with SUBMIT
+        assert g["given"][0] == "B"  # changed by a click on the panel and on "Set B"
+        value, t, detail = g["final"]
+        assert value == "".join(g["given"])
+        if rule:
+            assert g["early"] is None  # ENTER without a rule does nothing
+            assert detail == "rule statement: ab" and t == 21.0  # timed at its last label
+        else:
+            assert detail is None and t == 30.0
+
+
+def test_builder_previews_to_scale_and_submits_when_complete(acted):
+    g = acted[("BuildScreen", None)]
+    assert g["early"] is None
+    preview, stimulus = g["scales"]
+    assert preview == pytest.approx(stimulus)  # the same pixels per unit as the matrix
+    x0, y0, x1, y1 = g["extent"]
+    b0, c0, b1, c1 = g["answer_box"]
+    assert x0 == pytest.approx(b0, abs=0.5) and x1 == pytest.approx(b1, abs=0.5)
+    assert y0 == pytest.approx(c0, abs=0.5) and y1 == pytest.approx(c1, abs=0.5)
+    assert g["final"][0] == g["picks"]
+
+
+def test_symbol_keys_delete_and_done(acted):
+    g = acted[("TypeScreen", None)]
+    assert g["empty"] is None and g["typed"] == g["want"] and g["final"][0] == g["want"]
+
+
+def test_editor_tools_and_undo(acted):
+    g = acted[("EditorScreen", None)]
+    start, empty, c = g["start"], g["empty"], g["colour"]
+    rows, cols = g["size"]
+    assert g["cleared"] == [[empty] * cols for _ in range(rows)]
+    assert c not in (empty,) and g["filled"] == [[c] * cols for _ in range(rows)]
+    assert g["fill_undone"] == g["cleared"]
+    assert g["copied"] == start
+    assert g["resized"] == [rows + 1, cols - 1, True]
+    assert g["typed_size"] == [3, 4]
+    assert g["undone"] == start  # three undo steps back to the copied probe
+    assert g["final"][0] == start
