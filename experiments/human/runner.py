@@ -184,7 +184,13 @@ class _Countdown:
         self.size = int(MIN_TEXT)
         self.pos = (w / 2 - 10, h / 2 - 6)
         self.stim = sess._stim(
-            "", self.size, pos=self.pos, anchorHoriz="right", anchorVert="top", color=DIM_COLOUR
+            "",
+            self.size,
+            pos=self.pos,
+            anchorHoriz="right",
+            anchorVert="top",
+            alignText="right",
+            color=DIM_COLOUR,
         )
         self.w, self.h = w, h
         self.limit, self.shown = 0.0, -1
@@ -442,6 +448,7 @@ class _Session:
                     fsize,
                     pos=(w / 2 - mx, -h / 2 + mb),
                     anchorHoriz="right",
+                    alignText="right",
                     anchorVert="bottom",
                     color=DIM_COLOUR,
                 )
