@@ -26,6 +26,7 @@ from .widgets import (
     SELECT,
     Badge,
     Highlight,
+    entry_frame,
     make_text,
     text_width,
 )
@@ -105,17 +106,7 @@ class LabelScreen(Screen):
             x0 = -self.w / 2 + MARGIN + 8 + text_width(self.prompt) + 14
             x1 = self.w / 2 - MARGIN - 8
             self.rule_box = (x0, y2 - RULE_ROW / 2, x1, y2 + RULE_ROW / 2)
-            self.rule_frame = self.ctx.visual.Rect(
-                self.ctx.win,
-                width=x1 - x0,
-                height=RULE_ROW,
-                pos=((x0 + x1) / 2, y2),
-                fillColor=PANEL,
-                lineColor=DIM,
-                lineWidth=2,
-                units="pix",
-                autoLog=False,
-            )
+            self.rule_frame = entry_frame(self.ctx, self.rule_box, DIM)
             self.entry = make_text(
                 self.ctx, "", (x0 + 8, y2), height=22, color=ACCENT, font=MONO, anchor="left"
             )

@@ -17,7 +17,7 @@ from typing import Any
 
 from twofold.study.scene import Grid, Line, Scene, Shape, Text, hatch_segments
 
-__all__ = ["FONTS", "ScenePainter", "hex_of"]
+__all__ = ["FONTS", "ScenePainter", "hex_of", "segment_bars"]
 
 #: scene fonts as PsychoPy font names (the same faces pictures use)
 FONTS = {"sans": "DejaVu Sans", "mono": "DejaVu Sans Mono"}
@@ -181,35 +181,9 @@ class ScenePainter:
     ) -> Any:
         """Separate segments (point pairs, scene units) as one element array of thin bars;
         ``colour`` is one colour or one per segment."""
-        import numpy as np
-
-        xys, sizes, oris = [], [], []
-        for k in range(0, len(pts) - 1, 2):
-            (ax, ay), (bx, by) = self.to_px(*pts[k]), self.to_px(*pts[k + 1])
-            xys.append(((ax + bx) / 2, (ay + by) / 2))
-            sizes.append((math.hypot(bx - ax, by - ay), max(width * self.scale, MIN_LINE_PX)))
-            oris.append(-math.degrees(math.atan2(by - ay, bx - ax)))  # PsychoPy: clockwise
-        if not xys:
-            return None
-        return self.ctx.visual.ElementArrayStim(
-            self.ctx.win,
-            units="pix",
-            autoLog=False,
-            nElements=len(xys),
-            xys=np.array(xys, dtype=float),
-            sizes=np.array(sizes, dtype=float),
-            oris=np.array(oris, dtype=float),
-            elementTex=np.ones((4, 4)),
-            elementMask=None,
-            colors=(
-                _rgb(colour)
-                if isinstance(colour, str)
-                else np.array([_rgb(c) for c in colour], dtype=float)
-            ),
-            colorSpace="rgb",
-            sfs=0,
-            interpolate=False,
-        )
+        px = [self.to_px(x, y) for x, y in pts]
+        colours = [colour] * (len(pts) // 2) if isinstance(colour, str) else list(colour)
+        return segment_bars(self.ctx, px, colours, max(width * self.scale, MIN_LINE_PX))
 
     def _line(self, el: Line) -> None:
         if el.segments:
@@ -446,6 +420,38 @@ class ScenePainter:
             out.append(("grid", *b, None))
             out.append(("cell", b[0], b[3] - pitch, b[0] + pitch, b[3], None))
         return out
+
+
+def segment_bars(
+    ctx: Any, pts: Sequence[tuple[float, float]], colours: Sequence[str], width: float
+) -> Any:
+    """Separate segments (point pairs in window pixels, one colour each) as one element
+    array of bars ``width`` pixels thick: one stimulus however many segments (None for none)."""
+    import numpy as np
+
+    xys, sizes, oris = [], [], []
+    for k in range(0, len(pts) - 1, 2):
+        (ax, ay), (bx, by) = pts[k], pts[k + 1]
+        xys.append(((ax + bx) / 2, (ay + by) / 2))
+        sizes.append((math.hypot(bx - ax, by - ay), width))
+        oris.append(-math.degrees(math.atan2(by - ay, bx - ax)))  # PsychoPy: clockwise
+    if not xys:
+        return None
+    return ctx.visual.ElementArrayStim(
+        ctx.win,
+        units="pix",
+        autoLog=False,
+        nElements=len(xys),
+        xys=np.array(xys, dtype=float),
+        sizes=np.array(sizes, dtype=float),
+        oris=np.array(oris, dtype=float),
+        elementTex=np.ones((4, 4)),
+        elementMask=None,
+        colors=np.array([_rgb(c) for c in colours[: len(xys)]], dtype=float),
+        colorSpace="rgb",
+        sfs=0,
+        interpolate=False,
+    )
 
 
 def _convex(points: Sequence[tuple[float, float]]) -> bool:

@@ -11,7 +11,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from .base import MARGIN, ROW, Answer, Screen
-from .widgets import ACCENT, MIN_TEXT_PX, MONO, PANEL, Keypad, make_text, text_width
+from .widgets import ACCENT, MIN_TEXT_PX, MONO, Keypad, entry_frame, make_text, text_width
 
 __all__ = ["TypeScreen"]
 
@@ -54,19 +54,7 @@ class TypeScreen(Screen):
             y = self.row_y(0)
             x0, x1 = -self.w * 0.3, self.w * 0.3
             y0, y1 = y - ENTRY_ROW / 2, y + ENTRY_ROW / 2
-            static.append(
-                self.ctx.visual.Rect(
-                    self.ctx.win,
-                    width=x1 - x0,
-                    height=y1 - y0,
-                    pos=((x0 + x1) / 2, y),
-                    fillColor=PANEL,
-                    lineColor=ACCENT,
-                    lineWidth=2,
-                    units="pix",
-                    autoLog=False,
-                )
-            )
+            static.append(entry_frame(self.ctx, (x0, y0, x1, y1)))
             row = 1
         self.entry_box = (x0, y0, x1, y1)
         self.entry_height = max(MIN_TEXT_PX, min((y1 - y0) * 0.62, 44.0))

@@ -12,12 +12,14 @@ import math
 from collections.abc import Sequence
 from typing import Any
 
+from twofold.study.colour import contrast_ratio, ink_for
 from twofold.study.scene import hatch_segments
 
-from .paint import FONTS, text_box
+from .paint import FONTS, segment_bars, text_box
 
 __all__ = [
     "ACCENT",
+    "entry_frame",
     "DIM",
     "MIN_TEXT_PX",
     "PANEL",
@@ -76,41 +78,24 @@ def make_text(
     )
 
 
+def entry_frame(ctx: Any, box: Box, edge: str = ACCENT) -> Any:
+    """The frame of a typed-entry box ``(x0, y0, x1, y1)``."""
+    x0, y0, x1, y1 = box
+    return ctx.visual.Rect(
+        ctx.win,
+        width=x1 - x0,
+        height=y1 - y0,
+        pos=((x0 + x1) / 2, (y0 + y1) / 2),
+        fillColor=PANEL,
+        lineColor=edge,
+        lineWidth=2,
+        units="pix",
+        autoLog=False,
+    )
+
+
 def text_width(stim: Any) -> float:
     return float(stim.boundingBox[0])
-
-
-# -- colour contrast (WCAG 2.x) -------------------------------------------------------------------
-def _luminance(colour: str) -> float:
-    """WCAG 2.x relative luminance of ``#rrggbb``."""
-    # reference: WCAG 2.1, "relative luminance" and "contrast ratio" definitions (from memory)
-    c = colour.lstrip("#")
-    out = []
-    for k in (0, 2, 4):
-        v = int(c[k : k + 2], 16) / 255.0
-        out.append(v / 12.92 if v <= 0.03928 else ((v + 0.055) / 1.055) ** 2.4)
-    return 0.2126 * out[0] + 0.7152 * out[1] + 0.0722 * out[2]
-
-
-def contrast_ratio(a: str, b: str) -> float:
-    """WCAG 2.x contrast ratio of two ``#rrggbb`` colours (1 to 21)."""
-    la, lb = sorted((_luminance(a), _luminance(b)), reverse=True)
-    return (la + 0.05) / (lb + 0.05)
-
-
-def ink_for(fill: str) -> str:
-    """Black or white text on ``fill``, whichever contrasts more (the grids palette helper in
-    ``twofold.study.colour`` when present)."""
-    try:
-        from twofold.study import colour as _colour  # type: ignore[attr-defined]
-
-        helper = getattr(_colour, "ink_for", None) or getattr(_colour, "label_colour", None)
-        if helper is not None:
-            return str(helper(fill))
-    except ImportError:
-        pass
-    black, white = "#000000", "#ffffff"
-    return black if contrast_ratio(fill, black) >= contrast_ratio(fill, white) else white
 
 
 # -- buttons ------------------------------------------------------------------------------------
@@ -313,12 +298,9 @@ class GridEditorView:
         return [int(c[k : k + 2], 16) / 255.0 * 2 - 1 for k in (0, 2, 4)]
 
     def _hatch(self) -> None:
-        import numpy as np
 
-        xys: list[tuple[float, float]] = []
-        sizes: list[tuple[float, float]] = []
-        oris: list[float] = []
-        inks: list[list[float]] = []
+        pts: list[tuple[float, float]] = []
+        inks: list[str] = []
         for r in range(self.rows):
             for c in range(self.cols):
                 idx = self.grid[r][c]
@@ -326,39 +308,14 @@ class GridEditorView:
                 if not pattern:
                     continue
                 cx, cy = self.cell_pos(r, c)
-                pts = hatch_segments(pattern, cx - self.pitch / 2, cy - self.pitch / 2, self.pitch)
-                for k in range(0, len(pts) - 1, 2):
-                    (ax, ay), (bx, by) = pts[k], pts[k + 1]
-                    xys.append(((ax + bx) / 2, (ay + by) / 2))
-                    sizes.append((math.hypot(bx - ax, by - ay), max(1.2, self.pitch / 18)))
-                    oris.append(-math.degrees(math.atan2(by - ay, bx - ax)))
-                    inks.append(self._rgb_of(self.mark_of(idx)))
-        self.hatch = None
-        if xys:
-            self.hatch = self.ctx.visual.ElementArrayStim(
-                self.ctx.win,
-                units="pix",
-                autoLog=False,
-                nElements=len(xys),
-                xys=np.array(xys, dtype=float),
-                sizes=np.array(sizes, dtype=float),
-                oris=np.array(oris, dtype=float),
-                elementTex=np.ones((4, 4)),
-                elementMask=None,
-                colors=np.array(inks, dtype=float),
-                colorSpace="rgb",
-                sfs=0,
-                interpolate=False,
-            )
+                seg = hatch_segments(pattern, cx - self.pitch / 2, cy - self.pitch / 2, self.pitch)
+                pts += seg
+                inks += [self.mark_of(idx)] * (len(seg) // 2)
+        self.hatch = segment_bars(self.ctx, pts, inks, max(1.2, self.pitch / 18))
 
     def mark_of(self, idx: int) -> str:
         """The hatch colour of palette index ``idx``."""
         return self.marks[idx] if idx < len(self.marks) else self.mark
-
-    @staticmethod
-    def _rgb_of(colour: str) -> list[float]:
-        c = colour.lstrip("#")
-        return [int(c[k : k + 2], 16) / 255.0 * 2 - 1 for k in (0, 2, 4)]
 
     def cell_pos(self, r: int, c: int) -> tuple[float, float]:
         x0, y1 = self.top_left
@@ -469,7 +426,6 @@ class PaletteRow:
         gap: float = 8.0,
         inks: Sequence[str] = (),
     ):
-        import numpy as np
 
         self.ctx, self.swatch = ctx, swatch
         self.fills = list(palette)
@@ -480,10 +436,8 @@ class PaletteRow:
         self.centres = [(x0 + sw / 2 + k * (sw + gap), centre[1]) for k in range(n)]
         self.stims: list[Any] = []
         self.labels: list[Any] = []
-        xys: list[tuple[float, float]] = []
-        sizes: list[tuple[float, float]] = []
-        oris: list[float] = []
-        cols: list[list[float]] = []
+        pts: list[tuple[float, float]] = []
+        cols: list[str] = []
         side = min(sw, sh * 0.5) - 6  # the hatch square at the top of the swatch
         for k, (colour, (cx, cy)) in enumerate(zip(palette, self.centres, strict=True)):
             self.stims.append(
@@ -502,14 +456,9 @@ class PaletteRow:
             pattern = hatches[k] if k < len(hatches) else None
             if pattern:
                 mark = marks[k] if k < len(marks) else "#202020"
-                pts = hatch_segments(pattern, cx - side / 2, cy + sh / 2 - 3 - side, side)
-                for j in range(0, len(pts) - 1, 2):
-                    (ax, ay), (bx, by) = pts[j], pts[j + 1]
-                    xys.append(((ax + bx) / 2, (ay + by) / 2))
-                    sizes.append((math.hypot(bx - ax, by - ay), 2.0))
-                    oris.append(-math.degrees(math.atan2(by - ay, bx - ax)))
-                    c = mark.lstrip("#")
-                    cols.append([int(c[i : i + 2], 16) / 255.0 * 2 - 1 for i in (0, 2, 4)])
+                seg = hatch_segments(pattern, cx - side / 2, cy + sh / 2 - 3 - side, side)
+                pts += seg
+                cols += [mark] * (len(seg) // 2)
             label = labels[k] if k < len(labels) else str(k)
             ink = inks[k] if k < len(inks) else ink_for(colour)
             if contrast_ratio(ink, colour) < 4.5:  # a palette helper that cannot be met
@@ -517,24 +466,9 @@ class PaletteRow:
             t = make_text(ctx, label, (cx, cy - sh / 4), height=20, color=ink, bold=True)
             self.labels.append(t)
             self.stims.append(t)
-        if xys:
-            self.stims.append(
-                ctx.visual.ElementArrayStim(
-                    ctx.win,
-                    units="pix",
-                    autoLog=False,
-                    nElements=len(xys),
-                    xys=np.array(xys, dtype=float),
-                    sizes=np.array(sizes, dtype=float),
-                    oris=np.array(oris, dtype=float),
-                    elementTex=np.ones((4, 4)),
-                    elementMask=None,
-                    colors=np.array(cols, dtype=float),
-                    colorSpace="rgb",
-                    sfs=0,
-                    interpolate=False,
-                )
-            )
+        bars = segment_bars(ctx, pts, cols, 2.0)
+        if bars is not None:
+            self.stims.append(bars)
 
     def box(self, k: int) -> Box:
         (cx, cy), (sw, sh) = self.centres[k], self.swatch
