@@ -255,6 +255,24 @@ def test_a_blocks_own_file_wins_and_its_placeholders_are_filled(tmp_path):
         prepare_session(path, "P002")
 
 
+def test_how_to_answer_follows_each_blocks_screen(tmp_path):
+    from _display import ALL_FAMILIES, make_runner_study
+
+    body = ALL_FAMILIES.replace('instructions = "instructions.txt"\n', "")
+    plan = prepare_session(make_runner_study(tmp_path / "s", body, n_forms=1), "P001")
+    text = plan.instructions
+    assert text["letters"].startswith("Symbol strings")
+    # letters can be typed, glyphs are clicked on screen keys: the block has both
+    assert "Type your answer" in text["letters"]
+    assert "Click the symbols of your answer" in text["letters"]
+    assert "press the number shown beside it" in text["figures"]
+    assert "A (or F) for set A" in text["sets"] and "type the rule" in text["sets"]  # state_rule
+    assert "Paint the answer grid" in text["colours"]
+    assert "The first puzzle is practice" in text["letters"]
+    assert all("practice" not in text[b] for b in ("figures", "sets", "colours"))
+    assert all("for each puzzle" not in t for t in text.values())  # no time limits here
+
+
 def test_countdown_option_is_checked(tmp_path):
     from _display import make_runner_study
 

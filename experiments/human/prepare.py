@@ -255,27 +255,26 @@ HOW = {
     "choose": "Click the answer you choose, or press the number shown beside it.",
     "type": "Type your answer; BACKSPACE corrects and ENTER submits.",
     "type_symbols": (
-        "Type your answer. Symbols that are not on your keyboard are shown as keys on the "
-        "screen: click them. BACKSPACE corrects and ENTER submits."
+        "Click the symbols of your answer on the screen keys (or type them); DELETE removes the "
+        "last one and DONE submits."
     ),
     "paint": (
-        "Paint the answer grid: pick a colour from the palette (click it or press its key), "
-        "then click or drag over cells. The tools beside the grid change its size and undo "
-        "edits. Click the submit button or press ENTER when the grid is done."
+        "Paint the answer grid: pick a colour (click it or press its label), then click or drag "
+        "over cells. The tools beside the grid fill, copy, clear, change the size and undo; "
+        "BACKSPACE also undoes. Press ENTER or click SUBMIT when the grid is done."
     ),
     "label": (
-        "For each new panel in turn, press A (or F) for set A and B (or J) for set B, or "
-        "click the label. BACKSPACE takes back the last label."
+        "Label each new panel: A (or F) for set A, B (or J) for set B; click a panel to change "
+        "its label. Press ENTER or click SUBMIT when every panel has its label."
     ),
     "label_rule": (
-        "For each new panel in turn, press A (or F) for set A and B (or J) for set B, or "
-        "click the label; BACKSPACE takes back the last label. Then type the rule in your own "
-        "words and press ENTER."
+        "Label each new panel: A (or F) for set A, B (or J) for set B; click a panel to change "
+        "its label. Then type the rule in your own words and press ENTER."
     ),
     "rule": "Type the rule in your own words and press ENTER.",
     "build": (
-        "Choose a value for each property of the missing panel; the panel you build is shown "
-        "as you go. Click the done button when it is complete."
+        "Pick one value of each property of the missing panel; the preview shows the panel you "
+        "build. Press ENTER or click SUBMIT when it is complete."
     ),
 }
 
@@ -301,8 +300,9 @@ def check_placeholders(text: str, what: str, where: str | None = None) -> None:
             )
 
 
-def how_to_answer(response: Any, mode: str) -> str:
-    """The :data:`HOW` sentence for a screen's :class:`~twofold.study.scene.Response`."""
+def how_to_answer(response: Any, mode: str, *, state_rule: bool = False) -> str:
+    """The :data:`HOW` sentence for a screen's :class:`~twofold.study.scene.Response`
+    (``state_rule``: the block also asks for the rule in words)."""
     kind = getattr(response, "kind", None) or ("choose" if mode == "select" else "type")
     opts = dict(getattr(response, "options", None) or {})
     if kind == "type" and opts.get("symbols"):
@@ -310,8 +310,9 @@ def how_to_answer(response: Any, mode: str) -> str:
     if kind == "type" and opts.get("rule"):
         return HOW["rule"]
     if kind == "label":
-        return HOW["label_rule"] if opts.get("rule") else HOW["label"]
-    return HOW.get(kind, HOW["type"])
+        return HOW["label_rule"] if opts.get("rule") or state_rule else HOW["label"]
+    how = HOW.get(kind, HOW["type"])
+    return f"{how} {HOW['rule']}" if state_rule else how
 
 
 def instruction_values(block: Any, *, how: str = "", countdown: bool = False) -> dict[str, str]:
@@ -392,13 +393,12 @@ def block_instructions(
     for b in form.blocks:
         ids = [*b.practice, *b.items]
         fams = {bank[i].family for i in ids}
-        how = ""
-        if ids:
-            first = bank[ids[0]]
-            scene = get_family(first.family).scene(first, b.mode)
-            how = how_to_answer(scene.response, b.mode)
-            if b.state_rule and "rule" not in how.lower():
-                how += " " + HOW["rule"]
+        hows: dict[str, None] = {}  # each way of answering the block's screens ask for, once
+        for i in ids:
+            item = bank[i]
+            scene = get_family(item.family).scene(item, b.mode)
+            hows[how_to_answer(scene.response, b.mode, state_rule=b.state_rule)] = None
+        how = " ".join(hows)
         text = own.get(b.name)
         if text is None:
             text = instruction_template(fams, b.mode)[1]
