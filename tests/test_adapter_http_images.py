@@ -19,7 +19,7 @@ from twofold.experiments.cli import main
 from twofold.experiments.machine import run_solvers, study_solvers
 from twofold.experiments.machine.chat import DEFAULT_PICTURE_USER
 from twofold.study import load_study, read_trials
-from twofold.study.render import render
+from twofold.study.render import render, scene_of
 
 STUDY = """[study]
 name = "http-images"
@@ -142,9 +142,12 @@ def test_picture_view_arrives_as_a_png_data_url_of_the_items_picture(tmp_path):
         with Image.open(io.BytesIO(data)) as img:
             img.verify()
         with Image.open(io.BytesIO(data)) as img:
-            assert img.format == "PNG" and img.size == (600, 600)
+            size = img.size
         assert data in pictures, "the image is one of the bank's item pictures"
         item_id, mode = pictures[data]
+        scene = scene_of(bank[item_id], mode)
+        assert max(size) == 800  # the longer side, at the scene's own aspect
+        assert size[0] / size[1] == pytest.approx(scene.width / scene.height, abs=0.01)
         assert f"{mode} mode" in " ".join(p["text"] for p in texts)  # {mode} filled in
         seen.append((item_id, mode))
     assert sorted(seen) == sorted((it.id, m) for it, m in planned)  # each trial once
