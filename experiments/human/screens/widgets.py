@@ -20,6 +20,7 @@ from .paint import FONTS, segment_bars, text_box
 __all__ = [
     "ACCENT",
     "entry_frame",
+    "ink_on_light",
     "DIM",
     "MIN_TEXT_PX",
     "PANEL",
@@ -76,6 +77,16 @@ def make_text(
         units="pix",
         autoLog=False,
     )
+
+
+#: typed text on a light background: a deep blue of our own (contrast >= 7:1 on white)
+TYPED_DARK = "#17406b"
+
+
+def ink_on_light(background: str) -> str:
+    """The colour of typed text on a light ``background``: our deep blue, or black or white
+    when that does not reach 4.5:1."""
+    return TYPED_DARK if contrast_ratio(TYPED_DARK, background) >= 4.5 else ink_for(background)
 
 
 def entry_frame(ctx: Any, box: Box, edge: str = ACCENT) -> Any:
