@@ -170,7 +170,9 @@ def bootstrap_ci(
     den = 6 * (d**2).sum() ** 1.5
     a = (d**3).sum() / den if den > 0 else 0.0
     za = special.ndtri(np.array([alpha, 1 - alpha]))
-    adj = special.ndtr(z0 + (z0 + za) / (1 - a * (z0 + za)))
+    # every resample on one side of the estimate (z0 infinite): BCa is undefined, not an error
+    with np.errstate(invalid="ignore", divide="ignore"):
+        adj = special.ndtr(z0 + (z0 + za) / (1 - a * (z0 + za)))
     if np.all(np.isfinite(adj)):
         bca = np.percentile(boot, 100 * adj)
     else:

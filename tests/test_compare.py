@@ -173,6 +173,22 @@ def test_bootstrap_is_nan_with_a_warning_for_constant_input():
     assert out["estimate"].isna().all() and out["ci_low"].isna().all()
 
 
+def test_bca_is_nan_without_a_warning_when_every_resample_falls_on_one_side():
+    # one machine error among ten items: every resample that keeps the error item correlates
+    # above the estimate, the rest are undefined; the BCa bias term is infinite
+    import warnings
+
+    x = np.array([-0.89, 0.34, -0.56, 1.67, 0.35, 0.33, -0.55, 0.95, 0.05, -0.25])
+    y = np.array([0.0, 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0])
+    for statistic in ("spearman", "kendall"):
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            out = bootstrap_ci(x, y, statistic=statistic, n_boot=200, seed=1)
+        out = out.set_index("interval")
+        assert out.loc["bca", ["ci_low", "ci_high"]].isna().all()
+        assert out.loc["percentile", "ci_low"] > out.loc["bca", "estimate"]
+
+
 # -- difficulty agreement ------------------------------------------------------------------------
 def test_item_difficulty_is_the_logit_error_rate_with_half_counts(trials):
     d = item_difficulty(trials).set_index("item")
