@@ -128,7 +128,7 @@ def preview(
     ] = None,
     size: Annotated[
         str | None,
-        typer.Option("--size", help="Window size WIDTHxHEIGHT (default: [runner] size)."),
+        typer.Option("--size", help="Window size WIDTHxHEIGHT (default: the size in the runner table of study.toml)."),
     ] = None,
     respondent: Annotated[
         str | None,
