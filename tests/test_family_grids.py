@@ -119,15 +119,15 @@ def test_scale_matches_kronecker_product():
 
 def test_object_operations_by_hand():
     g = arr([[1, 1, 0, 0], [1, 0, 0, 2], [0, 0, 0, 0], [3, 3, 3, 0]])
-    assert G.apply_op(g, ("count_row",)).tolist() == [[1, 2, 3]]
-    assert G.apply_op(g, ("keep_smallest",)).tolist() == [
+    assert G.apply_op(g, ("count-row",)).tolist() == [[1, 2, 3]]
+    assert G.apply_op(g, ("keep-smallest",)).tolist() == [
         [0, 0, 0, 0],
         [0, 0, 0, 2],
         [0, 0, 0, 0],
         [0, 0, 0, 0],
     ]
     # two objects of three cells tie for largest: both stay
-    assert G.apply_op(g, ("keep_largest",)).tolist() == [
+    assert G.apply_op(g, ("keep-largest",)).tolist() == [
         [1, 1, 0, 0],
         [1, 0, 0, 0],
         [0, 0, 0, 0],
@@ -186,10 +186,10 @@ def test_check_reports_a_tampered_item():
 def test_ambiguous_demonstrations_are_rejected():
     # a symmetric demonstration cannot tell a left-right mirror from a half turn
     x = arr([[1, 0, 1], [2, 0, 2], [0, 0, 0]])
-    y = G.apply_op(x, ("flip_ud",))
+    y = G.apply_op(x, ("flip-ud",))
     test = arr([[1, 2, 0], [0, 0, 0], [0, 0, 3]])
     problem = G.generation._validity(
-        [["flip_ud"]], [x, x], [y, y], test, G.apply_op(test, ("flip_ud",))
+        [["flip-ud"]], [x, x], [y, y], test, G.apply_op(test, ("flip-ud",))
     )
     assert problem == "ambiguous"
 
@@ -249,7 +249,7 @@ def test_variants_keep_structure(seed, operator):
     if operator == "permute-colours":
         # the layout of content is unchanged, only colours are relabelled
         assert (arr(var.answer) != 0).tolist() == (arr(item.answer) != 0).tolist() or any(
-            op[0] in ("recolour", "count_row") for op in item.stimulus["program"]
+            op[0] in ("recolour", "count-row") for op in item.stimulus["program"]
         )
     assert FAM.score(var, var.answer_choice, "select").correct
 
@@ -698,3 +698,16 @@ def test_variants_of_a_v1_item_and_old_operator_names():
     assert var.variant_operator == "permute-colours"
     assert "examples" in var.stimulus and "train" not in var.stimulus
     assert FAM.check(var) == []
+
+
+def test_v1_operation_names_read_as_current_operations():
+    from twofold.study.families.grids.legacy import V1_OPS, native
+    from twofold.study.families.grids.operations import OPS
+
+    st = dict(V1_RECORD["stimulus"]) | {"program": [["flip_lr"], ["keep_smallest"], ["rot90"]]}
+    assert native(st)["program"] == [["flip-lr"], ["keep-smallest"], ["rot90"]]
+    assert V1_RECORD["stimulus"]["program"] == [["gravity", "right"], ["recolour", 3, 4]]
+    for old, new in V1_OPS.items():
+        assert new in OPS and old not in OPS and "_" not in new
+    # every operation a new item can carry is named in one style
+    assert all("_" not in name for name in OPS)

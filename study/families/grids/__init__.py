@@ -8,13 +8,13 @@ screen at a legible cell size. The hidden change is a composition (depth 1-3) of
 our own grammar:
 
 geometric
-    ``flip_lr``, ``flip_ud``, ``rot90`` (a quarter turn anticlockwise), ``rot180``, ``rot270``,
+    ``flip-lr``, ``flip-ud``, ``rot90`` (a quarter turn anticlockwise), ``rot180``, ``rot270``,
     ``transpose``, ``translate(direction)`` (one cell, empty cells fill in)
 colour
     ``recolour(a, b)``, ``swap(a, b)``, ``fill(c)`` (empty cells enclosed by content)
 object (objects are 4-connected groups of non-empty cells)
-    ``keep_largest``, ``keep_smallest``, ``gravity(direction)`` (every object slides as a rigid
-    body until it touches the edge or another object), ``count_row`` (a one-row grid with one cell
+    ``keep-largest``, ``keep-smallest``, ``gravity(direction)`` (every object slides as a rigid
+    body until it touches the edge or another object), ``count-row`` (a one-row grid with one cell
     per object, in reading order, in the object's colour)
 size
     ``crop`` (to the bounding box of the content), ``scale(k)``, ``tile(rows, cols)``

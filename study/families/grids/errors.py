@@ -55,10 +55,10 @@ def _siblings(op: Sequence[Any]) -> list[list[Any]]:
         return [["recolour", op[1], op[2]], ["recolour", op[2], op[1]]]
     if name == "fill":
         return [["fill", c] for c in range(1, 10) if c != op[1]][:3]
-    if name == "keep_largest":
-        return [["keep_smallest"]]
-    if name == "keep_smallest":
-        return [["keep_largest"]]
+    if name == "keep-largest":
+        return [["keep-smallest"]]
+    if name == "keep-smallest":
+        return [["keep-largest"]]
     if name == "scale":
         return [["scale", 5 - op[1]]]
     if name == "tile":

@@ -43,10 +43,10 @@ def _sample_op(kind: str, rng: np.random.Generator) -> Op:
     if kind == "object":
         r = rng.random()
         if r < 0.3:
-            return ("keep_largest",) if rng.random() < 0.5 else ("keep_smallest",)
+            return ("keep-largest",) if rng.random() < 0.5 else ("keep-smallest",)
         if r < 0.85:
             return ("gravity", _DIRS[int(rng.integers(4))])
-        return ("count_row",)
+        return ("count-row",)
     r = rng.random()
     if r < 0.4:
         return ("crop",)
@@ -56,8 +56,8 @@ def _sample_op(kind: str, rng: np.random.Generator) -> Op:
 
 
 _FAMILY_OF = {n: "dihedral" for n in _DIHEDRAL} | {
-    "keep_largest": "keep",
-    "keep_smallest": "keep",
+    "keep-largest": "keep",
+    "keep-smallest": "keep",
 }
 _OPPOSITE = {"down": "up", "up": "down", "left": "right", "right": "left"}
 
@@ -69,7 +69,7 @@ def _sample_program(p: Mapping[str, Any], rng: np.random.Generator) -> list[Op]:
         for _j in range(p["depth"]):
             prog.append(_sample_op(kinds[int(rng.integers(len(kinds)))], rng))
         fams = [_FAMILY_OF.get(op[0], op[0]) for op in prog]
-        if any(op[0] == "count_row" for op in prog[:-1]):
+        if any(op[0] == "count-row" for op in prog[:-1]):
             continue
         repeated = {f for f in fams if fams.count(f) > 1} - {"recolour", "swap", "translate"}
         if repeated:
@@ -78,7 +78,7 @@ def _sample_program(p: Mapping[str, Any], rng: np.random.Generator) -> list[Op]:
         shifts = [op[1] for op in prog if op[0] == "translate"]
         if len(shifts) > 2 or (len(shifts) == 2 and shifts[1] in (shifts[0], _OPPOSITE[shifts[0]])):
             continue
-        sizey = any(op[0] in ("crop", "scale", "tile", "count_row") for op in prog)
+        sizey = any(op[0] in ("crop", "scale", "tile", "count-row") for op in prog)
         if p["resize"] == "same" and sizey:
             continue
         if p["resize"] == "different" and not sizey:

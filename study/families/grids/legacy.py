@@ -2,8 +2,9 @@
 and render unchanged on disk (their hash stays the same).
 
 Version 1 stored ``{"train": [{"input", "output"}], "test", "program"}``, painted colour indices
-with its own palette (:data:`V1_PALETTE`) and named error types and variant operators in
-snake_case. Version 2 stores ``{"examples": [{"before", "after"}], "probe", "program"}`` and uses
+with its own palette (:data:`V1_PALETTE`) and named error types, variant operators and the
+operations of the hidden rule in snake_case. Version 2 stores
+``{"examples": [{"before", "after"}], "probe", "program"}`` and uses
 :data:`twofold.study.colour.GRID_PALETTE`. An old item keeps its indices (its answer and the
 responses logged for it stay valid); only the colours it is painted with are looked up through
 :data:`V1_TO_V2`, which sends each old index to the new colour of the same hue category.
@@ -47,6 +48,14 @@ V1_NAMES: dict[str, str] = {
     "translate_content": "move-content",
     "resize_canvas": "grow-canvas",
 }
+#: version 1 names of the hidden rule's operations -> version 2 names
+V1_OPS: dict[str, str] = {
+    "flip_lr": "flip-lr",
+    "flip_ud": "flip-ud",
+    "keep_largest": "keep-largest",
+    "keep_smallest": "keep-smallest",
+    "count_row": "count-row",
+}
 
 
 def is_v1(item: Item) -> bool:
@@ -62,7 +71,7 @@ def native(stimulus: Mapping[str, Any]) -> dict[str, Any]:
     return {
         "examples": [{"before": p["input"], "after": p["output"]} for p in stimulus["train"]],
         "probe": stimulus["test"],
-        "program": stimulus["program"],
+        "program": [[V1_OPS.get(op[0], op[0]), *op[1:]] for op in stimulus["program"]],
     }
 
 

@@ -158,8 +158,8 @@ def _tile(g: Grid, r: int, c: int) -> Grid | None:
 
 #: name -> ``(kind, function(grid, *args) -> grid or None when not applicable)``
 OPS: dict[str, tuple[str, Callable[..., Grid | None]]] = {
-    "flip_lr": ("geometric", lambda g: g[:, ::-1]),
-    "flip_ud": ("geometric", lambda g: g[::-1, :]),
+    "flip-lr": ("geometric", lambda g: g[:, ::-1]),
+    "flip-ud": ("geometric", lambda g: g[::-1, :]),
     "rot90": ("geometric", lambda g: np.rot90(g, 1)),
     "rot180": ("geometric", lambda g: g[::-1, ::-1]),
     "rot270": ("geometric", lambda g: np.rot90(g, 3)),
@@ -168,17 +168,17 @@ OPS: dict[str, tuple[str, Callable[..., Grid | None]]] = {
     "recolour": ("colour", _recolour),
     "swap": ("colour", _swap),
     "fill": ("colour", _fill),
-    "keep_largest": ("object", lambda g: _keep(g, True)),
-    "keep_smallest": ("object", lambda g: _keep(g, False)),
+    "keep-largest": ("object", lambda g: _keep(g, True)),
+    "keep-smallest": ("object", lambda g: _keep(g, False)),
     "gravity": ("object", _gravity),
-    "count_row": ("object", _count_row),
+    "count-row": ("object", _count_row),
     "crop": ("size", _crop),
     "scale": ("size", _scale),
     "tile": ("size", _tile),
 }
 #: The operation kinds, in the order used by the ``kinds`` parameter.
 KINDS = ("geometric", "colour", "object", "size")
-_DIHEDRAL = ("flip_lr", "flip_ud", "rot90", "rot180", "rot270", "transpose")
+_DIHEDRAL = ("flip-lr", "flip-ud", "rot90", "rot180", "rot270", "transpose")
 _TILES = ((1, 2), (2, 1), (2, 2))
 
 
@@ -201,15 +201,15 @@ def apply_program(g: Grid, program: Sequence[Sequence[Any]]) -> Grid | None:
 
 
 _WORDS = {
-    "flip_lr": "mirror left-right",
-    "flip_ud": "mirror top-bottom",
+    "flip-lr": "mirror left-right",
+    "flip-ud": "mirror top-bottom",
     "rot90": "rotate a quarter turn anticlockwise",
     "rot180": "rotate a half turn",
     "rot270": "rotate a quarter turn clockwise",
     "transpose": "reflect across the main diagonal",
-    "keep_largest": "keep only the largest object",
-    "keep_smallest": "keep only the smallest object",
-    "count_row": "count the objects and draw one cell per object in a row",
+    "keep-largest": "keep only the largest object",
+    "keep-smallest": "keep only the smallest object",
+    "count-row": "count the objects and draw one cell per object in a row",
     "crop": "crop to the content",
 }
 

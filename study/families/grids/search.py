@@ -31,7 +31,7 @@ def _expansions(grids: Sequence[Grid], targets: list[int]) -> list[Op]:
     ops += [("recolour", a, b) for a in here for b in [0, *targets] if b != a]
     ops += [("swap", a, b) for a, b in itertools.combinations(here, 2)]
     ops += [("fill", c) for c in targets]
-    ops += [("keep_largest",), ("keep_smallest",)]
+    ops += [("keep-largest",), ("keep-smallest",)]
     ops += [("gravity", d) for d in _DIRS]
     ops += [("crop",), ("scale", 2), ("scale", 3)]
     ops += [("tile", r, c) for r, c in _TILES]
@@ -52,14 +52,14 @@ def _final_ops(gl: Sequence[Grid], yl: Sequence[Grid]) -> list[Op]:
     ops: list[Op] = []
     if ys == gs:
         if same_hist:
-            ops += [("flip_lr",), ("flip_ud",), ("rot180",)]
+            ops += [("flip-lr",), ("flip-ud",), ("rot180",)]
             if gs[0] == gs[1]:
                 ops += [("rot90",), ("rot270",), ("transpose",)]
             ops += [("gravity", d) for d in _DIRS]
         if (hy[1:] <= hg[1:]).all():
             ops += [("translate", d) for d in _DIRS]
             if hy[0] >= hg[0]:
-                ops += [("keep_largest",), ("keep_smallest",)]
+                ops += [("keep-largest",), ("keep-smallest",)]
         # colour operations: the cell-wise colour change must be a function
         if all(a.shape == b.shape for a, b in zip(gl, yl, strict=True)):
             codes = [
@@ -97,7 +97,7 @@ def _final_ops(gl: Sequence[Grid], yl: Sequence[Grid]) -> list[Op]:
         if ys == (gs[0] * r, gs[1] * c) and (hy == hg * r * c).all():
             ops.append(("tile", r, c))
     if ys[0] == 1:
-        ops.append(("count_row",))
+        ops.append(("count-row",))
     return ops
 
 
@@ -181,7 +181,7 @@ def search(
             if rng is not None:
                 exps = [exps[i] for i in rng.permutation(len(exps))]
             for op in exps:
-                if op[0] == "count_row":
+                if op[0] == "count-row":
                     continue
                 if st.tried >= budget:
                     st.exhausted = True
