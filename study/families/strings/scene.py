@@ -147,69 +147,39 @@ class StringsScene(Family):
         y -= p.key + _GAP
         c = p.cell
         ask = "type what it becomes" if mode == "generate" else "which choice does it become?"
+
+        def caption(text: str) -> None:
+            els.append(
+                Text(_M, y - _CAP_H / 2, text, _CAPTION, anchor="left", bold=True, role="caption")
+            )
+
+        def pair(first: str, second: str | None) -> float:
+            """``first`` -> ``second`` on one row (``second`` None: an arrow to the answer place)
+            at the current height; returns the x where the row's right-hand string starts."""
+            els.extend(_string_cells(first, _M, y, c))
+            x = _M + len(first) * c
+            els.extend(_arrow(x + 8, x + _ARROW - 8, y + c / 2))
+            if second is not None:
+                els.extend(_string_cells(second, x + _ARROW, y, c))
+            return x + _ARROW
+
         if p.side_by_side:
-            els.append(
-                Text(
-                    _M,
-                    y - _CAP_H / 2,
-                    "Example",
-                    _CAPTION,
-                    anchor="left",
-                    bold=True,
-                    role="caption",
-                )
-            )
+            caption("Example")
             y -= _CAP_H + c
-            els += _string_cells(st["source"], _M, y, c)
-            x = _M + len(st["source"]) * c
-            els += _arrow(x + 8, x + _ARROW - 8, y + c / 2)
-            els += _string_cells(st["changed"], x + _ARROW, y, c)
+            pair(st["source"], st["changed"])
             y -= _GAP
-            els.append(
-                Text(
-                    _M,
-                    y - _CAP_H / 2,
-                    f"New string: {ask}",
-                    _CAPTION,
-                    anchor="left",
-                    bold=True,
-                    role="caption",
-                )
-            )
+            caption(f"New string: {ask}")
             y -= _CAP_H + c
-            els += _string_cells(st["target"], _M, y, c)
-            x = _M + len(st["target"]) * c
-            els += _arrow(x + 8, x + _ARROW - 8, y + c / 2)
-            ax = x + _ARROW
+            ax = pair(st["target"], None)
         else:
             # the example's two strings one above the other, and the new string above its answer
-            els.append(
-                Text(
-                    _M,
-                    y - _CAP_H / 2,
-                    "Example: the upper row becomes the lower row",
-                    _CAPTION,
-                    anchor="left",
-                    bold=True,
-                    role="caption",
-                )
-            )
+            caption("Example: the upper row becomes the lower row")
             y -= _CAP_H + c
             els += _string_cells(st["source"], _M, y, c)
             y -= _ROW_GAP + c
             els += _string_cells(st["changed"], _M, y, c)
             y -= _GAP
-            els.append(
-                Text(
-                    _M,
-                    y - _CAP_H / 2,
-                    f"New string (upper row): {ask}",
-                    _CAPTION,
-                    anchor="left",
-                    bold=True,
-                    role="caption",
-                )
-            )
+            caption(f"New string (upper row): {ask}")
             y -= _CAP_H + c
             els += _string_cells(st["target"], _M, y, c)
             y -= _ROW_GAP + c
