@@ -128,7 +128,10 @@ def preview(
     ] = None,
     size: Annotated[
         str | None,
-        typer.Option("--size", help="Window size WIDTHxHEIGHT (default: the size in the runner table of study.toml)."),
+        typer.Option(
+            "--size",
+            help="Window size WIDTHxHEIGHT (default: the size in the study's runner table).",
+        ),
     ] = None,
     respondent: Annotated[
         str | None,
