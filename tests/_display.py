@@ -642,6 +642,7 @@ def _interact(ctx: Any, item: Any, mode: str) -> list[dict[str, Any]]:
             s.press(s.targets[name], 2.0)
         out.append(
             {"kind": kind, "empty": empty, "typed": s.typed, "want": a + a,
+             "help": s.help_text, "symbols": list(s.symbols),
              "final": ans(s.press(s.targets["done"], 3.0))}
         )  # fmt: skip
     elif kind == "EditorScreen":

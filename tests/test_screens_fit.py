@@ -203,6 +203,9 @@ def test_builder_previews_to_scale_and_submits_when_complete(acted):
 def test_symbol_keys_delete_and_done(acted):
     g = acted[("TypeScreen", None)]
     assert g["empty"] is None and g["typed"] == g["want"] and g["final"][0] == g["want"]
+    # invented symbols cannot come from a keyboard: the help line does not say they can
+    assert not any(s.isascii() for s in g["symbols"])
+    assert "type" not in g["help"].lower().replace("types", "")
 
 
 def test_editor_tools_and_undo(acted):

@@ -27,13 +27,13 @@ from .widgets import (
     Badge,
     Highlight,
     entry_frame,
+    key_char,
     make_text,
     text_width,
 )
 
 __all__ = ["LabelScreen"]
 
-_NAMED = {"space": " ", "minus": "-", "comma": ",", "period": ".", "slash": "/"}
 RULE_ROW = 48.0
 #: badge colours of the first and second label
 LABEL_FILL = (ACCENT, SELECT)
@@ -165,7 +165,7 @@ class LabelScreen(Screen):
             if name == "backspace":
                 self.rule_text = self.rule_text[:-1]
             else:
-                ch = _NAMED.get(name, name.replace("num_", ""))
+                ch = key_char(name)
                 if len(ch) == 1 and (ch.isalnum() or ch in " -,./") and len(self.rule_text) < 80:
                     self.rule_text += ch
             self._show_rule()

@@ -22,13 +22,13 @@ from .widgets import (
     Keypad,
     entry_frame,
     ink_on_light,
+    key_char,
     make_text,
     text_width,
 )
 
 __all__ = ["TypeScreen"]
 
-_NAMED = {"space": " ", "minus": "-", "comma": ",", "period": ".", "slash": "/"}
 MAX_CHARS = 60
 ENTRY_ROW = 52.0
 
@@ -40,9 +40,11 @@ class TypeScreen(Screen):
         self.symbols = [str(s) for s in self.options.get("symbols") or ()]
         self.typed = ""
         if self.symbols:
+            # keys can type letters and digits only; invented symbols are clicked
+            typeable = all(s.isascii() and s.isalnum() for s in self.symbols)
             self.help_text = (
-                "Click the symbols (or type them); DELETE removes the last one, DONE submits."
-                "   ESC: end session"
+                f"Click the symbols{' (or type them)' if typeable else ''}; DELETE removes the"
+                " last one, DONE submits.   ESC: end session"
             )
         else:
             self.help_text = (
@@ -167,7 +169,7 @@ class TypeScreen(Screen):
             self.typed = self.typed[:-1]
             self._show()
             return None
-        ch = _NAMED.get(name, name.replace("num_", ""))
+        ch = key_char(name)
         if len(ch) == 1 and self.allowed(ch):
             self.add(ch)
         return None

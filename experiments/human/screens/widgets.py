@@ -32,8 +32,19 @@ __all__ = [
     "Highlight",
     "contrast_ratio",
     "ink_for",
+    "key_char",
     "make_text",
 ]
+
+#: key names PsychoPy reports for the punctuation a typed answer may hold
+_KEY_CHARS = {"space": " ", "minus": "-", "comma": ",", "period": ".", "slash": "/"}
+
+
+def key_char(name: str) -> str:
+    """The character a key name stands for (``space`` -> " ", ``num_4`` -> "4", ``a`` -> "a");
+    a name longer than one character that is not listed comes back unchanged."""
+    return _KEY_CHARS.get(name, name.replace("num_", ""))
+
 
 TEXT = "#e8e4da"  #: warm off-white text on the dark window
 DIM = "#aab0b8"  #: secondary text (help line, captions)
