@@ -43,25 +43,26 @@ from psychopy import visual, logging
 logging.console.setLevel(logging.ERROR)
 from twofold.study import generate_bank, parse_spec, render
 from twofold.experiments.human.screens import Ctx, make_screen
-spec = {"seed": 2, "families": {"grids": {"n": 6, "modes": ["generate"],
+spec = {"seed": 2, "families": {"grids": {"n": 12, "modes": ["generate"],
         "params": {"size": 12, "demos": 4}}}}
-items = [it for it in generate_bank(parse_spec(spec))
-         if len(it.stimulus["probe"]) >= 12 or len(it.stimulus["probe"][0]) >= 12]
-item = items[0]
+# the item with the largest probe (the size cap is 12 on a side)
+item = max(generate_bank(parse_spec(spec)),
+           key=lambda it: len(it.stimulus["probe"]) * len(it.stimulus["probe"][0]))
 W, H = int(sys.argv[1]), int(sys.argv[2])
 win = visual.Window(size=[W, H], units="pix", color="#20242b", checkTiming=False)
 ctx = Ctx(win=win, visual=visual, size=(W, H), background="#20242b")
 t0 = time.perf_counter()
 screen = make_screen(ctx, item, "generate")
 build = time.perf_counter() - t0
-screen.press(screen.targets["copy"], 0.0)  # a full 15x15 output grid in the editor
+screen.press(screen.targets["copy"], 0.0)  # the probe copied into the editor
+R, C = len(item.stimulus["probe"]), len(item.stimulus["probe"][0])
 for _ in range(20):
     screen.draw(); win.flip()
 times = []
 for k in range(300):
     t0 = time.perf_counter()
     if k % 10 == 0:  # paint a cell now and then, as a respondent would
-        screen.press(screen.targets[f"cell:{k % 15},{(k // 15) % 15}"], 0.0)
+        screen.press(screen.targets[f"cell:{(k // 10) % R},{(k // 10) % C}"], 0.0)
     screen.draw()
     win.flip()
     times.append(time.perf_counter() - t0)
