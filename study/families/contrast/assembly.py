@@ -23,11 +23,27 @@ from .generation import (
     _validity,
 )
 from .notation import (
+    INSIDE,
+    SIZE,
+    VALUES,
     Rule,
     _canon,
     format_rule,
     rule_length,
 )
+
+#: what may hold another object: a large square or dome. The room inside a triangle or a cross
+#: (the circle within it), or inside anything of medium size, leaves a nested object 5 to 9
+#: units across on screen at 5 panels a set, too small to tell its shape
+_HOST_SHAPES = tuple(VALUES["shape"].index(s) for s in ("square", "dome"))
+_HOST_SIZE = VALUES["size"].index("large")
+_NARROW_REASON = (
+    "an object nested in a triangle, a cross or a medium-sized object (too little room to see it)"
+)
+
+
+def _cramped(host: Sequence[int]) -> bool:
+    return host[0] not in _HOST_SHAPES or host[SIZE] != _HOST_SIZE
 
 
 class ContrastAssembly(Family):
@@ -147,6 +163,8 @@ class ContrastAssembly(Family):
     ) -> Item:
         set_a, set_b, tests = ([_hosts_first(p) for p in group] for group in (set_a, set_b, tests))
         panels = [*set_a, *set_b, *tests]
+        if any(_cramped(pnl[o[INSIDE]]) for pnl in panels for o in pnl if o[INSIDE] >= 0):
+            raise Rejected(_NARROW_REASON)
         sep = checked
         if sep is None:
             reason, _, sep = _validity(
