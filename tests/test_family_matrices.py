@@ -628,7 +628,8 @@ def test_neighbouring_sizes_and_heights_differ_visibly():
         assert min(n - m for m, n in zip(longs, longs[1:], strict=False)) >= 2.5, shape
     for count in LEVELS["count"]:
         tops = [max(b[3] for b in boxes(count=count, position=p)) for p in LEVELS["position"]]
-        assert min(m - n for m, n in zip(tops, tops[1:], strict=False)) >= 8, count
+        # our measurement: 20.7 units between neighbouring heights (10.4 with five heights)
+        assert min(m - n for m, n in zip(tops, tops[1:], strict=False)) >= 18, count
 
 
 def test_too_many_choices_are_refused_by_name():

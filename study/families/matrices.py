@@ -100,7 +100,8 @@ LEVELS: dict[str, tuple[Any, ...]] = {
     "size": (1, 2, 3, 4, 5, 6),
     "shade": ("white", "pale", "light", "medium", "dark", "black"),
     "count": (1, 2, 3, 4, 5, 6),
-    "position": ("top", "upper", "middle", "lower", "bottom"),
+    # three heights: with two rows of copies a panel has room for three clearly apart
+    "position": ("high", "middle", "low"),
     "turn": ("up", "right", "down", "left"),  # quarter turns clockwise
 }
 _NUMERIC = frozenset({"size", "count"})
@@ -213,6 +214,7 @@ INVENTORIES: dict[str, Inventory] = {
         {
             **LEVELS,
             "shape": ("triangle", "square", "pentagon", "hexagon", "circle"),
+            "position": ("top", "upper", "middle", "lower", "bottom"),
         },
         _V1_RULES,
     ),
@@ -515,11 +517,12 @@ class _Look:
     Copies stand in rows of at most three (four as 2 + 2, five as 3 + 2, six as 3 + 3) at a
     pitch of a third of the panel's inside; ``size`` scales the object's longer side from the
     smallest that keeps its shorter side at MIN_OBJECT up to 94 % of the pitch; ``position``
-    moves the group's centre down in four equal steps over the room the tallest group of the
-    item leaves (one row when the item holds at most three copies, else two).
+    moves the group's centre down in equal steps (two for the three heights of version 2, four
+    for the five of version 1) over the room the tallest group of the item leaves (one row when
+    the item holds at most three copies, else two).
     """
 
-    def __init__(self, cell: float, rows_max: int):
+    def __init__(self, cell: float, rows_max: int, heights: int = 3):
         self.cell = cell
         self.pad = 0.04 * cell
         inner = cell - 2 * self.pad
@@ -529,7 +532,7 @@ class _Look:
         self.sizes = tuple(s_min + (s_max - s_min) * i / 5 for i in range(6))
         tallest = (rows_max - 1) * self.pitch + s_max
         self.top = self.pad + inner - tallest / 2  # group centre at position level 0
-        self.step = max(0.0, inner - tallest) / 4
+        self.step = max(0.0, inner - tallest) / max(1, heights - 1)
 
     def objects(self, inv: Inventory, p: Mapping[str, Any], x0: float, y0: float) -> list[Shape]:
         """The object shapes of panel ``p`` whose bottom-left corner is ``(x0, y0)``."""
@@ -1239,7 +1242,7 @@ class MatricesFamily(Family):
             cell = _select_layout(len(item.choices or ()))[2]
         else:
             cell = _matrix_cell()
-        return _Look(cell, self._rows_max(item))
+        return _Look(cell, self._rows_max(item), len(inventory(item).levels["position"]))
 
     def scene(self, item: Item, mode: str) -> Scene:
         """The matrix (the missing panel framed in the accent colour with a question mark) and,
