@@ -1030,46 +1030,30 @@ def test_a_triangle_holding_an_object_is_refused():
     item = make({"kind": "relational", "objects": 3}, 3)
     panels, n_a, n_b = panels_from_stimulus(item.stimulus)
     host, guest = panels[0][0], panels[0][1]
+
+    def finish():
+        return FAM._finish(
+            parse_rule(item.answer["rule"]),
+            panels[:n_a],
+            panels[n_a : n_a + n_b],
+            panels[n_a + n_b :],
+            params=item.params,
+            factors=item.factors,
+            seed=item.seed,
+            modes=item.modes,
+            minimal=False,
+        )
+
     host[0], host[1] = 1, 2  # a large triangle
     guest[1], guest[7] = 0, 0  # a small object nested in it, in the same cell
     guest[5], guest[6] = host[5], host[6]
     with pytest.raises(Rejected, match="triangle, a cross or a medium"):
-        FAM._finish(
-            parse_rule(item.answer["rule"]),
-            panels[:n_a],
-            panels[n_a : n_a + n_b],
-            panels[n_a + n_b :],
-            params=item.params,
-            factors=item.factors,
-            seed=item.seed,
-            modes=item.modes,
-            minimal=False,
-        )
+        finish()
     host[0], host[1] = 0, 1  # a medium square: refused too
     with pytest.raises(Rejected, match="medium-sized"):
-        FAM._finish(
-            parse_rule(item.answer["rule"]),
-            panels[:n_a],
-            panels[n_a : n_a + n_b],
-            panels[n_a + n_b :],
-            params=item.params,
-            factors=item.factors,
-            seed=item.seed,
-            modes=item.modes,
-            minimal=False,
-        )
+        finish()
     host[1] = 2  # a large square may hold it: no refusal for that reason
     try:
-        FAM._finish(
-            parse_rule(item.answer["rule"]),
-            panels[:n_a],
-            panels[n_a : n_a + n_b],
-            panels[n_a + n_b :],
-            params=item.params,
-            factors=item.factors,
-            seed=item.seed,
-            modes=item.modes,
-            minimal=False,
-        )
+        finish()
     except Rejected as err:
         assert "triangle" not in str(err)
