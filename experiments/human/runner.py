@@ -51,6 +51,7 @@ from twofold.study.exceptions import ResponseError, RunnerError
 from twofold.study.scene import MIN_TEXT
 
 from .prepare import SessionPlan, choice_order, paginate, reflow, shown_item
+from .screens.widgets import ACCENT, DIM, make_text
 
 __all__ = [
     "FRAMES_HEADER",
@@ -137,7 +138,6 @@ class _Frames:
         }
 
 
-TEXT_COLOUR, DIM_COLOUR, ACCENT_COLOUR = "#e8e4da", "#9aa0a8", "#d9a441"
 #: how footers name keys
 _KEY_NAMES = {"space": "SPACE", "left": "the left arrow", "right": "the right arrow"}
 
@@ -183,14 +183,8 @@ class _Countdown:
         w, h = sess.size
         self.size = int(MIN_TEXT)
         self.pos = (w / 2 - 10, h / 2 - 6)
-        self.stim = sess._stim(
-            "",
-            self.size,
-            pos=self.pos,
-            anchorHoriz="right",
-            anchorVert="top",
-            alignText="right",
-            color=DIM_COLOUR,
+        self.stim = make_text(
+            sess.ctx, "", self.pos, height=self.size, color=DIM, anchor="right", valign="top"
         )
         self.w, self.h = w, h
         self.limit, self.shown = 0.0, -1
@@ -351,17 +345,6 @@ class _Session:
             size = min(size, 20)
         return max(int(MIN_TEXT), size)
 
-    def _stim(self, text: str, height: float, **kw: Any) -> Any:
-        return self.visual.TextStim(
-            self.win,
-            text=text,
-            height=height,
-            color=kw.pop("color", TEXT_COLOUR),
-            font="DejaVu Sans",
-            units="pix",
-            **kw,
-        )
-
     def pages(
         self, text: str, accept: str, *, picture: Any = None, wait_note: str = ""
     ) -> list[_Page]:
@@ -384,18 +367,12 @@ class _Session:
         # the footer's height: two lines at least, or what the longer footer needs
         footer_h = 2.6 * fsize
         for foot in (accept, turn):
-            probe = self._stim(foot, fsize, wrapWidth=foot_w, anchorHoriz="left")
+            probe = make_text(self.ctx, foot, (0, 0), height=fsize, wrap=foot_w, anchor="left")
             footer_h = max(footer_h, float(probe.boundingBox[1]))
         sep_y = -h / 2 + mb + footer_h + 0.6 * fsize
         body_h = top - sep_y - 0.8 * size
-        body = self._stim(
-            "",
-            size,
-            wrapWidth=width,
-            pos=(-w / 2 + mx, top),
-            anchorHoriz="left",
-            anchorVert="top",
-            alignText="left",
+        body = make_text(
+            self.ctx, "", (-w / 2 + mx, top), height=size, wrap=width, anchor="left", valign="top"
         )
 
         def fits(page: str) -> bool:
@@ -409,26 +386,26 @@ class _Session:
             last = i == n - 1
             foot = accept if last else turn
             stims = []
-            stim = self._stim(
+            stim = make_text(
+                self.ctx,
                 chunk,
-                size,
-                wrapWidth=width,
-                pos=(-w / 2 + mx, top),
-                anchorHoriz="left",
-                anchorVert="top",
-                alignText="left",
+                (-w / 2 + mx, top),
+                height=size,
+                wrap=width,
+                anchor="left",
+                valign="top",
             )
             stims.append(stim)
             boxes = {"body": _stim_box(stim, w, h)}
-            footer = self._stim(
+            footer = make_text(
+                self.ctx,
                 foot,
-                fsize,
-                wrapWidth=foot_w,
-                pos=(-w / 2 + mx, -h / 2 + mb),
-                anchorHoriz="left",
-                anchorVert="bottom",
-                alignText="left",
-                color=ACCENT_COLOUR,
+                (-w / 2 + mx, -h / 2 + mb),
+                height=fsize,
+                color=ACCENT,
+                wrap=foot_w,
+                anchor="left",
+                valign="bottom",
             )
             stims.append(footer)
             boxes["footer"] = _stim_box(footer, w, h)
@@ -437,20 +414,20 @@ class _Session:
                     self.win,
                     start=(-w / 2 + mx, sep_y),
                     end=(w / 2 - mx, sep_y),
-                    lineColor=DIM_COLOUR,
+                    lineColor=DIM,
                     lineWidth=1,
                     units="pix",
                 )
             )
             if n > 1:
-                mark = self._stim(
+                mark = make_text(
+                    self.ctx,
                     f"page {i + 1} of {n}",
-                    fsize,
-                    pos=(w / 2 - mx, -h / 2 + mb),
-                    anchorHoriz="right",
-                    alignText="right",
-                    anchorVert="bottom",
-                    color=DIM_COLOUR,
+                    (w / 2 - mx, -h / 2 + mb),
+                    height=fsize,
+                    color=DIM,
+                    anchor="right",
+                    valign="bottom",
                 )
                 stims.append(mark)
                 boxes["page"] = _stim_box(mark, w, h)
