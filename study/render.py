@@ -15,14 +15,12 @@ from .checks import check_choice
 from .exceptions import InputError
 from .families import get_family
 from .item import MODES, Item
-from .scene import Grid, Line, Scene, Shape, Text, hatch_segments
+from .scene import FONTS, Grid, Line, Scene, Shape, Text, hatch_segments
 
 __all__ = ["MEDIA", "paint_scene", "render", "render_picture", "scene_of"]
 
 #: The media an item can be rendered in.
 MEDIA = ("text", "picture", "structured")
-#: the fonts scene text names, as matplotlib families
-FONTS = {"sans": "DejaVu Sans", "mono": "DejaVu Sans Mono"}
 
 
 def _mode_for(item: Item, mode: str | None) -> str:

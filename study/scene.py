@@ -26,6 +26,7 @@ from typing import Any, Literal
 
 __all__ = [
     "DESIGN_BOX",
+    "FONTS",
     "MIN_CELL",
     "MIN_OBJECT",
     "MIN_TEXT",
@@ -58,6 +59,8 @@ Colour = str  # "#rrggbb"
 DashStyle = Literal["solid", "dashed", "dotted"]
 #: the hatch patterns painters know (each a few segments in the unit square, see hatch_segments)
 HATCHES = ("rising", "falling", "level", "upright", "crossed", "dots", "ring", "bar", "plus")
+#: the typefaces a scene's ``font`` names: every painter draws text in these
+FONTS = {"sans": "DejaVu Sans", "mono": "DejaVu Sans Mono"}
 #: average advance of a glyph as a fraction of the letter height (DejaVu Sans / Sans Mono)
 _ADVANCE = {"sans": 0.62, "mono": 0.61}
 

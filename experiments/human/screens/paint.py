@@ -15,12 +15,11 @@ import math
 from collections.abc import Sequence
 from typing import Any
 
-from twofold.study.scene import Grid, Line, Scene, Shape, Text, hatch_segments
+from twofold.study.scene import FONTS, Grid, Line, Scene, Shape, Text, hatch_segments
 
 __all__ = ["FONTS", "ScenePainter", "hex_of", "segment_bars"]
 
 #: scene fonts as PsychoPy font names (the same faces pictures use)
-FONTS = {"sans": "DejaVu Sans", "mono": "DejaVu Sans Mono"}
 _ANCHOR = {"left": "left", "centre": "center", "right": "right"}
 _VALIGN = {"top": "top", "middle": "center", "bottom": "bottom"}
 #: the thinnest line drawn on screen (px): thinner quads drop out in software rendering
